@@ -1,0 +1,103 @@
+// Command dwiaudit is the diffusion-MR acquisition auditor: a DICOM node
+// that receives diffusion studies and checks whether their ADC maps can be
+// trusted. Each subcommand lives in its own file; wiring is explicit here.
+package main
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"syscall"
+)
+
+// exit codes
+const (
+	exitOK      = 0
+	exitFailure = 1 // the operation ran and failed
+	exitUsage   = 2 // bad flags or arguments
+)
+
+type command struct {
+	name    string
+	summary string
+	run     func(ctx context.Context, env *cliEnv, args []string) int
+}
+
+// cliEnv is what a subcommand may touch of the process, injected so tests
+// can run subcommands in-process.
+type cliEnv struct {
+	stdout, stderr io.Writer
+	// isTerminal reports whether stderr is an interactive terminal (for
+	// progress bars).
+	isTerminal bool
+}
+
+func commands() []command {
+	return []command{
+		{"echo", "check that a DICOM node answers C-ECHO", runEcho},
+		{"send", "send DICOM files and folders with C-STORE", runSend},
+	}
+}
+
+func main() {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	env := &cliEnv{stdout: os.Stdout, stderr: os.Stderr, isTerminal: stderrIsTerminal()}
+	code := run(ctx, env, os.Args[1:])
+	stop()
+	os.Exit(code)
+}
+
+func run(ctx context.Context, env *cliEnv, args []string) int {
+	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
+		usage(env.stderr)
+		if len(args) == 0 {
+			return exitUsage
+		}
+		return exitOK
+	}
+	for _, c := range commands() {
+		if c.name == args[0] {
+			return c.run(ctx, env, args[1:])
+		}
+	}
+	fmt.Fprintf(env.stderr, "dwiaudit: unknown command %q\n\n", args[0])
+	usage(env.stderr)
+	return exitUsage
+}
+
+func usage(w io.Writer) {
+	fmt.Fprintln(w, "dwiaudit: audits diffusion-weighted MR acquisitions received over DICOM.")
+	fmt.Fprintln(w, "It checks acquisitions; it does not diagnose.")
+	fmt.Fprintln(w, "\nUsage: dwiaudit <command> [flags]\n\nCommands:")
+	for _, c := range commands() {
+		fmt.Fprintf(w, "  %-10s %s\n", c.name, c.summary)
+	}
+	fmt.Fprintln(w, "\nRun 'dwiaudit <command> --help' for a command's flags.")
+}
+
+// newFlagSet makes a flag set that prints usage to env.stderr.
+func newFlagSet(env *cliEnv, name, synopsis string) *flag.FlagSet {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	fs.SetOutput(env.stderr)
+	fs.Usage = func() {
+		fmt.Fprintf(env.stderr, "Usage: dwiaudit %s %s\n\nFlags:\n", name, synopsis)
+		fs.PrintDefaults()
+	}
+	return fs
+}
+
+// parseFlags parses args; it returns a non-negative exit code when the
+// command must stop (help asked for, or bad flags).
+func parseFlags(fs *flag.FlagSet, args []string) int {
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return exitOK
+		}
+		return exitUsage
+	}
+	return -1
+}
