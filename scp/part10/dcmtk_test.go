@@ -1,0 +1,62 @@
+package part10
+
+import (
+	"bytes"
+	"os"
+	"os/exec"
+	"regexp"
+	"strings"
+	"testing"
+)
+
+// needDCMTK returns the path of a DCMTK tool. A missing tool fails the test
+// under CI (CI=true), where the Debian package is installed by .ci/run, and
+// skips it elsewhere with the package to install.
+func needDCMTK(t testing.TB, tool string) string {
+	t.Helper()
+	path, err := exec.LookPath(tool)
+	if err != nil {
+		if os.Getenv("CI") == "true" {
+			t.Fatalf("%s not found on PATH; CI must install Debian package dcmtk", tool)
+		}
+		t.Skipf("%s not found on PATH: install Debian package dcmtk", tool)
+	}
+	return path
+}
+
+// dcmDump is what DCMTK's dcmdump printed for one file.
+type dcmDump struct {
+	values map[string]string // "0002,0010" -> value without brackets
+	stderr string            // warnings ("W: ...") and errors ("E: ...")
+	text   string
+}
+
+// dumpLine matches one element line of dcmdump output, for example
+// `(0002,0010) UI [1.2.840.10008.1.2.1]   #  20, 1 TransferSyntaxUID`.
+var dumpLine = regexp.MustCompile(`^\s*\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\) ([A-Z][A-Z]) (.*?)\s+#\s*\d+,`)
+
+// runDCMDump runs `dcmdump -Un` (UIDs as numbers, not names) on path and
+// fails the test if dcmdump exits non-zero.
+func runDCMDump(t testing.TB, path string) dcmDump {
+	t.Helper()
+	tool := needDCMTK(t, "dcmdump")
+	var stdout, stderr bytes.Buffer
+	cmd := exec.Command(tool, "-Un", path)
+	cmd.Stdout, cmd.Stderr = &stdout, &stderr
+	if err := cmd.Run(); err != nil {
+		t.Fatalf("dcmdump %s: %v\n%s%s", path, err, stdout.String(), stderr.String())
+	}
+	d := dcmDump{values: map[string]string{}, stderr: stderr.String(), text: stdout.String()}
+	for _, line := range strings.Split(stdout.String(), "\n") {
+		m := dumpLine.FindStringSubmatch(line)
+		if m == nil {
+			continue
+		}
+		v := m[4]
+		if strings.HasPrefix(v, "[") && strings.HasSuffix(v, "]") {
+			v = v[1 : len(v)-1]
+		}
+		d.values[strings.ToUpper(m[1]+","+m[2])] = v
+	}
+	return d
+}
