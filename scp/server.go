@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"dwiaudit/scp/dimse"
+	"dwiaudit/scp/part10"
 )
 
 // Defaults and limits of the acceptor.
@@ -61,11 +62,11 @@ const (
 	// that went idle.
 	shutdownPollInterval = 10 * time.Millisecond
 
-	// implementation identification sent in A-ASSOCIATE-AC and -RQ
-	// (PS3.7 D.3.3.2). The class UID is under the 2.25 UUID root
-	// (PS3.5 B.2), generated once for dwiaudit.
-	ImplementationClassUID    = "2.25.166128390471722981360125497219447318867"
-	ImplementationVersionName = "DWIAUDIT_010"
+	// ImplementationClassUID and ImplementationVersionName identify
+	// dwiaudit in A-ASSOCIATE-RQ/AC (PS3.7 D.3.3.2), the same values as in
+	// the file meta we write.
+	ImplementationClassUID    = part10.ImplementationClassUID
+	ImplementationVersionName = part10.ImplementationVersionName
 )
 
 // StoreRequest is one C-STORE as the handler sees it.
