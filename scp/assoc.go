@@ -185,9 +185,11 @@ func (c *conn) judge(rq *pdu.AssociateRQ) *pdu.AssociateRJ {
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceProviderACSE, Reason: pdu.ReasonProtocolVersionNotSupported}
 	case strings.TrimRight(rq.ApplicationContext, "\x00 ") != pdu.ApplicationContextName:
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonApplicationContextNotSupported}
-	case rq.CalledAETitle != strings.TrimSpace(s.aeTitle()):
+	case rq.CalledAETitle != strings.TrimSpace(s.aeTitle()) || pdu.CheckAETitle(rq.CalledAETitle) != nil:
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonCalledAENotRecognized}
-	case !s.callingAllowed(rq.CallingAETitle):
+	case !s.callingAllowed(rq.CallingAETitle) || pdu.CheckAETitle(rq.CallingAETitle) != nil:
+		// An AE title we could not echo back in the A-ASSOCIATE-AC
+		// (control characters, backslash) is "not recognized" too.
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonCallingAENotRecognized}
 	case !s.reserveAssociation():
 		// Table 9-21: source 3 (presentation provider), reason 2 (local

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"dwiaudit/scp/dimse"
+	"dwiaudit/scp/pdu"
 	"dwiaudit/scp/part10"
 )
 
@@ -221,23 +222,10 @@ func (s *Server) Validate() error {
 }
 
 // ValidateAETitle checks an AE title against PS3.5 6.2 (AE VR): 1 to 16
-// characters of the default repertoire, no backslash or control
-// characters, not all spaces.
-func ValidateAETitle(ae string) error {
-	t := strings.TrimSpace(ae)
-	switch {
-	case t == "":
-		return errors.New("AE title is empty")
-	case len(ae) > 16:
-		return fmt.Errorf("AE title %q is longer than 16 characters", ae)
-	}
-	for _, r := range ae {
-		if r < 0x20 || r > 0x7e || r == '\\' {
-			return fmt.Errorf("AE title %q contains %q, not allowed in an AE title", ae, r)
-		}
-	}
-	return nil
-}
+// significant characters of the default repertoire, no backslash or
+// control characters. It is pdu.CheckAETitle, exported here for
+// configuration checks.
+func ValidateAETitle(ae string) error { return pdu.CheckAETitle(ae) }
 
 func (s *Server) aeTitle() string {
 	if s.AETitle == "" {
