@@ -18,7 +18,7 @@ import (
 // SendResult is the outcome for one file given to SendFiles.
 type SendResult struct {
 	Path    string
-	Skipped bool   // not a DICOM Part 10 file; nothing was sent
+	Skipped bool // not a DICOM Part 10 file; nothing was sent
 	Status  dimse.Status
 	Comment string // Error Comment of the response
 	Err     error  // no response: the file could not be read or the association failed

@@ -14,8 +14,8 @@ import (
 	"time"
 
 	"dwiaudit/scp/dimse"
-	"dwiaudit/scp/pdu"
 	"dwiaudit/scp/part10"
+	"dwiaudit/scp/pdu"
 )
 
 // Defaults and limits of the acceptor.
