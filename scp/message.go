@@ -238,7 +238,9 @@ func (d *dataReader) WriteTo(w io.Writer) (int64, error) {
 }
 
 // complete reports whether the whole data set was received.
-func (d *dataReader) complete() bool { return d.err == io.EOF || (d.err == nil && d.last && len(d.rest) == 0) }
+func (d *dataReader) complete() bool {
+	return d.err == io.EOF || (d.err == nil && d.last && len(d.rest) == 0)
+}
 
 // drain consumes what the handler left unread. It returns nil when the
 // data set ended properly.
