@@ -187,7 +187,8 @@ func (c *conn) judge(rq *pdu.AssociateRQ) *pdu.AssociateRJ {
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonApplicationContextNotSupported}
 	case rq.CalledAETitle != strings.TrimSpace(s.aeTitle()) || pdu.CheckAETitle(rq.CalledAETitle) != nil:
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonCalledAENotRecognized}
-	case !s.callingAllowed(rq.CallingAETitle) || pdu.CheckAETitle(rq.CallingAETitle) != nil:
+	case !s.callingAllowed(rq.CallingAETitle) || pdu.CheckAETitle(rq.CallingAETitle) != nil ||
+		(s.AllowCalling != nil && !s.AllowCalling(rq.CallingAETitle, c.nc.RemoteAddr())):
 		// An AE title we could not echo back in the A-ASSOCIATE-AC
 		// (control characters, backslash) is "not recognized" too.
 		return &pdu.AssociateRJ{Result: pdu.RejectPermanent, Source: pdu.SourceServiceUser, Reason: pdu.ReasonCallingAENotRecognized}

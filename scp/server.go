@@ -113,6 +113,12 @@ type Server struct {
 	// means any.
 	AllowedCallingAETitles []string
 
+	// AllowCalling, if set, is asked after AllowedCallingAETitles passes:
+	// it may refuse a calling AE title from a given network address (for
+	// per-peer source networks). A refusal is answered like an unknown
+	// calling AE title (PS3.8 9.3.4: source 1, reason 3).
+	AllowCalling func(callingAE string, remote net.Addr) bool
+
 	MaxAssociations int           // concurrent associations; 0 means DefaultMaxAssociations
 	ARTIMTimeout    time.Duration // 0 means DefaultARTIMTimeout
 	IdleTimeout     time.Duration // 0 means DefaultIdleTimeout
