@@ -24,9 +24,9 @@ func TestAllowCallingRefusesAPeerFromTheWrongNetwork(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			var asked string
+			asked := make(chan string, 1)
 			srv := &scp.Server{AETitle: "DWIAUDIT", AllowCalling: func(ae string, remote net.Addr) bool {
-				asked = ae + "@" + remote.(*net.TCPAddr).IP.String()
+				asked <- ae + "@" + remote.(*net.TCPAddr).IP.String()
 				return tc.allow
 			}}
 			go srv.Serve(l)
@@ -51,8 +51,8 @@ func TestAllowCallingRefusesAPeerFromTheWrongNetwork(t *testing.T) {
 				}
 				a.Release(context.Background())
 			}
-			if asked != "HGH_MR1@127.0.0.1" {
-				t.Errorf("hook asked about %q, want HGH_MR1@127.0.0.1", asked)
+			if got := <-asked; got != "HGH_MR1@127.0.0.1" {
+				t.Errorf("hook asked about %q, want HGH_MR1@127.0.0.1", got)
 			}
 		})
 	}
