@@ -23,6 +23,8 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/scp/scptest"
+
 	"dwiaudit/scp"
 	"dwiaudit/scp/part10"
 )
@@ -142,33 +144,11 @@ func BenchmarkCStoreLoopback(b *testing.B) {
 	reportRate(b, "", images*b.N, payload*int64(b.N), b.Elapsed())
 }
 
-// needDCMTK returns the path of a DCMTK tool; without it the benchmark
-// fails under CI=true and is skipped otherwise.
-func needDCMTK(b *testing.B, tool string) string {
-	b.Helper()
-	path, err := exec.LookPath(tool)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			b.Fatalf("%s not found (CI=true): install Debian package dcmtk", tool)
-		}
-		b.Skipf("%s not found: install Debian package dcmtk to run this benchmark", tool)
-	}
-	return path
-}
-
-// dcmtkEnvironment is the environment of DCMTK tools: Debian's DCMTK
-// leaves Nagle's algorithm on unless TCP_NODELAY is set in the
-// environment, and then each image waits about 40 ms for a delayed ACK
-// (common practice).
-func dcmtkEnvironment() []string {
-	return append(os.Environ(), "TCP_NODELAY=1")
-}
-
 // startDCMTKStorescp runs storescp --ignore with Maximum Length maxPDU on
 // a free loopback port until the benchmark ends.
 func startDCMTKStorescp(b *testing.B, maxPDU int) string {
 	b.Helper()
-	path := needDCMTK(b, "storescp")
+	path := scptest.NeedDCMTK(b, "storescp")
 	l, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		b.Fatal(err)
@@ -177,7 +157,7 @@ func startDCMTKStorescp(b *testing.B, maxPDU int) string {
 	l.Close()
 	var out bytes.Buffer
 	cmd := exec.Command(path, "--ignore", "--max-pdu", strconv.Itoa(maxPDU), port)
-	cmd.Env = dcmtkEnvironment()
+	cmd.Env = scptest.DCMTKEnv()
 	cmd.Stdout, cmd.Stderr = &out, &out
 	if err := cmd.Start(); err != nil {
 		b.Fatal(err)
@@ -211,11 +191,11 @@ func startDCMTKStorescp(b *testing.B, maxPDU int) string {
 // how long the process took, start to exit.
 func runStorescu(b *testing.B, addr string, files []string) time.Duration {
 	b.Helper()
-	path := needDCMTK(b, "storescu")
+	path := scptest.NeedDCMTK(b, "storescu")
 	host, port, _ := net.SplitHostPort(addr)
 	args := append([]string{"-aet", peerAE, "-aec", "STORESCP", "--max-pdu", strconv.Itoa(dcmtkMaxPDU), host, port}, files...)
 	cmd := exec.Command(path, args...)
-	cmd.Env = dcmtkEnvironment()
+	cmd.Env = scptest.DCMTKEnv()
 	start := time.Now()
 	out, err := cmd.CombinedOutput()
 	d := time.Since(start)
@@ -228,7 +208,7 @@ func runStorescu(b *testing.B, addr string, files []string) time.Duration {
 func BenchmarkDCMTKStorescuToStorescp(b *testing.B) {
 	for _, maxPDU := range []int{16384, dcmtkMaxPDU} {
 		b.Run("storescp-max-pdu="+strconv.Itoa(maxPDU), func(b *testing.B) {
-			needDCMTK(b, "storescu")
+			scptest.NeedDCMTK(b, "storescu")
 			addr := startDCMTKStorescp(b, maxPDU)
 			_, files, payload := benchFiles(b, benchDistinct)
 			b.SetBytes(payload)
@@ -250,7 +230,7 @@ func BenchmarkDCMTKStorescuToStorescp(b *testing.B) {
 // fastest setting; see BenchmarkDCMTKStorescuToStorescp). The ratio is
 // our throughput over theirs; 1.0 or more means we are at least as fast.
 func BenchmarkOursVsDCMTK(b *testing.B) {
-	needDCMTK(b, "storescu")
+	scptest.NeedDCMTK(b, "storescu")
 	theirAddr := startDCMTKStorescp(b, dcmtkMaxPDU)
 	ourAddr := discardServer(b)
 	dir, files, payload := benchFiles(b, benchDistinct)

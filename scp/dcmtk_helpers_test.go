@@ -14,6 +14,8 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/scp/scptest"
+
 	"dwiaudit/audit/synth"
 	"dwiaudit/scp"
 	"dwiaudit/scp/part10"
@@ -37,30 +39,6 @@ const (
 	summaryWaitTimeout = 10 * time.Second
 )
 
-// needTool returns the path of a DCMTK tool. A missing tool fails the test
-// under CI (env CI=true), where .ci/run installs it, and skips it
-// elsewhere, naming the Debian package to install.
-func needTool(t testing.TB, name string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH: CI must install Debian package dcmtk", name)
-		}
-		t.Skipf("%s not found on PATH: install Debian package dcmtk", name)
-	}
-	return path
-}
-
-// dcmtkEnv is the environment of every DCMTK process. Debian's DCMTK
-// leaves Nagle's algorithm on unless TCP_NODELAY=1 is set, and every
-// C-STORE then waits about 40 ms for a delayed ACK (common practice; with
-// it, DCMTK 3.6.7 -d logs "DULFSM: disabling Nagle algorithm as requested
-// at runtime (TCP_NODELAY=1)", observed).
-func dcmtkEnv() []string {
-	return append(os.Environ(), "TCP_NODELAY=1")
-}
-
 // toolRun is one finished DCMTK process.
 type toolRun struct {
 	exitCode int
@@ -82,11 +60,11 @@ type toolProc struct {
 // output goes to the test log when the test fails.
 func startTool(t testing.TB, name string, args ...string) *toolProc {
 	t.Helper()
-	path := needTool(t, name)
+	path := scptest.NeedDCMTK(t, name)
 	ctx, cancel := context.WithTimeout(context.Background(), toolTimeout)
 	p := &toolProc{name: name, args: args, out: &syncBuffer{}, ctx: ctx, cancel: cancel}
 	p.cmd = exec.CommandContext(ctx, path, args...)
-	p.cmd.Env = dcmtkEnv()
+	p.cmd.Env = scptest.DCMTKEnv()
 	p.cmd.Stdout, p.cmd.Stderr = p.out, p.out
 	if err := p.cmd.Start(); err != nil {
 		cancel()

@@ -18,6 +18,8 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/scp/scptest"
+
 	"dwiaudit/scp"
 )
 
@@ -52,7 +54,7 @@ func rjPDU(result, source, reason byte) []byte {
 const pduTypeAssociateAC = 0x02
 
 func TestEchoscuNegotiatesWithServer(t *testing.T) {
-	needTool(t, "echoscu")
+	scptest.NeedDCMTK(t, "echoscu")
 	tests := []struct {
 		name    string
 		allowed []string // Server.AllowedCallingAETitles
@@ -154,7 +156,7 @@ func TestEchoscuNegotiatesWithServer(t *testing.T) {
 }
 
 func TestEchoscuIsRejectedTransientWhenAssociationsAreUsedUp(t *testing.T) {
-	needTool(t, "echoscu")
+	scptest.NeedDCMTK(t, "echoscu")
 	rec := newStoreRecorder()
 	srv := newRecordingServer(t, rec)
 	srv.MaxAssociations = 1
@@ -285,7 +287,7 @@ func totalBytes(want map[string]wantInstance) int64 {
 // DCMTK encodes (explicit lengths, no group lengths, elements in order),
 // so in the file's own transfer syntax the bytes must be the same.
 func TestStorescuSendsFolderInOneAssociation(t *testing.T) {
-	needTool(t, "storescu")
+	scptest.NeedDCMTK(t, "storescu")
 	fx := fixtures.get(t)
 	explicitSample := fixtureSample(t, fx.series[0], explicitSampleSize)
 	tests := []struct {
@@ -386,7 +388,7 @@ func fixtureSample(t testing.TB, dir string, n int) []string {
 const concurrentSenders = 4
 
 func TestFourStorescuProcessesAtOnce(t *testing.T) {
-	needTool(t, "storescu")
+	scptest.NeedDCMTK(t, "storescu")
 	fx := fixtures.get(t)
 	if len(fx.series) != concurrentSenders {
 		t.Fatalf("fixtures hold %d series, want one per sender (%d)", len(fx.series), concurrentSenders)

@@ -2,26 +2,13 @@ package synth
 
 import (
 	"bytes"
-	"os"
 	"os/exec"
 	"regexp"
 	"strings"
 	"testing"
-)
 
-// needDCMTK returns the path of a DCMTK tool. A missing tool fails the test
-// under CI (CI=true) and skips it elsewhere with the package to install.
-func needDCMTK(t testing.TB, tool string) string {
-	t.Helper()
-	path, err := exec.LookPath(tool)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH; CI must install Debian package dcmtk", tool)
-		}
-		t.Skipf("%s not found on PATH: install Debian package dcmtk", tool)
-	}
-	return path
-}
+	"dwiaudit/scp/scptest"
+)
 
 // dcmDump is what DCMTK's dcmdump printed for one file.
 type dcmDump struct {
@@ -38,7 +25,7 @@ var dumpLine = regexp.MustCompile(`^\s*\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\) ([A
 // fails the test.
 func runDCMDump(t testing.TB, path string) dcmDump {
 	t.Helper()
-	tool := needDCMTK(t, "dcmdump")
+	tool := scptest.NeedDCMTK(t, "dcmdump")
 	var stdout, stderr bytes.Buffer
 	cmd := exec.Command(tool, "-Un", path)
 	cmd.Stdout, cmd.Stderr = &stdout, &stderr

@@ -16,6 +16,8 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/scp/scptest"
+
 	"dwiaudit/audit/synth"
 	"dwiaudit/scp/part10"
 )
@@ -27,21 +29,6 @@ const (
 	// portPollInterval is how often waitForPort tries to connect.
 	portPollInterval = 10 * time.Millisecond
 )
-
-// needTool returns the path of a DCMTK tool. A missing tool fails the test
-// under CI (env CI=true), where .ci/run installs it, and skips it
-// elsewhere, naming the Debian package to install.
-func needTool(t testing.TB, name string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH: CI must install Debian package dcmtk", name)
-		}
-		t.Skipf("%s not found on PATH: install Debian package dcmtk", name)
-	}
-	return path
-}
 
 // syncBuffer is a bytes.Buffer safe for a process writing while the test
 // reads.
@@ -70,7 +57,7 @@ func (b *syncBuffer) String() string {
 // the test fails.
 func startStorescp(t testing.TB, args ...string) string {
 	t.Helper()
-	path := needTool(t, "storescp")
+	path := scptest.NeedDCMTK(t, "storescp")
 	l, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		t.Fatal(err)
@@ -80,7 +67,7 @@ func startStorescp(t testing.TB, args ...string) string {
 
 	ctx, cancel := context.WithCancel(context.Background())
 	cmd := exec.CommandContext(ctx, path, append(args, strconv.Itoa(port))...)
-	cmd.Env = append(os.Environ(), "TCP_NODELAY=1")
+	cmd.Env = scptest.DCMTKEnv()
 	out := &syncBuffer{}
 	cmd.Stdout, cmd.Stderr = out, out
 	if err := cmd.Start(); err != nil {
@@ -137,7 +124,7 @@ func dataSetOf(t testing.TB, path string) (part10.Meta, []byte) {
 const interopSlices = 300
 
 func TestSendToStorescpDeliversEveryDataSetUnchanged(t *testing.T) {
-	needTool(t, "storescp")
+	scptest.NeedDCMTK(t, "storescp")
 	src := t.TempDir()
 	paths, err := synth.WriteSeries(src, synth.Series{Slices: interopSlices, Seed: 11})
 	if err != nil {

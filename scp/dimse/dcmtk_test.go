@@ -9,21 +9,9 @@ import (
 	"strconv"
 	"strings"
 	"testing"
-)
 
-// needTool finds a DCMTK tool. Without it the interop checks cannot run:
-// on CI that is a failure, elsewhere a skip that says what to install.
-func needTool(t *testing.T, name string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found (CI=true): install Debian package dcmtk", name)
-		}
-		t.Skipf("%s not found: install Debian package dcmtk", name)
-	}
-	return path
-}
+	"dwiaudit/scp/scptest"
+)
 
 // dcmtkCases are command sets cross-checked against DCMTK. lines are in
 // dcmdump's notation ("(gggg,eeee) VR value"), which is also what
@@ -85,7 +73,7 @@ func dcmtkCases() []struct {
 }
 
 func TestDCMTKDumpReadsOurCommandSets(t *testing.T) {
-	dcmdump := needTool(t, "dcmdump")
+	dcmdump := scptest.NeedDCMTK(t, "dcmdump")
 	// One element line of dcmdump's output, e.g.
 	// "(0000,0002) UI [1.2.3]     #   6, 1 AffectedSOPClassUID".
 	dumpLine := regexp.MustCompile(`^(\([0-9a-f]{4},[0-9a-f]{4}\) [A-Z]{2} .*?)\s+#\s*(\d+), \d+ \S+$`)
@@ -132,7 +120,7 @@ func TestDCMTKDumpReadsOurCommandSets(t *testing.T) {
 }
 
 func TestDCMTKWritesTheSameBytes(t *testing.T) {
-	dump2dcm := needTool(t, "dump2dcm")
+	dump2dcm := scptest.NeedDCMTK(t, "dump2dcm")
 	for _, tt := range dcmtkCases() {
 		t.Run("dump2dcm encodes "+tt.name+" byte for byte as we do", func(t *testing.T) {
 			t.Parallel()

@@ -13,6 +13,8 @@ import (
 	"reflect"
 	"strconv"
 	"testing"
+
+	"dwiaudit/scp/scptest"
 )
 
 // dcmtkImplementationClassUID and dcmtkVersionName are what DCMTK 3.6.7's
@@ -175,7 +177,7 @@ func checkAgainstDump(t *testing.T, m Meta, d dcmDump) {
 }
 
 func TestReadMetaReadsFreshDCMTKFiles(t *testing.T) {
-	dump2dcm := needDCMTK(t, "dump2dcm")
+	dump2dcm := scptest.NeedDCMTK(t, "dump2dcm")
 	cases := []struct {
 		name string
 		args []string

@@ -17,6 +17,8 @@ import (
 	"sync"
 	"testing"
 	"time"
+
+	"dwiaudit/scp/scptest"
 )
 
 // The tests in this file put a recording proxy between DCMTK's echoscu or
@@ -144,7 +146,7 @@ func startStorescp(t *testing.T, extra ...string) string {
 	args := append([]string{"-aet", "DWIPEER", "-od", t.TempDir(), "--ignore"}, extra...)
 	args = append(args, strconv.Itoa(port))
 	cmd := exec.CommandContext(ctx, bin, args...)
-	cmd.Env = append(os.Environ(), "TCP_NODELAY=1") // see .brief rules: DCMTK on Debian waits ~40 ms without it
+	cmd.Env = scptest.DCMTKEnv()
 	var logs bytes.Buffer
 	cmd.Stdout, cmd.Stderr = &logs, &logs
 	if err := cmd.Start(); err != nil {
@@ -191,7 +193,7 @@ func runThroughProxy(t *testing.T, upstream, tool string, args []string, tail ..
 	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
 	defer cancel()
 	cmd := exec.CommandContext(ctx, bin, append(append(args, "127.0.0.1", port), tail...)...)
-	cmd.Env = append(os.Environ(), "TCP_NODELAY=1")
+	cmd.Env = scptest.DCMTKEnv()
 	out, runErr := cmd.CombinedOutput()
 	select {
 	case err := <-proxyErr:
