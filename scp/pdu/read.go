@@ -334,98 +334,88 @@ func knownItemType(typ byte) bool {
 func variableItems() string   { return "variable items" }
 func userInformation() string { return "user information" }
 
-func decodeAssociateRQ(body []byte) (PDU, error) {
-	const t = TypeAssociateRQ
-	ver, called, calling, b, err := associateFixed(t, body)
+// associateVariable is what A-ASSOCIATE-RQ and -AC share: the fixed
+// fields and the application context and user information items.
+type associateVariable struct {
+	ver             uint16
+	called, calling string
+	appCtx          string
+	userInfo        UserInformation
+}
+
+// decodeAssociate decodes the body of an A-ASSOCIATE-RQ or -AC (PS3.8
+// 9.3.2, 9.3.3). Presentation context items of type pcType go to onPC;
+// the rest of the item rules are the same for both PDUs.
+func decodeAssociate(t Type, body []byte, pcType byte, onPC func([]byte) error) (associateVariable, error) {
+	var v associateVariable
+	var b []byte
+	var err error
+	v.ver, v.called, v.calling, b, err = associateFixed(t, body)
 	if err != nil {
-		return nil, err
+		return v, err
 	}
-	p := &AssociateRQ{ProtocolVersion: ver, CalledAETitle: called, CallingAETitle: calling}
 	var haveAppCtx, haveUserInfo bool
+	contexts := 0
 	for len(b) > 0 {
 		var it item
 		if it, b, err = nextItem(t, variableItems, b); err != nil {
-			return nil, err
+			return v, err
 		}
-		switch it.typ {
-		case itemApplicationContext:
+		switch {
+		case it.typ == itemApplicationContext:
 			if haveAppCtx {
-				return nil, unexpected(t, "second application context item")
+				return v, unexpected(t, "second application context item")
 			}
 			haveAppCtx = true
-			p.ApplicationContext = trimUID(it.value)
-		case itemPresentationCtxRQ:
-			pc, err := decodePresentationContextRQ(it.value)
-			if err != nil {
-				return nil, err
+			v.appCtx = trimUID(it.value)
+		case it.typ == pcType:
+			if err := onPC(it.value); err != nil {
+				return v, err
 			}
-			p.PresentationContexts = append(p.PresentationContexts, pc)
-		case itemUserInformation:
+			contexts++
+		case it.typ == itemUserInformation:
 			if haveUserInfo {
-				return nil, unexpected(t, "second user information item")
+				return v, unexpected(t, "second user information item")
 			}
 			haveUserInfo = true
-			if err := decodeUserInfo(t, it.value, &p.UserInfo); err != nil {
-				return nil, err
+			if err := decodeUserInfo(t, it.value, &v.userInfo); err != nil {
+				return v, err
 			}
-		default:
-			if knownItemType(it.typ) {
-				return nil, unexpected(t, fmt.Sprintf("item type 0x%02x is not allowed among the variable items", it.typ))
-			}
+		case knownItemType(it.typ):
+			return v, unexpected(t, fmt.Sprintf("item type 0x%02x is not allowed among the variable items", it.typ))
 		}
 	}
-	// PS3.8 9.3.2: "one Application Context Item, one or more Presentation
-	// Context Items, and one User Information Item".
-	if err := checkRequiredItems(t, haveAppCtx, len(p.PresentationContexts), haveUserInfo); err != nil {
+	// PS3.8 9.3.2 (and 9.3.3 for the AC): "one Application Context Item,
+	// one or more Presentation Context Items, and one User Information
+	// Item".
+	return v, checkRequiredItems(t, haveAppCtx, contexts, haveUserInfo)
+}
+
+func decodeAssociateRQ(body []byte) (PDU, error) {
+	p := &AssociateRQ{}
+	v, err := decodeAssociate(TypeAssociateRQ, body, itemPresentationCtxRQ, func(b []byte) error {
+		pc, err := decodePresentationContextRQ(b)
+		p.PresentationContexts = append(p.PresentationContexts, pc)
+		return err
+	})
+	if err != nil {
 		return nil, err
 	}
+	p.ProtocolVersion, p.CalledAETitle, p.CallingAETitle, p.ApplicationContext, p.UserInfo = v.ver, v.called, v.calling, v.appCtx, v.userInfo
 	return p, nil
 }
 
 func decodeAssociateAC(body []byte) (PDU, error) {
-	const t = TypeAssociateAC
-	ver, called, calling, b, err := associateFixed(t, body)
+	p := &AssociateAC{}
+	v, err := decodeAssociate(TypeAssociateAC, body, itemPresentationCtxAC, func(b []byte) error {
+		pc, err := decodePresentationContextAC(b)
+		p.PresentationContexts = append(p.PresentationContexts, pc)
+		return err
+	})
 	if err != nil {
 		return nil, err
 	}
-	p := &AssociateAC{ProtocolVersion: ver, CalledAETitle: called, CallingAETitle: calling}
-	var haveAppCtx, haveUserInfo bool
-	for len(b) > 0 {
-		var it item
-		if it, b, err = nextItem(t, variableItems, b); err != nil {
-			return nil, err
-		}
-		switch it.typ {
-		case itemApplicationContext:
-			if haveAppCtx {
-				return nil, unexpected(t, "second application context item")
-			}
-			haveAppCtx = true
-			p.ApplicationContext = trimUID(it.value)
-		case itemPresentationCtxAC:
-			pc, err := decodePresentationContextAC(it.value)
-			if err != nil {
-				return nil, err
-			}
-			p.PresentationContexts = append(p.PresentationContexts, pc)
-		case itemUserInformation:
-			if haveUserInfo {
-				return nil, unexpected(t, "second user information item")
-			}
-			haveUserInfo = true
-			if err := decodeUserInfo(t, it.value, &p.UserInfo); err != nil {
-				return nil, err
-			}
-		default:
-			if knownItemType(it.typ) {
-				return nil, unexpected(t, fmt.Sprintf("item type 0x%02x is not allowed among the variable items", it.typ))
-			}
-		}
-	}
-	// PS3.8 9.3.3: the same three kinds of item as the RQ.
-	if err := checkRequiredItems(t, haveAppCtx, len(p.PresentationContexts), haveUserInfo); err != nil {
-		return nil, err
-	}
+	p.ProtocolVersion, p.CalledAETitle, p.CallingAETitle, p.ApplicationContext, p.UserInfo = v.ver, v.called, v.calling, v.appCtx, v.userInfo
 	return p, nil
 }
 
