@@ -50,7 +50,12 @@ func TestHelpExitsZeroAndPrintsUsage(t *testing.T) {
 		{"-h prints the usage", []string{"-h"}, exitOK, []string{"Usage: dwiaudit <command> [flags]"}},
 		{"help prints the usage", []string{"help"}, exitOK, []string{"Usage: dwiaudit <command> [flags]"}},
 	}
+	// A flag each command's usage must list.
+	someFlag := map[string]string{"echo": "-calling-ae", "send": "-calling-ae", "serve": "-config", "studies": "-server"}
 	for _, c := range commands() {
+		if someFlag[c.name] == "" {
+			t.Errorf("command %q has no entry in someFlag", c.name)
+		}
 		for _, flag := range []string{"--help", "-h"} {
 			tests = append(tests, struct {
 				name       string
@@ -61,7 +66,7 @@ func TestHelpExitsZeroAndPrintsUsage(t *testing.T) {
 				name:       c.name + " " + flag + " prints the command's usage and flags",
 				args:       []string{c.name, flag},
 				wantCode:   exitOK,
-				wantStderr: []string{"Usage: dwiaudit " + c.name + " ", "Flags:", "-calling-ae"},
+				wantStderr: []string{"Usage: dwiaudit " + c.name + " ", "Flags:", someFlag[c.name]},
 			})
 		}
 	}

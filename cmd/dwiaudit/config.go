@@ -1,0 +1,718 @@
+package main
+
+// The node's configuration: one YAML file, every field optional, decoded
+// over DefaultConfig so that `dwiaudit serve` runs without any file.
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"net"
+	"net/netip"
+	"os"
+	"regexp"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"go.yaml.in/yaml/v3"
+
+	"dwiaudit/scp"
+)
+
+// Defaults of the configuration (README, issue 3).
+const (
+	defaultDataDir     = "./dwiaudit-data"
+	defaultDICOMListen = ":11112" // the registered DICOM port (PS3.8 G.1, from memory)
+	// defaultHTTPListen is loopback: the API is unauthenticated, so
+	// opening it to the network is a decision for whoever deploys it.
+	defaultHTTPListen = "127.0.0.1:8080"
+	defaultTimeZone   = "Local"
+
+	// defaultDiskFloor keeps room for the index, the logs and the
+	// operating system when the archive fills the disk: a full file
+	// system corrupts more than it refuses.
+	defaultDiskFloor = 2 << 30
+
+	// defaultRetention keeps instance files 30 days: long enough to
+	// re-audit a month of studies, short enough that the node is not an
+	// archive (the PACS is).
+	defaultRetention = 30 * 24 * time.Hour
+
+	// defaultPruneInterval: retention works in days, hourly pruning is
+	// plenty.
+	defaultPruneInterval = time.Hour
+)
+
+// Limits of the configuration values.
+const (
+	// maxAssociationsCap bounds limits.max_associations: each association
+	// holds a goroutine, a socket and one PDU buffer (up to
+	// scp.MaxPDULengthCap), so a thousand is already 16 GiB at worst.
+	maxAssociationsCap = 1024
+
+	// minTimeout is the shortest ARTIM, idle or write timeout accepted:
+	// anything shorter breaks ordinary peers on a busy network.
+	minTimeout = time.Second
+
+	// minPruneInterval stops a typo from turning pruning into a busy
+	// loop over the index.
+	minPruneInterval = time.Minute
+
+	// minRetention is the shortest retention accepted: the audit reads
+	// the instance files after a series settles, minutes to hours after
+	// it arrived.
+	minRetention = time.Hour
+
+	// maxScannerLabel is the longest scanner label: it becomes a metrics
+	// label value and part of report file names.
+	maxScannerLabel = 32
+)
+
+// scannerLabelPattern is what a scanner label may look like: lower-case
+// letters, digits, '.', '_' and '-', starting with a letter or digit, so
+// it is safe as a metrics label value and in a file name.
+var scannerLabelPattern = regexp.MustCompile(`^[a-z0-9][a-z0-9._-]*$`)
+
+// Config is the whole configuration file.
+type Config struct {
+	Node      NodeConfig      `yaml:"node"`
+	Peers     []PeerConfig    `yaml:"peers"`
+	Limits    LimitsConfig    `yaml:"limits"`
+	Retention RetentionConfig `yaml:"retention"`
+	Log       LogConfig       `yaml:"log"`
+}
+
+// NodeConfig is who and where the node is.
+type NodeConfig struct {
+	AETitle     string `yaml:"ae_title"`     // our AE title; the called AE title must match it
+	DICOMListen string `yaml:"dicom_listen"` // host:port of the DICOM acceptor
+	HTTPListen  string `yaml:"http_listen"`  // host:port of the HTTP API and health checks
+	DataDir     string `yaml:"data_dir"`     // the data folder: instance files and index
+	TimeZone    string `yaml:"time_zone"`    // IANA name, "Local" or "UTC": what a receive day is
+}
+
+// PeerConfig is one calling AE title allowed to associate.
+type PeerConfig struct {
+	AETitle string `yaml:"ae_title"`
+	// Scanner is the label the node uses for the peer in metrics and
+	// reports.
+	Scanner string `yaml:"scanner"`
+	// Networks, when set, are the source networks (CIDR) the peer may
+	// associate from; an association from anywhere else is rejected as
+	// if its calling AE title were unknown.
+	Networks []string `yaml:"networks"`
+}
+
+// LimitsConfig bounds what peers can make the node do.
+type LimitsConfig struct {
+	MaxAssociations int      `yaml:"max_associations"`
+	MaxPDULength    ByteSize `yaml:"max_pdu_length"` // the Maximum Length we advertise (PS3.8 D.1)
+	ARTIMTimeout    Duration `yaml:"artim_timeout"`  // PS3.8 9.1.5
+	IdleTimeout     Duration `yaml:"idle_timeout"`
+	WriteTimeout    Duration `yaml:"write_timeout"`
+	// DiskFloor is the free space below which C-STOREs are refused with
+	// A700 (out of resources).
+	DiskFloor ByteSize `yaml:"disk_floor"`
+}
+
+// RetentionConfig says how long instance files are kept.
+type RetentionConfig struct {
+	InstanceFiles Duration `yaml:"instance_files"`
+	PruneInterval Duration `yaml:"prune_interval"`
+}
+
+// LogConfig shapes the log.
+type LogConfig struct {
+	Level  LogLevel  `yaml:"level"`
+	Format LogFormat `yaml:"format"`
+}
+
+// DefaultConfig returns the configuration `dwiaudit serve` runs on
+// without a file. Each call returns a fresh value.
+func DefaultConfig() Config {
+	return Config{
+		Node: NodeConfig{
+			AETitle:     scp.DefaultAETitle,
+			DICOMListen: defaultDICOMListen,
+			HTTPListen:  defaultHTTPListen,
+			DataDir:     defaultDataDir,
+			TimeZone:    defaultTimeZone,
+		},
+		Limits: LimitsConfig{
+			MaxAssociations: scp.DefaultMaxAssociations,
+			MaxPDULength:    scp.DefaultMaxPDULength,
+			ARTIMTimeout:    Duration(scp.DefaultARTIMTimeout),
+			IdleTimeout:     Duration(scp.DefaultIdleTimeout),
+			WriteTimeout:    Duration(scp.DefaultWriteTimeout),
+			DiskFloor:       defaultDiskFloor,
+		},
+		Retention: RetentionConfig{
+			InstanceFiles: Duration(defaultRetention),
+			PruneInterval: Duration(defaultPruneInterval),
+		},
+		Log: LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
+	}
+}
+
+// ConfigError lists every problem found in a configuration. Each problem
+// names its field path, e.g. "limits.max_pdu_length: 1024 is below 4096".
+type ConfigError struct {
+	File     string // the file the configuration came from; "" for flags and defaults
+	Problems []string
+}
+
+func (e *ConfigError) Error() string {
+	src := "configuration"
+	if e.File != "" {
+		src = e.File
+	}
+	return fmt.Sprintf("%s: %d problem(s):\n  %s", src, len(e.Problems), strings.Join(e.Problems, "\n  "))
+}
+
+// Validate reports every problem of c at once, or nil. The error is a
+// *ConfigError.
+func (c Config) Validate() error {
+	var p problems
+
+	n := c.Node
+	if err := scp.ValidateAETitle(n.AETitle); err != nil {
+		p.addf("node.ae_title", "%v", err)
+	}
+	p.listenAddr("node.dicom_listen", n.DICOMListen)
+	p.listenAddr("node.http_listen", n.HTTPListen)
+	if n.DataDir == "" {
+		p.addf("node.data_dir", "empty")
+	}
+	if _, err := loadLocation(n.TimeZone); err != nil {
+		p.addf("node.time_zone", "%v", err)
+	}
+
+	seen := map[string]int{}
+	for i, peer := range c.Peers {
+		f := fmt.Sprintf("peers[%d]", i)
+		if err := scp.ValidateAETitle(peer.AETitle); err != nil {
+			p.addf(f+".ae_title", "%v", err)
+		} else if j, dup := seen[strings.TrimSpace(peer.AETitle)]; dup {
+			p.addf(f+".ae_title", "duplicate of peers[%d].ae_title %q", j, peer.AETitle)
+		} else {
+			seen[strings.TrimSpace(peer.AETitle)] = i
+		}
+		switch {
+		case peer.Scanner == "":
+			p.addf(f+".scanner", "missing: every peer needs a scanner label")
+		case len(peer.Scanner) > maxScannerLabel:
+			p.addf(f+".scanner", "%q is longer than %d characters", peer.Scanner, maxScannerLabel)
+		case !scannerLabelPattern.MatchString(peer.Scanner):
+			p.addf(f+".scanner", "%q: use lower-case letters, digits, '.', '_' and '-', starting with a letter or digit", peer.Scanner)
+		}
+		for j, cidr := range peer.Networks {
+			if _, err := netip.ParsePrefix(cidr); err != nil {
+				p.addf(fmt.Sprintf("%s.networks[%d]", f, j), "%q is not a network in CIDR notation (e.g. 10.20.0.0/16)", cidr)
+			}
+		}
+	}
+
+	l := c.Limits
+	switch {
+	case l.MaxAssociations < 1:
+		p.addf("limits.max_associations", "%d is below 1", l.MaxAssociations)
+	case l.MaxAssociations > maxAssociationsCap:
+		p.addf("limits.max_associations", "%d is above %d", l.MaxAssociations, maxAssociationsCap)
+	}
+	switch {
+	case l.MaxPDULength < scp.MinPDULength:
+		p.addf("limits.max_pdu_length", "%d is below %d", uint64(l.MaxPDULength), scp.MinPDULength)
+	case l.MaxPDULength > scp.MaxPDULengthCap:
+		p.addf("limits.max_pdu_length", "%d is above %d", uint64(l.MaxPDULength), scp.MaxPDULengthCap)
+	}
+	p.atLeast("limits.artim_timeout", l.ARTIMTimeout, minTimeout)
+	p.atLeast("limits.idle_timeout", l.IdleTimeout, minTimeout)
+	p.atLeast("limits.write_timeout", l.WriteTimeout, minTimeout)
+
+	p.atLeast("retention.instance_files", c.Retention.InstanceFiles, minRetention)
+	p.atLeast("retention.prune_interval", c.Retention.PruneInterval, minPruneInterval)
+	return p.err("")
+}
+
+// problems collects validation problems in order.
+type problems []string
+
+func (p *problems) addf(field, format string, args ...any) {
+	*p = append(*p, field+": "+fmt.Sprintf(format, args...))
+}
+
+func (p *problems) atLeast(field string, d Duration, min time.Duration) {
+	if time.Duration(d) < min {
+		p.addf(field, "%v is below %v", d, Duration(min))
+	}
+}
+
+// listenAddr checks a host:port to listen on; port 0 asks the system for
+// a free one.
+func (p *problems) listenAddr(field, addr string) {
+	_, port, err := net.SplitHostPort(addr)
+	if err != nil {
+		p.addf(field, "%q is not host:port", addr)
+		return
+	}
+	if n, err := strconv.ParseUint(port, 10, 16); err != nil || n > math.MaxUint16 {
+		p.addf(field, "%q: port %q is not a number in 0..65535", addr, port)
+	}
+}
+
+func (p problems) err(file string) error {
+	if len(p) == 0 {
+		return nil
+	}
+	return &ConfigError{File: file, Problems: slices.Clone(p)}
+}
+
+// loadLocation is time.LoadLocation with an error that says what to do.
+func loadLocation(name string) (*time.Location, error) {
+	if name == "" {
+		return nil, errors.New(`empty; use an IANA name such as "Europe/London", "Local" or "UTC"`)
+	}
+	loc, err := time.LoadLocation(name)
+	if err != nil {
+		return nil, fmt.Errorf("unknown time zone %q (an IANA name such as \"Europe/London\", \"Local\" or \"UTC\"; is the system time zone database, Debian package tzdata, installed?)", name)
+	}
+	return loc, nil
+}
+
+// maxConfigFileSize bounds the configuration file read: a real one is a
+// few kilobytes, and a YAML alias bomb should not get a chance.
+const maxConfigFileSize = 1 << 20
+
+// LoadConfigFile reads a configuration file over DefaultConfig and
+// validates it. Every problem, of YAML syntax, unknown keys, types or
+// values, comes back in one *ConfigError.
+func LoadConfigFile(path string) (Config, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return Config{}, err
+	}
+	defer f.Close()
+	b, err := io.ReadAll(io.LimitReader(f, maxConfigFileSize+1))
+	if err != nil {
+		return Config{}, err
+	}
+	if len(b) > maxConfigFileSize {
+		return Config{}, &ConfigError{File: path, Problems: []string{fmt.Sprintf("larger than %v", ByteSize(maxConfigFileSize))}}
+	}
+	return ParseConfig(path, b)
+}
+
+// ParseConfig decodes YAML over DefaultConfig and validates the result.
+// Unknown keys are errors (a misspelt key would otherwise silently keep
+// its default). name labels the errors.
+func ParseConfig(name string, b []byte) (Config, error) {
+	c := DefaultConfig()
+	var root yaml.Node
+	if err := yaml.Unmarshal(b, &root); err != nil {
+		return c, &ConfigError{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
+	}
+	if len(root.Content) == 0 {
+		// An empty file, or comments only: the defaults.
+		return c, c.Validate()
+	}
+	var p problems
+	dec := yaml.NewDecoder(bytes.NewReader(b))
+	dec.KnownFields(true)
+	if err := dec.Decode(&c); err != nil {
+		var te *yaml.TypeError
+		if !errors.As(err, &te) {
+			return c, &ConfigError{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
+		}
+		idx := indexFields(&root)
+		for _, msg := range te.Errors {
+			p = append(p, idx.describe(msg))
+		}
+	}
+	// Validate what did decode too, so one run lists every problem.
+	var verr *ConfigError
+	if err := c.Validate(); errors.As(err, &verr) {
+		p = append(p, verr.Problems...)
+	}
+	return c, p.err(name)
+}
+
+// fieldIndex maps the lines of a YAML document to the field paths on
+// them, so that the decoder's "line N: ..." messages can name the field.
+type fieldIndex map[int][]fieldAt
+
+type fieldAt struct {
+	path  string // e.g. "peers[1].ae_title"
+	key   string // the last key, e.g. "ae_title"
+	value string // the scalar value, if any
+}
+
+func indexFields(root *yaml.Node) fieldIndex {
+	idx := fieldIndex{}
+	var walk func(n *yaml.Node, path string)
+	walk = func(n *yaml.Node, path string) {
+		switch n.Kind {
+		case yaml.DocumentNode:
+			for _, c := range n.Content {
+				walk(c, path)
+			}
+		case yaml.MappingNode:
+			for i := 0; i+1 < len(n.Content); i += 2 {
+				k, v := n.Content[i], n.Content[i+1]
+				p := k.Value
+				if path != "" {
+					p = path + "." + k.Value
+				}
+				idx[k.Line] = append(idx[k.Line], fieldAt{path: p, key: k.Value, value: v.Value})
+				if v.Line != k.Line {
+					idx[v.Line] = append(idx[v.Line], fieldAt{path: p, key: k.Value, value: v.Value})
+				}
+				walk(v, p)
+			}
+		case yaml.SequenceNode:
+			for i, c := range n.Content {
+				p := fmt.Sprintf("%s[%d]", path, i)
+				if c.Kind == yaml.ScalarNode {
+					idx[c.Line] = append(idx[c.Line], fieldAt{path: p, value: c.Value})
+				}
+				walk(c, p)
+			}
+		}
+	}
+	walk(root, "")
+	return idx
+}
+
+var (
+	// yamlLinePrefix matches the "line N: " the decoder puts before each
+	// of its messages (go.yaml.in/yaml/v3 decode.go).
+	yamlLinePrefix = regexp.MustCompile(`^line (\d+): (.*)$`)
+	// yamlUnknownField matches its KnownFields message.
+	yamlUnknownField = regexp.MustCompile(`^field (\S+) not found in type \S+$`)
+	// yamlQuoted finds the value the decoder quotes in back-quotes.
+	yamlQuoted = regexp.MustCompile("`([^`]*)`")
+)
+
+// describe rewrites one decoder message as "field: problem (line N)".
+// When the line holds several fields (flow style), the key or value the
+// message names picks one; failing that, the line number alone is kept.
+func (idx fieldIndex) describe(msg string) string {
+	m := yamlLinePrefix.FindStringSubmatch(msg)
+	if m == nil {
+		return msg
+	}
+	line, _ := strconv.Atoi(m[1])
+	text := m[2]
+	cands := idx[line]
+	if u := yamlUnknownField.FindStringSubmatch(text); u != nil {
+		text = "unknown field"
+		cands = slices.DeleteFunc(slices.Clone(cands), func(f fieldAt) bool { return f.key != u[1] })
+	} else if q := yamlQuoted.FindStringSubmatch(text); q != nil && len(cands) > 1 {
+		cands = slices.DeleteFunc(slices.Clone(cands), func(f fieldAt) bool { return f.value != q[1] })
+	}
+	if len(cands) != 1 {
+		return fmt.Sprintf("line %d: %s", line, text)
+	}
+	return fmt.Sprintf("%s: %s (line %d)", cands[0].path, text, line)
+}
+
+// typeError is what our scalar types return from UnmarshalYAML: the
+// decoder then records the problem and goes on with the other fields.
+func typeError(n *yaml.Node, format string, args ...any) error {
+	return &yaml.TypeError{Errors: []string{fmt.Sprintf("line %d: cannot use `%s`: %s", n.Line, n.Value, fmt.Sprintf(format, args...))}}
+}
+
+// scalar returns the text of a scalar node, or an error for a mapping or
+// sequence where a single value belongs.
+func scalar(n *yaml.Node) (string, error) {
+	if n.Kind != yaml.ScalarNode {
+		return "", &yaml.TypeError{Errors: []string{fmt.Sprintf("line %d: want a single value", n.Line)}}
+	}
+	return n.Value, nil
+}
+
+// Duration is a time.Duration written as Go writes it ("30s", "2m",
+// "720h").
+type Duration time.Duration
+
+// String returns the Go form, e.g. "2m0s".
+func (d Duration) String() string { return time.Duration(d).String() }
+
+// UnmarshalText parses the Go form.
+func (d *Duration) UnmarshalText(b []byte) error {
+	v, err := time.ParseDuration(string(b))
+	if err != nil {
+		return fmt.Errorf("%q is not a duration such as 30s, 2m or 720h", b)
+	}
+	*d = Duration(v)
+	return nil
+}
+
+// UnmarshalYAML parses the Go form.
+func (d *Duration) UnmarshalYAML(n *yaml.Node) error {
+	s, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := time.ParseDuration(s)
+	if err != nil {
+		return typeError(n, "not a duration such as 30s, 2m or 720h")
+	}
+	*d = Duration(v)
+	return nil
+}
+
+// MarshalYAML writes the Go form.
+func (d Duration) MarshalYAML() (any, error) { return d.String(), nil }
+
+// ByteSize is a number of bytes, written plain or with a binary suffix
+// ("262144", "256KiB", "2GiB").
+type ByteSize uint64
+
+// byteUnits are the suffixes ByteSize accepts, largest first. Only the
+// binary (IEC 80000-13) ones: "GB" would leave it open whether 10^9 or
+// 2^30 was meant.
+var byteUnits = []struct {
+	suffix string
+	size   uint64
+}{
+	{"TiB", 1 << 40},
+	{"GiB", 1 << 30},
+	{"MiB", 1 << 20},
+	{"KiB", 1 << 10},
+	{"B", 1},
+}
+
+// String returns the largest exact binary unit, e.g. "2GiB", "262144" for
+// a plain byte count that is no whole number of KiB.
+func (s ByteSize) String() string {
+	for _, u := range byteUnits[:len(byteUnits)-1] {
+		if s != 0 && uint64(s)%u.size == 0 {
+			return strconv.FormatUint(uint64(s)/u.size, 10) + u.suffix
+		}
+	}
+	return strconv.FormatUint(uint64(s), 10)
+}
+
+// ParseByteSize parses a whole number of bytes with an optional suffix
+// B, KiB, MiB, GiB or TiB.
+func ParseByteSize(s string) (ByteSize, error) {
+	t := strings.TrimSpace(s)
+	mult := uint64(1)
+	for _, u := range byteUnits {
+		if strings.HasSuffix(t, u.suffix) {
+			t, mult = strings.TrimSpace(strings.TrimSuffix(t, u.suffix)), u.size
+			break
+		}
+	}
+	n, err := strconv.ParseUint(t, 10, 64)
+	if err != nil || n > math.MaxUint64/mult {
+		return 0, fmt.Errorf("%q is not a size such as 262144, 256KiB or 2GiB", s)
+	}
+	return ByteSize(n * mult), nil
+}
+
+// UnmarshalText parses like ParseByteSize.
+func (s *ByteSize) UnmarshalText(b []byte) error {
+	v, err := ParseByteSize(string(b))
+	if err != nil {
+		return err
+	}
+	*s = v
+	return nil
+}
+
+// UnmarshalYAML parses like ParseByteSize.
+func (s *ByteSize) UnmarshalYAML(n *yaml.Node) error {
+	t, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := ParseByteSize(t)
+	if err != nil {
+		return typeError(n, "not a size such as 262144, 256KiB or 2GiB")
+	}
+	*s = v
+	return nil
+}
+
+// MarshalYAML writes the String form.
+func (s ByteSize) MarshalYAML() (any, error) { return s.String(), nil }
+
+// LogLevel is a slog.Level written as slog writes it ("debug", "info",
+// "warn", "error", optionally with an offset such as "info+2").
+type LogLevel slog.Level
+
+// String returns slog's name in lower case, e.g. "info".
+func (l LogLevel) String() string { return strings.ToLower(slog.Level(l).String()) }
+
+// UnmarshalText parses slog's names, in any case.
+func (l *LogLevel) UnmarshalText(b []byte) error {
+	var v slog.Level
+	if err := v.UnmarshalText(b); err != nil {
+		return fmt.Errorf("%q is not a log level: use debug, info, warn or error", b)
+	}
+	*l = LogLevel(v)
+	return nil
+}
+
+// UnmarshalYAML parses slog's names, in any case.
+func (l *LogLevel) UnmarshalYAML(n *yaml.Node) error {
+	s, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	var v slog.Level
+	if err := v.UnmarshalText([]byte(s)); err != nil {
+		return typeError(n, "not a log level: use debug, info, warn or error")
+	}
+	*l = LogLevel(v)
+	return nil
+}
+
+// MarshalYAML writes the String form.
+func (l LogLevel) MarshalYAML() (any, error) { return l.String(), nil }
+
+// LogFormat is how log lines are written.
+type LogFormat int
+
+// Log formats.
+const (
+	LogText LogFormat = iota // slog.TextHandler: key=value, for people and journald
+	LogJSON                  // slog.JSONHandler: one object a line, for log shippers
+)
+
+// String returns the configuration name, "text" or "json".
+func (f LogFormat) String() string {
+	switch f {
+	case LogText:
+		return "text"
+	case LogJSON:
+		return "json"
+	}
+	return fmt.Sprintf("LogFormat(%d)", int(f))
+}
+
+// ParseLogFormat parses "text" or "json".
+func ParseLogFormat(s string) (LogFormat, error) {
+	switch s {
+	case "text":
+		return LogText, nil
+	case "json":
+		return LogJSON, nil
+	}
+	return 0, fmt.Errorf("%q is not a log format: use text or json", s)
+}
+
+// UnmarshalText parses "text" or "json".
+func (f *LogFormat) UnmarshalText(b []byte) error {
+	v, err := ParseLogFormat(string(b))
+	if err != nil {
+		return err
+	}
+	*f = v
+	return nil
+}
+
+// UnmarshalYAML parses "text" or "json".
+func (f *LogFormat) UnmarshalYAML(n *yaml.Node) error {
+	s, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := ParseLogFormat(s)
+	if err != nil {
+		return typeError(n, "not a log format: use text or json")
+	}
+	*f = v
+	return nil
+}
+
+// MarshalYAML writes the String form.
+func (f LogFormat) MarshalYAML() (any, error) { return f.String(), nil }
+
+// newLogger builds the node's logger from the log configuration.
+func newLogger(w io.Writer, c LogConfig) *slog.Logger {
+	opts := &slog.HandlerOptions{Level: slog.Level(c.Level)}
+	if c.Format == LogJSON {
+		return slog.New(slog.NewJSONHandler(w, opts))
+	}
+	return slog.New(slog.NewTextHandler(w, opts))
+}
+
+// peerTable answers the questions the acceptor and the ingest adapter
+// ask about peers: may this calling AE title associate from that
+// address, and which scanner label does it carry.
+type peerTable struct {
+	byAE map[string]peerEntry // calling AE title, trimmed -> entry; read-only after newPeerTable
+}
+
+type peerEntry struct {
+	scanner  string
+	networks []netip.Prefix // empty: any source address
+}
+
+// newPeerTable builds the table from validated peers.
+func newPeerTable(peers []PeerConfig) *peerTable {
+	t := &peerTable{byAE: make(map[string]peerEntry, len(peers))}
+	for _, p := range peers {
+		e := peerEntry{scanner: p.Scanner}
+		for _, n := range p.Networks {
+			if pfx, err := netip.ParsePrefix(n); err == nil {
+				e.networks = append(e.networks, pfx.Masked())
+			}
+		}
+		t.byAE[strings.TrimSpace(p.AETitle)] = e
+	}
+	return t
+}
+
+// callingAETitles lists the allowed calling AE titles for
+// scp.Server.AllowedCallingAETitles; nil (any) when no peer is
+// configured.
+func (t *peerTable) callingAETitles() []string {
+	if len(t.byAE) == 0 {
+		return nil
+	}
+	out := make([]string, 0, len(t.byAE))
+	for ae := range t.byAE {
+		out = append(out, ae)
+	}
+	slices.Sort(out)
+	return out
+}
+
+// allow is scp.Server.AllowCalling: a peer with networks may associate
+// only from inside one of them.
+func (t *peerTable) allow(callingAE string, remote net.Addr) bool {
+	if len(t.byAE) == 0 {
+		return true
+	}
+	e, ok := t.byAE[strings.TrimSpace(callingAE)]
+	if !ok {
+		return false
+	}
+	if len(e.networks) == 0 {
+		return true
+	}
+	var addr netip.Addr
+	if ta, ok := remote.(*net.TCPAddr); ok {
+		addr = ta.AddrPort().Addr()
+	} else if ap, err := netip.ParseAddrPort(remote.String()); err == nil {
+		addr = ap.Addr()
+	} else {
+		return false
+	}
+	addr = addr.Unmap() // an IPv4 peer on a dual-stack socket
+	return slices.ContainsFunc(e.networks, func(p netip.Prefix) bool { return p.Contains(addr) })
+}
+
+// scanner returns the scanner label of a calling AE title; without a
+// configured peer it is "" (unknown scanner).
+func (t *peerTable) scanner(callingAE string) string {
+	return t.byAE[strings.TrimSpace(callingAE)].scanner
+}

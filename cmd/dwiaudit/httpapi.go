@@ -1,0 +1,208 @@
+package main
+
+// The node's HTTP API: health checks for the service manager and load
+// balancer, and the list of what is stored. Every answer, errors
+// included, is JSON.
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net/http"
+	"time"
+
+	"dwiaudit/store"
+)
+
+// dayLayout is the form of a receive day in the API and the CLI.
+const dayLayout = "2006-01-02"
+
+// studyLister is what the HTTP API needs of the store.
+type studyLister interface {
+	Studies(day string) ([]store.Study, error)
+	Ping() error
+}
+
+// api serves the HTTP endpoints.
+type api struct {
+	store   studyLister
+	loc     *time.Location // receive times are shown in the node's time zone
+	dicomUp func() bool    // whether the DICOM acceptor is serving
+	log     *slog.Logger
+}
+
+func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger) http.Handler {
+	a := &api{store: st, loc: loc, dicomUp: dicomUp, log: log}
+	mux := http.NewServeMux()
+	// Patterns without a method, and getOnly inside, so that a wrong
+	// method gets a JSON 405 like every other error.
+	mux.HandleFunc("/healthz", getOnly(a.healthz))
+	mux.HandleFunc("/readyz", getOnly(a.readyz))
+	mux.HandleFunc("/api/v1/studies", getOnly(a.studies))
+	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
+		writeError(w, http.StatusNotFound, fmt.Sprintf("no such endpoint %q", r.URL.Path))
+	})
+	return mux
+}
+
+func getOnly(h http.HandlerFunc) http.HandlerFunc {
+	return func(w http.ResponseWriter, r *http.Request) {
+		if r.Method != http.MethodGet && r.Method != http.MethodHead {
+			w.Header().Set("Allow", "GET, HEAD")
+			writeError(w, http.StatusMethodNotAllowed, "method "+r.Method+" not allowed; use GET")
+			return
+		}
+		h(w, r)
+	}
+}
+
+// errorBody is the body of every error answer.
+type errorBody struct {
+	Error  string `json:"error"`
+	Status int    `json:"status"`
+}
+
+func writeError(w http.ResponseWriter, status int, msg string) {
+	writeJSON(w, status, errorBody{Error: msg, Status: status})
+}
+
+func writeJSON(w http.ResponseWriter, status int, v any) {
+	w.Header().Set("Content-Type", "application/json; charset=utf-8")
+	w.Header().Set("Cache-Control", "no-store")
+	w.WriteHeader(status)
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	enc.Encode(v) // a failed write means the client went away
+}
+
+// healthBody answers /healthz and /readyz.
+type healthBody struct {
+	Status string            `json:"status"`           // "ok", "ready" or "not ready"
+	Checks map[string]string `json:"checks,omitempty"` // check -> "ok" or the problem
+}
+
+// healthz says the process is alive and serving HTTP; nothing more, so
+// that a service manager restarts only what is really stuck.
+func (a *api) healthz(w http.ResponseWriter, r *http.Request) {
+	writeJSON(w, http.StatusOK, healthBody{Status: "ok"})
+}
+
+// readyz says whether the node can take studies: the index answers and
+// the DICOM acceptor is listening.
+func (a *api) readyz(w http.ResponseWriter, r *http.Request) {
+	body := healthBody{Status: "ready", Checks: map[string]string{"store": "ok", "dicom_listener": "ok"}}
+	status := http.StatusOK
+	if err := a.store.Ping(); err != nil {
+		body.Checks["store"] = err.Error()
+		body.Status, status = "not ready", http.StatusServiceUnavailable
+	}
+	if !a.dicomUp() {
+		body.Checks["dicom_listener"] = "not listening"
+		body.Status, status = "not ready", http.StatusServiceUnavailable
+	}
+	writeJSON(w, status, body)
+}
+
+// studies lists the stored studies, all of them or those with an
+// instance received on ?day=YYYY-MM-DD (in the node's time zone).
+func (a *api) studies(w http.ResponseWriter, r *http.Request) {
+	day := r.URL.Query().Get("day")
+	if day != "" {
+		if _, err := time.Parse(dayLayout, day); err != nil {
+			writeError(w, http.StatusBadRequest, fmt.Sprintf("day %q is not YYYY-MM-DD", day))
+			return
+		}
+	}
+	list, err := a.store.Studies(day)
+	if errors.Is(err, store.ErrClosed) {
+		writeError(w, http.StatusServiceUnavailable, "the node is stopping")
+		return
+	}
+	if err != nil {
+		a.log.Error("listing studies failed", "err", err)
+		writeError(w, http.StatusInternalServerError, "listing studies failed: "+err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, studiesBody(day, list, a.loc))
+}
+
+// StudiesResponse is the body of GET /api/v1/studies and the JSON output
+// of `dwiaudit studies`. Patient names and IDs are left out: the list is
+// for finding what arrived, and the API has no authentication.
+type StudiesResponse struct {
+	Day     string      `json:"day,omitempty"` // the ?day asked for, if any
+	Studies []StudyJSON `json:"studies"`       // oldest last reception first
+	// Totals over Studies.
+	SeriesCount int   `json:"series_count"`
+	Instances   int   `json:"instances"`
+	Bytes       int64 `json:"bytes"`
+}
+
+// StudyJSON is one study with its series.
+type StudyJSON struct {
+	StudyInstanceUID string       `json:"study_instance_uid"`
+	StudyDate        string       `json:"study_date,omitempty"` // DA as in the data set, YYYYMMDD
+	StudyTime        string       `json:"study_time,omitempty"` // TM as in the data set
+	AccessionNumber  string       `json:"accession_number,omitempty"`
+	Instances        int          `json:"instances"`
+	Bytes            int64        `json:"bytes"`
+	FirstReceived    time.Time    `json:"first_received"`
+	LastReceived     time.Time    `json:"last_received"`
+	Series           []SeriesJSON `json:"series"`
+}
+
+// SeriesJSON is one series of a study.
+type SeriesJSON struct {
+	SeriesInstanceUID string    `json:"series_instance_uid"`
+	SeriesNumber      int       `json:"series_number"`
+	Modality          string    `json:"modality,omitempty"`
+	SeriesDescription string    `json:"series_description,omitempty"`
+	Scanner           string    `json:"scanner,omitempty"` // the peer's scanner label from the configuration
+	CallingAETitle    string    `json:"calling_ae_title,omitempty"`
+	StationName       string    `json:"station_name,omitempty"`
+	Manufacturer      string    `json:"manufacturer,omitempty"`
+	Instances         int       `json:"instances"`
+	Bytes             int64     `json:"bytes"`
+	FirstReceived     time.Time `json:"first_received"`
+	LastReceived      time.Time `json:"last_received"`
+}
+
+// studiesBody converts the store's studies, with receive times in loc.
+func studiesBody(day string, list []store.Study, loc *time.Location) StudiesResponse {
+	out := StudiesResponse{Day: day, Studies: make([]StudyJSON, 0, len(list))}
+	for _, st := range list {
+		sj := StudyJSON{
+			StudyInstanceUID: st.StudyInstanceUID,
+			StudyDate:        st.StudyDate,
+			StudyTime:        st.StudyTime,
+			AccessionNumber:  st.AccessionNumber,
+			FirstReceived:    st.FirstReceived.In(loc),
+			LastReceived:     st.LastReceived.In(loc),
+			Series:           make([]SeriesJSON, 0, len(st.Series)),
+		}
+		for _, se := range st.Series {
+			sj.Series = append(sj.Series, SeriesJSON{
+				SeriesInstanceUID: se.SeriesInstanceUID,
+				SeriesNumber:      se.SeriesNumber,
+				Modality:          se.Modality,
+				SeriesDescription: se.SeriesDescription,
+				Scanner:           se.ScannerLabel,
+				CallingAETitle:    se.CallingAETitle,
+				StationName:       se.StationName,
+				Manufacturer:      se.Manufacturer,
+				Instances:         se.Instances,
+				Bytes:             se.Bytes,
+				FirstReceived:     se.FirstReceived.In(loc),
+				LastReceived:      se.LastReceived.In(loc),
+			})
+			sj.Instances += se.Instances
+			sj.Bytes += se.Bytes
+		}
+		out.Studies = append(out.Studies, sj)
+		out.SeriesCount += len(sj.Series)
+		out.Instances += sj.Instances
+		out.Bytes += sj.Bytes
+	}
+	return out
+}

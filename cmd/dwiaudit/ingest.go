@@ -1,0 +1,65 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"io"
+
+	"dwiaudit/scp"
+	"dwiaudit/scp/dimse"
+	"dwiaudit/store"
+)
+
+// instancePutter is what the ingest adapter needs of the store.
+type instancePutter interface {
+	Put(ctx context.Context, req store.PutRequest, data io.Reader) (store.InstanceRef, error)
+}
+
+// ingest is the acceptor's StoreHandler: it streams each C-STORE data set
+// into the store, which returns only once the instance is durable, so a
+// success status is never sent for something the node does not have.
+type ingest struct {
+	store instancePutter
+	peers *peerTable
+}
+
+// HandleStore implements scp.StoreHandler.
+func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
+	_, err := h.store.Put(ctx, store.PutRequest{
+		SOPClassUID:       req.SOPClassUID,
+		SOPInstanceUID:    req.SOPInstanceUID,
+		TransferSyntaxUID: req.TransferSyntaxUID,
+		CallingAETitle:    req.CallingAETitle,
+		ScannerLabel:      h.peers.scanner(req.CallingAETitle),
+	}, req.Data)
+	return storeStatus(err)
+}
+
+// storeStatus is the one place where a store error becomes the DIMSE
+// status of a C-STORE-RSP (dimse.StatusOf then reads it). The comment
+// goes to the peer, so it names the problem and never a patient.
+func storeStatus(err error) error {
+	switch {
+	case err == nil:
+		return nil
+	case errors.Is(err, scp.ErrIncomplete):
+		// The peer stopped before the last fragment; nothing was kept.
+		// The association is usually gone, so this rarely reaches it.
+		return dimse.NewStatusError(dimse.StatusProcessingFailure, "data set incomplete; nothing stored", err)
+	case errors.Is(err, store.ErrOutOfSpace):
+		// PS3.4 B.2.3 Table B.2-1: A7xx "Refused: Out of Resources".
+		return dimse.NewStatusError(dimse.StatusOutOfResources, "out of disk space; nothing stored, try again later", err)
+	case errors.Is(err, store.ErrInvalidUID):
+		// A UID breaking the UI rules (PS3.5 9.1) is a data set the
+		// IOD does not allow: PS3.4 B.2.3 Table B.2-1, A9xx "Error:
+		// Data Set does not match SOP Class". The store's message
+		// says which UID.
+		return dimse.Errorf(dimse.StatusDataSetDoesNotMatchSOPClass, "%w", err)
+	case errors.Is(err, store.ErrUnreadable):
+		// PS3.4 B.2.3 Table B.2-1: Cxxx "Error: Cannot understand".
+		return dimse.NewStatusError(dimse.StatusCannotUnderstand, "cannot read the data set header; nothing stored", err)
+	}
+	// Closed (shutting down), read-only, I/O errors: PS3.7 C.5, 0110H
+	// "Processing failure".
+	return dimse.NewStatusError(dimse.StatusProcessingFailure, "storage failed; nothing stored", err)
+}

@@ -1,0 +1,282 @@
+package main
+
+// `dwiaudit serve`: the running node. Wiring, in order: configuration ->
+// store -> DICOM acceptor -> HTTP server -> pruning; and back down on
+// SIGINT/SIGTERM.
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"log/slog"
+	"net"
+	"net/http"
+	"path/filepath"
+	"slices"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"dwiaudit/scp"
+	"dwiaudit/store"
+)
+
+// Timeouts of the service.
+const (
+	// shutdownGrace is how long a stop waits for C-STOREs in flight: a
+	// 1 GiB Enhanced MR object takes about ten seconds on a 1 Gbit/s
+	// link, and systemd's default stop timeout (90 s, from memory) must
+	// not cut the store's own close short.
+	shutdownGrace = time.Minute
+
+	// httpShutdownGrace bounds the wait for HTTP requests in flight; they
+	// are index reads of milliseconds.
+	httpShutdownGrace = 5 * time.Second
+
+	// HTTP server deadlines, as net/http recommends setting for servers
+	// reachable by others: a slow client must not hold a goroutine.
+	httpReadHeaderTimeout = 10 * time.Second
+	httpReadTimeout       = 30 * time.Second
+	httpWriteTimeout      = time.Minute
+	httpIdleTimeout       = 2 * time.Minute
+)
+
+// Lines printed on stdout once the node listens, with the real addresses
+// (a ":0" port resolved), for people and for tests and scripts.
+const (
+	listeningDICOMPrefix = "dicom listening on "
+	listeningHTTPPrefix  = "http listening on http://"
+)
+
+func runServe(ctx context.Context, env *cliEnv, args []string) int {
+	fs := newFlagSet(env, "serve", "[flags]")
+	configPath := fs.String("config", "", "configuration file (YAML); without one, the defaults")
+	fs.String("data", "", "data folder (overrides node.data_dir; default "+defaultDataDir+")")
+	fs.String("listen", "", "DICOM listen address host:port (overrides node.dicom_listen; default "+defaultDICOMListen+")")
+	fs.String("http", "", "HTTP listen address host:port (overrides node.http_listen; default "+defaultHTTPListen+")")
+	fs.String("ae-title", "", "our AE title (overrides node.ae_title; default "+scp.DefaultAETitle+")")
+	fs.String("log-format", "", "text or json (overrides log.format; default text)")
+	fs.String("log-level", "", "debug, info, warn or error (overrides log.level; default info)")
+	if code := parseFlags(fs, args); code >= 0 {
+		return code
+	}
+	if fs.NArg() != 0 {
+		fmt.Fprintf(env.stderr, "dwiaudit serve: unexpected argument %q\n", fs.Arg(0))
+		fs.Usage()
+		return exitUsage
+	}
+	cfg, err := serveConfig(*configPath, fs)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
+	return serve(ctx, env, cfg)
+}
+
+// serveConfig reads the file (or takes the defaults), applies the flags
+// that were given and validates the result, listing every problem.
+func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
+	cfg := DefaultConfig()
+	var problems []string
+	if path != "" {
+		var err error
+		cfg, err = LoadConfigFile(path)
+		var ce *ConfigError
+		switch {
+		case errors.As(err, &ce):
+			problems = append(problems, ce.Problems...)
+		case err != nil:
+			return cfg, err
+		}
+	}
+	var flagProblems []string
+	fs.Visit(func(f *flag.Flag) {
+		v := f.Value.String()
+		switch f.Name {
+		case "data":
+			cfg.Node.DataDir = v
+		case "listen":
+			cfg.Node.DICOMListen = v
+		case "http":
+			cfg.Node.HTTPListen = v
+		case "ae-title":
+			cfg.Node.AETitle = v
+		case "log-format":
+			if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
+				flagProblems = append(flagProblems, "--log-format: "+err.Error())
+			}
+		case "log-level":
+			if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
+				flagProblems = append(flagProblems, "--log-level: "+err.Error())
+			}
+		}
+	})
+	// Validate again with the flags applied; the file's own value
+	// problems are already listed.
+	var ce *ConfigError
+	if err := cfg.Validate(); errors.As(err, &ce) {
+		for _, p := range ce.Problems {
+			if !slices.Contains(problems, p) {
+				problems = append(problems, p)
+			}
+		}
+	}
+	problems = append(problems, flagProblems...)
+	if len(problems) > 0 {
+		return cfg, &ConfigError{File: path, Problems: problems}
+	}
+	return cfg, nil
+}
+
+// serve runs the node on a validated configuration until ctx ends, then
+// stops it gracefully.
+func serve(ctx context.Context, env *cliEnv, cfg Config) int {
+	log := newLogger(env.stderr, cfg.Log)
+	loc, err := loadLocation(cfg.Node.TimeZone)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve: node.time_zone:", err)
+		return exitUsage
+	}
+	dataDir, err := filepath.Abs(cfg.Node.DataDir)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitFailure
+	}
+
+	st, err := store.Open(store.Options{
+		Dir:       dataDir,
+		DiskFloor: uint64(cfg.Limits.DiskFloor),
+		Retention: time.Duration(cfg.Retention.InstanceFiles),
+		Location:  loc,
+		Logger:    log,
+		Describe:  describeInstance,
+	})
+	if errors.Is(err, store.ErrLocked) {
+		fmt.Fprintf(env.stderr, "dwiaudit serve: data folder %s is held by another dwiaudit process (a running serve, or a studies report still reading)\n", dataDir)
+		return exitFailure
+	}
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitFailure
+	}
+	code := exitOK
+	storeClosed := false
+	defer func() {
+		if !storeClosed {
+			st.Close()
+		}
+	}()
+
+	dl, err := net.Listen("tcp", cfg.Node.DICOMListen)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve: DICOM listener:", err)
+		return exitFailure
+	}
+	hl, err := net.Listen("tcp", cfg.Node.HTTPListen)
+	if err != nil {
+		dl.Close()
+		fmt.Fprintln(env.stderr, "dwiaudit serve: HTTP listener:", err)
+		return exitFailure
+	}
+
+	peers := newPeerTable(cfg.Peers)
+	dicom := &scp.Server{
+		AETitle:                cfg.Node.AETitle,
+		AllowedCallingAETitles: peers.callingAETitles(),
+		AllowCalling:           peers.allow,
+		MaxAssociations:        cfg.Limits.MaxAssociations,
+		ARTIMTimeout:           time.Duration(cfg.Limits.ARTIMTimeout),
+		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
+		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
+		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
+		Handler:                &ingest{store: st, peers: peers},
+		Logger:                 log.With("component", "scp"),
+	}
+	var dicomUp atomic.Bool
+	dicomDone := make(chan error, 1)
+	dicomUp.Store(true)
+	go func() {
+		err := dicom.Serve(dl)
+		dicomUp.Store(false)
+		dicomDone <- err
+	}()
+
+	hs := &http.Server{
+		Handler:           newAPI(st, loc, dicomUp.Load, log.With("component", "http")),
+		ReadHeaderTimeout: httpReadHeaderTimeout,
+		ReadTimeout:       httpReadTimeout,
+		WriteTimeout:      httpWriteTimeout,
+		IdleTimeout:       httpIdleTimeout,
+		ErrorLog:          slog.NewLogLogger(log.With("component", "http").Handler(), slog.LevelWarn),
+	}
+	httpDone := make(chan error, 1)
+	go func() { httpDone <- hs.Serve(hl) }()
+
+	fmt.Fprintf(env.stdout, "%s%s (AE title %s)\n", listeningDICOMPrefix, dl.Addr(), cfg.Node.AETitle)
+	fmt.Fprintf(env.stdout, "%s%s\n", listeningHTTPPrefix, hl.Addr())
+	log.Info("node started", "dicom", dl.Addr().String(), "ae_title", cfg.Node.AETitle, "http", hl.Addr().String(),
+		"data_dir", dataDir, "peers", len(cfg.Peers), "disk_floor", cfg.Limits.DiskFloor.String(),
+		"retention", cfg.Retention.InstanceFiles.String())
+
+	pruneCtx, stopPrune := context.WithCancel(context.Background())
+	var pruning sync.WaitGroup
+	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
+
+	select {
+	case <-ctx.Done():
+		log.Info("stopping: signal received")
+	case err := <-dicomDone:
+		log.Error("DICOM acceptor stopped", "err", err)
+		code = exitFailure
+	case err := <-httpDone:
+		log.Error("HTTP server stopped", "err", err)
+		code = exitFailure
+	}
+
+	// Stop accepting, let C-STOREs in flight finish and be answered,
+	// then stop HTTP and pruning, and close the store, which commits
+	// what is left and closes the index.
+	sctx, cancel := context.WithTimeout(context.Background(), shutdownGrace)
+	if err := dicom.Shutdown(sctx); err != nil {
+		log.Warn("C-STOREs still in flight after the grace period were cut off", "grace", shutdownGrace, "err", err)
+		code = exitFailure
+	}
+	cancel()
+	hctx, cancel := context.WithTimeout(context.Background(), httpShutdownGrace)
+	if err := hs.Shutdown(hctx); err != nil {
+		hs.Close()
+	}
+	cancel()
+	stopPrune()
+	pruning.Wait()
+	storeClosed = true
+	if err := st.Close(); err != nil {
+		log.Error("closing the store failed", "err", err)
+		return exitFailure
+	}
+	log.Info("node stopped")
+	return code
+}
+
+// pruner is what the prune loop needs of the store.
+type pruner interface {
+	Prune(ctx context.Context) (store.PruneReport, error)
+}
+
+// pruneLoop prunes at start (the node may have been down for days) and
+// then every interval, until ctx ends.
+func pruneLoop(ctx context.Context, st pruner, every time.Duration, log *slog.Logger) {
+	t := time.NewTicker(every)
+	defer t.Stop()
+	for {
+		if _, err := st.Prune(ctx); err != nil && ctx.Err() == nil {
+			log.Warn("pruning failed", "err", err)
+		}
+		select {
+		case <-ctx.Done():
+			return
+		case <-t.C:
+		}
+	}
+}
