@@ -5,6 +5,8 @@ package dwi
 // and what the computation (package audit/adc) and the rules read. Keep
 // it free of I/O.
 
+import "strconv"
+
 // Directionality is Diffusion Directionality (0018,9075), PS3.3
 // C.8.13.5.9.
 type Directionality int
@@ -17,6 +19,21 @@ const (
 	DirectionalityIsotropic                         // "ISOTROPIC": trace or isotropic image
 )
 
+// String is the defined term (PS3.3 C.8.13.5.9), "unknown" when absent.
+func (d Directionality) String() string {
+	switch d {
+	case DirectionalityNone:
+		return "NONE"
+	case DirectionalityDirectional:
+		return "DIRECTIONAL"
+	case DirectionalityBMatrix:
+		return "BMATRIX"
+	case DirectionalityIsotropic:
+		return "ISOTROPIC"
+	}
+	return "unknown"
+}
+
 // MapKind says what an image is: an acquired diffusion-weighted image, or
 // a map the scanner derived (PS3.3 C.8.13.1.1.1 Image Type value 4,
 // PS3.17 suggestions; DOMAIN.md).
@@ -28,6 +45,20 @@ const (
 	KindEADC                        // scanner eADC map (DIFFUSION_ATTNTD)
 	KindOtherDerived                // FA and other derived images the audit does not use
 )
+
+func (k MapKind) String() string {
+	switch k {
+	case KindAcquired:
+		return "acquired"
+	case KindADC:
+		return "ADC map"
+	case KindEADC:
+		return "eADC map"
+	case KindOtherDerived:
+		return "other derived map"
+	}
+	return "MapKind(" + strconv.Itoa(int(k)) + ")"
+}
 
 // RealWorldValue is one Real World Value Mapping item (0040,9096):
 // value = Slope*stored + Intercept, in Units (a UCUM code value from
@@ -60,7 +91,10 @@ type Geometry struct {
 	Position       [3]float64 // (0020,0032) or Plane Position Sequence (0020,9113)
 	Orientation    [6]float64 // (0020,0037) or Plane Orientation Sequence (0020,9116)
 	SliceThickness float64    // (0018,0050), mm; 0 if absent
-	Known          bool       // position and orientation were present
+	// SpacingBetweenSlices is (0018,0088) (top level or Pixel Measures
+	// Sequence), mm; 0 if absent.
+	SpacingBetweenSlices float64
+	Known                bool // position and orientation were present
 }
 
 // Frame is one image: a classic MR instance, or one frame of a
@@ -82,6 +116,10 @@ type Frame struct {
 	ProtocolName        string
 	StudyDate           string
 	AccessionNumber     string
+	Modality            string // (0008,0060)
+	// AcquisitionContrast is (0008,9209), "DIFFUSION" for diffusion
+	// weighted Enhanced MR frames (PS3.3 C.8.13.3.1.2); "" if absent.
+	AcquisitionContrast string
 
 	BValue         float64
 	HasBValue      bool
@@ -108,6 +146,16 @@ type Frame struct {
 	Pixels       []float32
 }
 
+// ID names the image in facts and errors: its SOP Instance UID, followed
+// by "#n" for frame n of a multi-frame instance. It holds no patient
+// data.
+func (f *Frame) ID() string {
+	if f.FrameNumber == 0 {
+		return f.SOPInstanceUID
+	}
+	return f.SOPInstanceUID + "#" + strconv.Itoa(f.FrameNumber)
+}
+
 // Direction is a unit gradient direction; the zero value stands for
 // "isotropic or none".
 type Direction [3]float64
@@ -123,6 +171,8 @@ type Volume struct {
 	Kind      MapKind // acquired, or a scanner ADC/eADC map
 	SeriesUID string  // the series the volume came from (a b0 may come from another series)
 	Slices    []*Frame
+	// Geometry is the geometry of the volume's first present slice.
+	Geometry Geometry
 }
 
 // Facts are what assembly found, as data, for the rules.
@@ -136,6 +186,21 @@ type Facts struct {
 	InconsistentB    []string                // images whose b-value disagrees with their volume beyond tolerance, or with their b-matrix trace
 	GeometryMismatch []string                // volumes whose geometry differs from the reference volume beyond tolerance
 	B0FromSeries     string                  // when the b0 volume came from another series of the study
+
+	// NoBValue lists images with no b-value from any source and a
+	// Diffusion Directionality other than NONE: they are in no volume.
+	NoBValue []string
+	// SliceSpacing is the median distance between neighbouring grid
+	// positions, mm; 0 with fewer than two positions.
+	SliceSpacing float64
+	// GridGaps are grid positions no image of the series has, inferred
+	// from the regular SliceSpacing (a slice missing from every volume).
+	// They are in Series.Grid, so every volume lists them as missing.
+	GridGaps []float64
+	// B0Unmatched lists series of the same study and frame of reference
+	// whose b0 could not be borrowed because their slices or geometry
+	// differ from this series'.
+	B0Unmatched []string
 }
 
 // MissingSlice is a slice position (mm along the normal) that a volume
@@ -170,4 +235,7 @@ type Series struct {
 type Study struct {
 	StudyInstanceUID string
 	Series           []*Series
+	// Failed lists the diffusion series that could not be assembled,
+	// each with its error; the other series are still in Series.
+	Failed []*SeriesError
 }

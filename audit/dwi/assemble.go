@@ -1,0 +1,508 @@
+package dwi
+
+import (
+	"cmp"
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+)
+
+// Geometry sanity and grid inference.
+const (
+	// unitTolerance is how far Image Orientation (Patient) may be from
+	// two orthogonal unit vectors (PS3.3 C.7.6.2.1.1) before it is
+	// refused as geometry: DS rounding of the cosines is far smaller
+	// (1e-6 or better), a broken header far larger.
+	unitTolerance = 0.01
+
+	// maxInferredGap is the longest run of slice positions missing from
+	// every volume that the grid fills in from the regular slice
+	// spacing. A longer run is more likely two slabs than lost images.
+	maxInferredGap = 8
+)
+
+// AssembleSeries groups the images of one series into volumes: one per
+// b-value (within tol.BValue/BValueRelative) and gradient direction
+// (within tol.Direction; isotropic and b = 0 images form their own
+// volume), each ordered on the common slice grid: Image Position
+// (Patient) projected on the normal of the row and column direction
+// cosines (PS3.3 C.7.6.2.1.1), positions within tol.SlicePosition being
+// one slice. A gradient g and its opposite -g are two directions: they
+// are two acquisitions, even though they weight diffusion alike. Scanner ADC and eADC maps go to Series.Maps, other derived
+// images (FA) are left out. The Series points into frames, which must not
+// change while it is in use.
+//
+// Errors: ErrNoImages when no image can be placed, ErrMixedSeries,
+// ErrMissingGeometry naming the first image without geometry,
+// ErrInvalidOptions for bad tolerances. Everything else that is wrong
+// with the series is reported in Series.Facts.
+func AssembleSeries(frames []Frame, tol Tolerances) (*Series, error) {
+	ptrs := make([]*Frame, len(frames))
+	for i := range frames {
+		ptrs[i] = &frames[i]
+	}
+	return assembleSeries(ptrs, tol)
+}
+
+func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
+	if err := tol.Validate(); err != nil {
+		return nil, err
+	}
+	if len(frames) == 0 {
+		return nil, ErrNoImages
+	}
+	seriesUID := frames[0].SeriesInstanceUID
+	for _, f := range frames {
+		if f.SeriesInstanceUID != seriesUID {
+			return nil, fmt.Errorf("%w: %s and %s", ErrMixedSeries, seriesUID, f.SeriesInstanceUID)
+		}
+	}
+	// A fixed order, whatever order the images arrived in: the first of
+	// two duplicates is the one kept.
+	sorted := slices.Clone(frames)
+	slices.SortStableFunc(sorted, func(a, b *Frame) int {
+		return cmp.Or(cmp.Compare(a.InstanceNumber, b.InstanceNumber),
+			strings.Compare(a.SOPInstanceUID, b.SOPInstanceUID),
+			cmp.Compare(a.FrameNumber, b.FrameNumber))
+	})
+
+	s := &Series{SeriesInstanceUID: seriesUID}
+	var placed []*Frame
+	for _, f := range sorted {
+		if f.Encapsulated {
+			s.Facts.Encapsulated = true
+		}
+		if f.Kind == KindOtherDerived {
+			continue
+		}
+		if !f.Geometry.Known {
+			return nil, fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())
+		}
+		if _, ok := normalOf(f.Geometry.Orientation); !ok {
+			return nil, fmt.Errorf("%w: image %s: Image Orientation (Patient) %v is not two orthogonal unit vectors", ErrMissingGeometry, f.ID(), f.Geometry.Orientation)
+		}
+		if f.Kind == KindAcquired && !f.HasBValue && f.Directionality != DirectionalityNone {
+			s.Facts.NoBValue = append(s.Facts.NoBValue, f.ID())
+			continue
+		}
+		placed = append(placed, f)
+	}
+	if len(placed) == 0 {
+		return nil, fmt.Errorf("%w: none of the %d images of series %s has a b-value or is a diffusion map", ErrNoImages, len(frames), seriesUID)
+	}
+
+	// The reference: the first image of the lowest b-value (the b0 when
+	// there is one), else the first map.
+	ref := placed[0]
+	for _, f := range placed {
+		if f.Kind == KindAcquired && (ref.Kind != KindAcquired || bOf(f) < bOf(ref)) {
+			ref = f
+		}
+	}
+	s.StudyInstanceUID = ref.StudyInstanceUID
+	s.SeriesNumber = ref.SeriesNumber
+	s.SeriesDescription = ref.SeriesDescription
+	s.ProtocolName = ref.ProtocolName
+	s.Scanner = ref.Scanner
+	s.Normal, _ = normalOf(ref.Geometry.Orientation)
+
+	// The slice grid.
+	pos := make([]float64, len(placed))
+	for i, f := range placed {
+		pos[i] = dot(f.Geometry.Position, s.Normal)
+	}
+	slot, grid := cluster1D(pos, func(float64) float64 { return tol.SlicePosition })
+	s.Grid, s.Facts.GridGaps, s.Facts.SliceSpacing = inferGaps(grid, tol)
+	if len(s.Facts.GridGaps) > 0 {
+		// Re-index onto the grid with the gaps filled in.
+		for i := range slot {
+			slot[i] = nearest(s.Grid, grid[slot[i]])
+		}
+	}
+
+	// b-value clusters, over acquired images and maps apart.
+	var acq, maps []int
+	for i, f := range placed {
+		if f.Kind == KindAcquired {
+			acq = append(acq, i)
+		} else {
+			maps = append(maps, i)
+		}
+	}
+	volumes := s.group(placed, acq, slot, tol, false)
+	s.Maps = s.group(placed, maps, slot, tol, true)
+	s.Volumes = volumes
+
+	// Images whose b-value disagrees with their volume's or with their
+	// b-matrix trace (XX + YY + ZZ = b, PS3.3 C.8.13.5.9).
+	for _, v := range s.Volumes {
+		for _, f := range v.Slices {
+			if f == nil {
+				continue
+			}
+			b := bOf(f)
+			off := math.Abs(b-v.BValue) > tol.bTolerance(v.BValue)
+			if f.HasBMatrix {
+				tr := f.BMatrix[0] + f.BMatrix[3] + f.BMatrix[5]
+				off = off || math.Abs(tr-b) > tol.bTolerance(b)
+			}
+			if off {
+				s.Facts.InconsistentB = append(s.Facts.InconsistentB, f.ID())
+			}
+		}
+	}
+	s.refresh(tol)
+	return s, nil
+}
+
+// group makes the volumes of the images idx of placed: by b-value
+// cluster, then (acquired images only) by gradient direction.
+func (s *Series) group(placed []*Frame, idx []int, slot []int, tol Tolerances, maps bool) []*Volume {
+	if len(idx) == 0 {
+		return nil
+	}
+	type key struct {
+		kind MapKind
+		b    int // b-value cluster
+		dir  int // direction cluster, -1 isotropic
+	}
+	bs := make([]float64, len(idx))
+	for i, j := range idx {
+		bs[i] = bOf(placed[j])
+	}
+	bslot, nominal := cluster1D(bs, tol.bTolerance)
+	cosMax := math.Cos(tol.Direction * math.Pi / 180)
+
+	dirs := map[int][]Direction{} // per b cluster
+	byKey := map[key]*Volume{}
+	var out []*Volume
+	for i, j := range idx {
+		f := placed[j]
+		k := key{kind: f.Kind, b: bslot[i], dir: -1}
+		var d Direction
+		if !maps && nominal[k.b] > tol.BValue {
+			if dd, ok := directionOf(f); ok {
+				d = dd
+				k.dir = -1
+				for n, rep := range dirs[k.b] {
+					if dot(rep, dd) >= cosMax {
+						k.dir, d = n, rep
+						break
+					}
+				}
+				if k.dir < 0 {
+					k.dir = len(dirs[k.b])
+					dirs[k.b] = append(dirs[k.b], dd)
+				}
+			}
+		}
+		v := byKey[k]
+		if v == nil {
+			v = &Volume{
+				BValue: nominal[k.b], Direction: d, Isotropic: k.dir < 0, Kind: f.Kind,
+				SeriesUID: s.SeriesInstanceUID, Slices: make([]*Frame, len(s.Grid)),
+			}
+			byKey[k] = v
+			out = append(out, v)
+		}
+		if v.Slices[slot[j]] != nil {
+			s.Facts.Duplicates = append(s.Facts.Duplicates, f.ID())
+			continue
+		}
+		v.Slices[slot[j]] = f
+	}
+	slices.SortStableFunc(out, func(a, b *Volume) int {
+		return cmp.Or(cmp.Compare(a.Kind, b.Kind), cmp.Compare(a.BValue, b.BValue),
+			-cmpBool(a.Isotropic, b.Isotropic),
+			cmp.Compare(a.Direction[0], b.Direction[0]), cmp.Compare(a.Direction[1], b.Direction[1]),
+			cmp.Compare(a.Direction[2], b.Direction[2]))
+	})
+	for _, v := range out {
+		v.Geometry = firstGeometry(v)
+	}
+	return out
+}
+
+// refresh recomputes what depends on the volumes: the reference
+// geometry, the b-values and directions present, slices per volume,
+// missing slices and geometry mismatches. Facts read from the images
+// (duplicates, inconsistent b-values, ...) are kept.
+func (s *Series) refresh(tol Tolerances) {
+	f := &s.Facts
+	f.BValues, f.Directions, f.SlicesPerVolume, f.MissingSlices, f.GeometryMismatch = nil, nil, nil, nil, nil
+	switch {
+	case len(s.Volumes) > 0:
+		s.Reference = s.Volumes[0].Geometry
+	case len(s.Maps) > 0:
+		s.Reference = s.Maps[0].Geometry
+	}
+	for _, v := range s.Volumes {
+		if !slices.Contains(f.BValues, v.BValue) {
+			f.BValues = append(f.BValues, v.BValue)
+		}
+		if !v.Isotropic {
+			if f.Directions == nil {
+				f.Directions = map[float64][]Direction{}
+			}
+			f.Directions[v.BValue] = append(f.Directions[v.BValue], v.Direction)
+		}
+		n := 0
+		for i, sl := range v.Slices {
+			if sl != nil {
+				n++
+				continue
+			}
+			f.MissingSlices = append(f.MissingSlices, MissingSlice{BValue: v.BValue, Direction: v.Direction, Position: s.Grid[i]})
+		}
+		f.SlicesPerVolume = append(f.SlicesPerVolume, n)
+	}
+	slices.Sort(f.BValues)
+
+	// Geometry of every slice against the reference volume's slice at the
+	// same position (or the reference geometry where it has none).
+	var refVol *Volume
+	if len(s.Volumes) > 0 {
+		refVol = s.Volumes[0]
+	}
+	for _, v := range append(slices.Clone(s.Volumes), s.Maps...) {
+		for i, sl := range v.Slices {
+			if sl == nil {
+				continue
+			}
+			want := s.Reference
+			if refVol != nil && refVol.Slices[i] != nil {
+				want = refVol.Slices[i].Geometry
+			}
+			if why := geometryDiff(sl.Geometry, want, tol); why != "" {
+				f.GeometryMismatch = append(f.GeometryMismatch, fmt.Sprintf("%v: %s (image %s)", v, why, sl.ID()))
+				break
+			}
+		}
+	}
+}
+
+// String names a volume in facts: "b=1000 (0.707,0.707,0.000)", "b=0
+// isotropic", "ADC map b=1000".
+func (v *Volume) String() string {
+	switch v.Kind {
+	case KindADC:
+		return fmt.Sprintf("ADC map b=%g", v.BValue)
+	case KindEADC:
+		return fmt.Sprintf("eADC map b=%g", v.BValue)
+	case KindOtherDerived:
+		return fmt.Sprintf("derived map b=%g", v.BValue)
+	}
+	if v.Isotropic {
+		return fmt.Sprintf("b=%g isotropic", v.BValue)
+	}
+	return fmt.Sprintf("b=%g (%.3f,%.3f,%.3f)", v.BValue, v.Direction[0], v.Direction[1], v.Direction[2])
+}
+
+// geometryDiff says how a differs from b beyond tolerance, "" if not:
+// matrix, pixel spacing, orientation, and position within the plane.
+func geometryDiff(a, b Geometry, tol Tolerances) string {
+	if a.Rows != b.Rows || a.Columns != b.Columns {
+		return fmt.Sprintf("matrix %dx%d, reference %dx%d", a.Rows, a.Columns, b.Rows, b.Columns)
+	}
+	for i := range 2 {
+		if math.Abs(a.PixelSpacing[i]-b.PixelSpacing[i]) > tol.Spacing {
+			return fmt.Sprintf("pixel spacing %v, reference %v", a.PixelSpacing, b.PixelSpacing)
+		}
+	}
+	for i := range 6 {
+		if d := math.Abs(a.Orientation[i] - b.Orientation[i]); d > tol.Orientation {
+			return fmt.Sprintf("orientation differs from the reference by %.4g", d)
+		}
+	}
+	d := [3]float64{a.Position[0] - b.Position[0], a.Position[1] - b.Position[1], a.Position[2] - b.Position[2]}
+	row := [3]float64{b.Orientation[0], b.Orientation[1], b.Orientation[2]}
+	col := [3]float64{b.Orientation[3], b.Orientation[4], b.Orientation[5]}
+	if r, c := dot(d, row), dot(d, col); math.Abs(r) > tol.SlicePosition || math.Abs(c) > tol.SlicePosition {
+		return fmt.Sprintf("shifted in plane by %.3g mm along rows, %.3g mm along columns", r, c)
+	}
+	return ""
+}
+
+func firstGeometry(v *Volume) Geometry {
+	for _, f := range v.Slices {
+		if f != nil {
+			return f.Geometry
+		}
+	}
+	return Geometry{}
+}
+
+// bOf is the b-value of an image; an image without one that says
+// Diffusion Directionality NONE is b = 0 (PS3.3 C.8.13.5.9).
+func bOf(f *Frame) float64 {
+	if f.HasBValue {
+		return f.BValue
+	}
+	return 0
+}
+
+// directionOf is the unit gradient direction of an image, from Diffusion
+// Gradient Orientation, else from the b-matrix; false for isotropic
+// images and images that give none.
+func directionOf(f *Frame) (Direction, bool) {
+	switch f.Directionality {
+	case DirectionalityIsotropic, DirectionalityNone:
+		return Direction{}, false
+	}
+	if f.HasGradient {
+		if d, ok := unit(f.Gradient); ok {
+			return d, true
+		}
+	}
+	if f.HasBMatrix {
+		return directionFromBMatrix(f.BMatrix)
+	}
+	return Direction{}, false
+}
+
+// directionFromBMatrix recovers g from B = b g g^T (one gradient
+// direction; PS3.3 C.8.13.5.9 gives XX XY XZ YY YZ ZZ): |g_i| =
+// sqrt(B_ii / tr B), signs from the off-diagonal terms, with the first
+// non-zero component taken positive (g and -g weight diffusion alike).
+func directionFromBMatrix(m [6]float64) (Direction, bool) {
+	tr := m[0] + m[3] + m[5]
+	if !(tr > 0) {
+		return Direction{}, false
+	}
+	d := Direction{math.Sqrt(max(m[0], 0) / tr), math.Sqrt(max(m[3], 0) / tr), math.Sqrt(max(m[5], 0) / tr)}
+	switch {
+	case d[0] > 0:
+		if m[1] < 0 {
+			d[1] = -d[1]
+		}
+		if m[2] < 0 {
+			d[2] = -d[2]
+		}
+	case d[1] > 0:
+		if m[4] < 0 {
+			d[2] = -d[2]
+		}
+	}
+	return unit(d)
+}
+
+func unit(v [3]float64) (Direction, bool) {
+	n := math.Sqrt(dot(v, v))
+	if !(n > 1e-6) || math.IsInf(n, 0) {
+		return Direction{}, false
+	}
+	return Direction{v[0] / n, v[1] / n, v[2] / n}, true
+}
+
+func dot(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
+
+// normalOf is the slice normal, row x column direction cosines (PS3.3
+// C.7.6.2.1.1); false unless they are orthogonal unit vectors.
+func normalOf(o [6]float64) ([3]float64, bool) {
+	r := [3]float64{o[0], o[1], o[2]}
+	c := [3]float64{o[3], o[4], o[5]}
+	if math.Abs(dot(r, r)-1) > unitTolerance || math.Abs(dot(c, c)-1) > unitTolerance || math.Abs(dot(r, c)) > unitTolerance {
+		return [3]float64{}, false
+	}
+	n := [3]float64{r[1]*c[2] - r[2]*c[1], r[2]*c[0] - r[0]*c[2], r[0]*c[1] - r[1]*c[0]}
+	u, ok := unit(n)
+	return [3]float64(u), ok
+}
+
+// cluster1D groups values whose sorted neighbours are at most within(a)
+// apart (a the lower of the two), and returns each value's cluster and
+// the clusters' means, ascending.
+func cluster1D(v []float64, within func(float64) float64) ([]int, []float64) {
+	order := make([]int, len(v))
+	for i := range order {
+		order[i] = i
+	}
+	slices.SortStableFunc(order, func(a, b int) int { return cmp.Compare(v[a], v[b]) })
+	slot := make([]int, len(v))
+	var means []float64
+	sum, n := 0.0, 0
+	for k, i := range order {
+		if k > 0 && v[i]-v[order[k-1]] > within(v[order[k-1]]) {
+			means = append(means, sum/float64(n))
+			sum, n = 0, 0
+		}
+		sum += v[i]
+		n++
+		slot[i] = len(means)
+	}
+	if n > 0 {
+		means = append(means, sum/float64(n))
+	}
+	return slot, means
+}
+
+// inferGaps fills in grid positions missing from every volume: where the
+// grid is regular (most neighbours one spacing apart) and a step is a
+// whole number k of spacings (2 <= k <= maxInferredGap+1), the k-1
+// positions between are added. It returns the full grid, the positions
+// added and the spacing (median step).
+func inferGaps(grid []float64, tol Tolerances) ([]float64, []float64, float64) {
+	if len(grid) < 2 {
+		return grid, nil, 0
+	}
+	steps := make([]float64, len(grid)-1)
+	for i := range steps {
+		steps[i] = grid[i+1] - grid[i]
+	}
+	sorted := slices.Clone(steps)
+	slices.Sort(sorted)
+	spacing := sorted[(len(sorted)-1)/2] // lower median: never a step that is not there
+	if len(grid) < 3 || spacing <= tol.SlicePosition {
+		return grid, nil, spacing
+	}
+	regular := 0
+	for _, d := range steps {
+		k := math.Round(d / spacing)
+		if math.Abs(d-k*spacing) > tol.SlicePosition*max(1, k) {
+			return grid, nil, spacing // irregular: nothing to infer from
+		}
+		if k == 1 {
+			regular++
+		}
+	}
+	if 2*regular <= len(steps) {
+		return grid, nil, spacing
+	}
+	var full, gaps []float64
+	for i, d := range steps {
+		full = append(full, grid[i])
+		k := int(math.Round(d / spacing))
+		if k < 2 || k > maxInferredGap+1 {
+			continue
+		}
+		for j := 1; j < k; j++ {
+			p := grid[i] + float64(j)*d/float64(k)
+			full = append(full, p)
+			gaps = append(gaps, p)
+		}
+	}
+	full = append(full, grid[len(grid)-1])
+	return full, gaps, spacing
+}
+
+// nearest is the index of the grid position closest to p.
+func nearest(grid []float64, p float64) int {
+	best := 0
+	for i, g := range grid {
+		if math.Abs(g-p) < math.Abs(grid[best]-p) {
+			best = i
+		}
+	}
+	return best
+}
+
+func cmpBool(a, b bool) int {
+	switch {
+	case a == b:
+		return 0
+	case a:
+		return 1
+	}
+	return -1
+}
