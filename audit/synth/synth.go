@@ -1,7 +1,6 @@
 package synth
 
 import (
-	"bufio"
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -159,7 +158,7 @@ func WriteSeries(dir string, s Series) ([]string, error) {
 		if err != nil {
 			return paths, err
 		}
-		if err := writeFile(path, ds); err != nil {
+		if err := WriteFile(path, ds); err != nil {
 			return paths, err
 		}
 		paths = append(paths, path)
@@ -250,7 +249,7 @@ func (g geometry) z(i int) float64 {
 func (g geometry) position(i int) []string {
 	x := -float64(g.cols-1) / 2 * g.spacing
 	y := -float64(g.rows-1) / 2 * g.spacing
-	return []string{formatDS(x), formatDS(y), formatDS(g.z(i))}
+	return []string{FormatDS(x), FormatDS(y), FormatDS(g.z(i))}
 }
 
 // fill draws slice i of a head-like phantom into raw, attenuated for b (NaN:
@@ -296,8 +295,8 @@ func (g geometry) fill(raw []uint16, i int, b float64, rnd *rand.Rand) {
 // and an MR Image IOD data set (PS3.3 A.4), elements in tag order.
 func dataset(s Series, g geometry, img image, pixelBytes []byte) (dicom.Dataset, error) {
 	num := strconv.Itoa(img.index + 1)
-	spacing := formatDS(g.spacing)
-	thickness := formatDS(sliceThicknessMM)
+	spacing := FormatDS(g.spacing)
+	thickness := FormatDS(sliceThicknessMM)
 
 	var elems []*dicom.Element
 	var errs []error
@@ -367,7 +366,7 @@ func dataset(s Series, g geometry, img image, pixelBytes []byte) (dicom.Dataset,
 	str(tag.ImageOrientationPatient, "1", "0", "0", "0", "1", "0")
 	str(tag.FrameOfReferenceUID, img.frameOfReference)
 	str(tag.PositionReferenceIndicator, "")
-	str(tag.SliceLocation, formatDS(g.z(img.index)))
+	str(tag.SliceLocation, FormatDS(g.z(img.index)))
 	add(tag.SamplesPerPixel, []int{1})
 	str(tag.PhotometricInterpretation, "MONOCHROME2")
 	add(tag.Rows, []int{g.rows})
@@ -382,55 +381,6 @@ func dataset(s Series, g geometry, img image, pixelBytes []byte) (dicom.Dataset,
 	// encoder spends two allocations per pixel, half of WriteSeries' time.
 	add(tag.PixelData, dicom.PixelDataInfo{IntentionallyUnprocessed: true, UnprocessedValueData: pixelBytes})
 
-	// suyashkumar's writer keeps the order it is given; PS3.5 7.1 wants
-	// ascending tags.
-	slices.SortStableFunc(elems, func(a, b *dicom.Element) int {
-		return compareTags(a.Tag, b.Tag)
-	})
+	SortElements(elems)
 	return dicom.Dataset{Elements: elems}, errors.Join(errs...)
-}
-
-func compareTags(a, b tag.Tag) int {
-	if a.Group != b.Group {
-		return int(a.Group) - int(b.Group)
-	}
-	return int(a.Element) - int(b.Element)
-}
-
-// writeFile writes ds as a Part 10 file at path, removing it on failure.
-func writeFile(path string, ds dicom.Dataset) (err error) {
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(path)
-		}
-	}()
-	w := bufio.NewWriterSize(f, 64<<10)
-	if err := dicom.Write(w, ds); err != nil {
-		return fmt.Errorf("synth: writing %s: %w", path, err)
-	}
-	if err := w.Flush(); err != nil {
-		return err
-	}
-	// No fsync: these are test fixtures, rewritten at will.
-	return f.Close()
-}
-
-// formatDS formats v as a Decimal String of at most 16 characters (PS3.5
-// 6.2), with as many significant digits as fit.
-func formatDS(v float64) string {
-	if v == 0 {
-		return "0" // and not "-0"
-	}
-	for prec := 15; prec > 0; prec-- {
-		s := strconv.FormatFloat(v, 'g', prec, 64)
-		if len(s) <= 16 {
-			return s
-		}
-	}
-	return strconv.FormatFloat(v, 'e', 0, 64)
 }

@@ -426,9 +426,9 @@ func TestFormatDS(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run("it formats "+c.want, func(t *testing.T) {
-			got := formatDS(c.v)
+			got := FormatDS(c.v)
 			if got != c.want || len(got) > 16 { // PS3.5 6.2: DS at most 16 bytes
-				t.Fatalf("formatDS(%v) = %q, want %q", c.v, got, c.want)
+				t.Fatalf("FormatDS(%v) = %q, want %q", c.v, got, c.want)
 			}
 		})
 	}

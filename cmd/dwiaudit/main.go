@@ -40,6 +40,7 @@ func commands() []command {
 	return []command{
 		{"echo", "check that a DICOM node answers C-ECHO", runEcho},
 		{"send", "send DICOM files and folders with C-STORE", runSend},
+		{"phantom", "write a synthetic diffusion study with a known truth", runPhantom},
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 	}
