@@ -1,4 +1,4 @@
-package audit
+package analysis
 
 import (
 	"errors"

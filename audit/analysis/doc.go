@@ -1,4 +1,4 @@
-// Package audit turns an assembled diffusion series into the physics the
+// Package analysis turns an assembled diffusion series into the physics the
 // rules judge: trace images per b-value, ADC and eADC maps, a tissue
 // mask, and per-series measures (parenchyma median ADC, CSF ADC, the
 // shares of tissue above the free-water ceiling and below zero, b0 and
@@ -13,4 +13,4 @@
 //
 // The audit checks acquisitions; it does not diagnose. Clinical
 // decisions rest with the radiologist and local policy.
-package audit
+package analysis

@@ -1,4 +1,4 @@
-package audit
+package analysis
 
 import (
 	"encoding/binary"
@@ -41,7 +41,7 @@ type referenceOutput struct {
 }
 
 // TestADCMatchesPythonReference compares the Go two-point ADC map with
-// an independent computation: testdata/adc_reference.py reads the same
+// an independent computation: testdata/adc_reference.py (at the repository root) reads the same
 // files with pydicom, applies the rescale and computes ln(S0/Sb)/b with
 // numpy in float64. Voxel by voxel, where both are defined, they must
 // agree within 1e-7 mm²/s (issue 4 acceptance). Go reads float32 pixels
@@ -66,7 +66,7 @@ func TestADCMatchesPythonReference(t *testing.T) {
 			}
 
 			raw := filepath.Join(t.TempDir(), "adc.raw")
-			cmd := exec.Command(referencePython, "testdata/adc_reference.py", raw, st.Dir)
+			cmd := exec.Command(referencePython, "../../testdata/adc_reference.py", raw, st.Dir)
 			cmd.Stderr = os.Stderr
 			out, err := cmd.Output()
 			if err != nil {
