@@ -104,6 +104,7 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 	s.SeriesNumber = ref.SeriesNumber
 	s.SeriesDescription = ref.SeriesDescription
 	s.ProtocolName = ref.ProtocolName
+	s.BodyPartExamined = ref.BodyPartExamined
 	s.Scanner = ref.Scanner
 	s.Normal, _ = normalOf(ref.Geometry.Orientation)
 

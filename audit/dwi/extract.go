@@ -272,6 +272,7 @@ func (x *extraction) common() Frame {
 		SeriesNumber:        series,
 		SeriesDescription:   t.str(tag.SeriesDescription),
 		ProtocolName:        t.str(tag.ProtocolName),
+		BodyPartExamined:    t.str(tag.BodyPartExamined),
 		StudyDate:           t.str(tag.StudyDate),
 		AccessionNumber:     t.str(tag.AccessionNumber),
 		Modality:            t.str(tag.Modality),

@@ -120,6 +120,10 @@ type Frame struct {
 	// AcquisitionContrast is (0008,9209), "DIFFUSION" for diffusion
 	// weighted Enhanced MR frames (PS3.3 C.8.13.3.1.2); "" if absent.
 	AcquisitionContrast string
+	// BodyPartExamined is (0018,0015) of the General Series module
+	// (PS3.3 C.7.3.1), e.g. "BRAIN", "HEAD", "PROSTATE"; "" if absent.
+	// Rules match protocols on it.
+	BodyPartExamined string
 
 	BValue         float64
 	HasBValue      bool
@@ -219,6 +223,7 @@ type Series struct {
 	SeriesNumber      int
 	SeriesDescription string
 	ProtocolName      string
+	BodyPartExamined  string // (0018,0015) of the reference image
 	Scanner           Scanner
 
 	// Grid is the common slice grid: positions along Normal, ascending.
