@@ -444,11 +444,20 @@ func store(m float64) uint16 {
 
 // b0Artifact is the b0 signal sig at (x, y) mm with the case's artifact.
 func (a *acquisition) b0Artifact(sig, x, y float64) float64 {
+	k := a.opt.B0ArtifactK
 	switch a.opt.Case {
 	case CaseB0ArtifactAliasing:
-		return sig + aliasAmplitude*taper((x-aliasX)/aliasSemiX, (y-aliasY)/aliasSemiY)
+		amplitude := aliasAmplitude
+		if k != 0 {
+			amplitude = (k - 1) * S0WhiteMatter
+		}
+		return sig + amplitude*taper((x-aliasX)/aliasSemiX, (y-aliasY)/aliasSemiY)
 	case CaseB0ArtifactDropout:
-		return sig * (1 - (1-dropoutFactor)*taper((x-dropoutX)/dropoutSemiX, (y-dropoutY)/dropoutSemiY))
+		factor := dropoutFactor
+		if k != 0 {
+			factor = k
+		}
+		return sig * (1 - (1-factor)*taper((x-dropoutX)/dropoutSemiX, (y-dropoutY)/dropoutSemiY))
 	}
 	return sig
 }

@@ -192,6 +192,52 @@ func TestPhantomPlantsEachDefectInTheFiles(t *testing.T) {
 	}
 }
 
+// TestPhantomB0ArtifactStrength: Options.B0ArtifactK sets the b0 ratio
+// of white matter at the artifact's centre, for both artifact cases, and
+// leaves the DWI alone.
+func TestPhantomB0ArtifactStrength(t *testing.T) {
+	cases := []struct {
+		name string
+		c    Case
+		k    float64
+	}{
+		{"weak aliasing adds a tenth of white matter's signal", CaseB0ArtifactAliasing, 1.1},
+		{"strong aliasing triples white matter's signal", CaseB0ArtifactAliasing, 3},
+		{"mild dropout loses a fifth of the signal", CaseB0ArtifactDropout, 0.8},
+		{"deep dropout loses nine tenths", CaseB0ArtifactDropout, 0.1},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			st := write(t, Options{Case: c.c, B0ArtifactK: c.k, SNR: math.Inf(1), Seed: 3})
+			tr := st.Truth
+			worst := 1.0
+			for i, l := range tr.Labels {
+				if l == LabelWM || l == LabelArtifact {
+					if r := float64(tr.B0[i]) / float64(tr.S0[i]); math.Abs(r-1) > math.Abs(worst-1) {
+						worst = r
+					}
+				}
+			}
+			// The pixel nearest the centre sees the taper just below 1,
+			// and aliasing's added signal is divided by white matter's
+			// coil-shaded S0 (up to 2% above S0WhiteMatter there): the
+			// largest departure is within 5% of k-1.
+			if !within(worst-1, c.k-1, 0.05) {
+				t.Fatalf("largest b0 ratio %v, want about %v", worst, c.k)
+			}
+			// The planted region, the b0 unchanged outside its slices and
+			// the DWI unchanged everywhere. The departure bound passed is
+			// a loose one (rounding to stored pixels moves the ratio):
+			// the tight check is the one above.
+			bound := worst
+			if c.k > 1 {
+				bound = 1 + 0.9*(c.k-1)
+			}
+			checkB0Artifact(t, st, readStudy(t, st), bound)
+		})
+	}
+}
+
 // checkPlantedRegion checks that the planted defect's slices and box are
 // where label l is.
 func checkPlantedRegion(t *testing.T, tr *Truth, l uint8) {

@@ -50,6 +50,10 @@ const (
 	// maxText is the length of an LO value (PS3.5 6.2), the longest text
 	// field Options carries.
 	maxText = 64
+	// maxAliasK bounds Options.B0ArtifactK for aliasing: k = 6 adds
+	// 3000 to white matter's 600, near the 4095 the stored 12 bits hold
+	// (acquire.go), beyond which the b0 clips.
+	maxAliasK = 6
 	// maxSH is the length of an SH value (PS3.5 6.2): Station Name.
 	maxSH = 16
 )
@@ -126,6 +130,15 @@ type Options struct {
 	// reference and slice positions), as some protocols do. The
 	// slice-positions-differ case always does.
 	B0Series bool
+	// B0ArtifactK is the strength of the b0-artifact cases: the factor
+	// by which the artifact scales the b0 of white matter at its centre
+	// (DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b). Aliasing adds
+	// (k-1)·S0WhiteMatter at the centre and needs k > 1; dropout
+	// multiplies the b0 by k there and needs 0 < k < 1. Zero keeps the
+	// case's own strength (aliasing 1 + aliasAmplitude/S0WhiteMatter,
+	// about 1.67; dropout dropoutFactor, 0.6). Other cases refuse a
+	// non-zero value.
+	B0ArtifactK float64
 	// Anisotropic gives white matter a diagonal tensor (wmAxialD along x,
 	// wmRadialD along y and z, mean ADCWhiteMatter) instead of an
 	// isotropic ADC, so that each direction differs and only the trace
@@ -209,6 +222,15 @@ func (o Options) withDefaults() (Options, error) {
 		} else if i > 0 && !(b > o.BValues[i-1]) {
 			bad("BValues must ascend without repeats, got %v", o.BValues)
 		}
+	}
+	switch k := o.B0ArtifactK; {
+	case k == 0:
+	case !o.Case.b0Artifact():
+		bad("B0ArtifactK %v applies only to the cases %s and %s", k, CaseB0ArtifactAliasing, CaseB0ArtifactDropout)
+	case o.Case == CaseB0ArtifactAliasing && !(k > 1 && k <= maxAliasK):
+		bad("B0ArtifactK %v for %s, want 1 < k <= %d (signal added)", k, o.Case, maxAliasK)
+	case o.Case == CaseB0ArtifactDropout && !(k > 0 && k < 1):
+		bad("B0ArtifactK %v for %s, want 0 < k < 1 (signal lost)", k, o.Case)
 	}
 	if o.Directions != 1 && o.Directions != 3 && o.Directions != 6 {
 		bad("Directions %d, want 1, 3 or 6", o.Directions)

@@ -111,6 +111,10 @@ func TestPhantomOptionsAreChecked(t *testing.T) {
 		{"a station name longer than SH allows", Options{Scanner: ScannerProfile{Station: "A-VERY-LONG-STATION-NAME", Manufacturer: "m", Model: "m", DeviceSerial: "s", SoftwareVersions: "v", FieldStrength: 3}}, []string{"Scanner.Station"}},
 		{"no-b0 with a single b-value", Options{Case: CaseNoB0, BValues: []float64{1000}}, []string{"at least two"}},
 		{"a b0 artifact without a b0", Options{Case: CaseB0ArtifactDropout, BValues: []float64{50, 1000}}, []string{"b = 0"}},
+		{"an artifact strength on a case without a b0 artifact", Options{Case: CaseClean, B0ArtifactK: 1.2}, []string{"B0ArtifactK 1.2 applies only"}},
+		{"aliasing that would remove signal", Options{Case: CaseB0ArtifactAliasing, B0ArtifactK: 0.9}, []string{"B0ArtifactK 0.9"}},
+		{"aliasing strong enough to clip the stored bits", Options{Case: CaseB0ArtifactAliasing, B0ArtifactK: 7}, []string{"B0ArtifactK 7"}},
+		{"dropout that would add signal", Options{Case: CaseB0ArtifactDropout, B0ArtifactK: 1.1}, []string{"B0ArtifactK 1.1"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
