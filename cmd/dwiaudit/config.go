@@ -21,6 +21,10 @@ import (
 
 	"go.yaml.in/yaml/v3"
 
+	"dwiaudit/audit"
+	"dwiaudit/audit/analysis"
+	"dwiaudit/audit/dwi"
+	"dwiaudit/rules"
 	"dwiaudit/scp"
 )
 
@@ -85,6 +89,7 @@ type Config struct {
 	Limits    LimitsConfig    `yaml:"limits"`
 	Retention RetentionConfig `yaml:"retention"`
 	Log       LogConfig       `yaml:"log"`
+	Audit     AuditConfig     `yaml:"audit"`
 }
 
 // NodeConfig is who and where the node is.
@@ -155,7 +160,8 @@ func DefaultConfig() Config {
 			InstanceFiles: Duration(defaultRetention),
 			PruneInterval: Duration(defaultPruneInterval),
 		},
-		Log: LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
+		Log:   LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
+		Audit: DefaultAuditConfig(),
 	}
 }
 
@@ -236,6 +242,7 @@ func (c Config) Validate() error {
 
 	p.atLeast("retention.instance_files", c.Retention.InstanceFiles, minRetention)
 	p.atLeast("retention.prune_interval", c.Retention.PruneInterval, minPruneInterval)
+	c.Audit.validate(&p)
 	return p.err("")
 }
 
@@ -715,4 +722,449 @@ func (t *peerTable) allow(callingAE string, remote net.Addr) bool {
 // configured peer it is "" (unknown scanner).
 func (t *peerTable) scanner(callingAE string) string {
 	return t.byAE[strings.TrimSpace(callingAE)].scanner
+}
+
+// ---- The audit: section ----------------------------------------------
+//
+// What the audit engine runs on: when a series counts as settled, how
+// many series are audited at once, the protocols and phantom profiles
+// series are matched to, per-rule switches and severities, the rules'
+// thresholds, where private b-values are, and the analysis settings. A
+// missing key keeps its default; a list that is present replaces the
+// default list whole (a site that lists its protocols lists all of
+// them); the rules map and the thresholds and analysis sections merge
+// key by key over the defaults.
+
+// Defaults and limits of the audit section.
+const (
+	// defaultSettle is how long a series must be quiet before it is
+	// audited: scanners send a series over one association in seconds,
+	// a PACS auto-route may pause between series for tens of seconds
+	// (common practice); 30 s audits a finished series soon after it
+	// ends without catching most series half sent.
+	defaultSettle = 30 * time.Second
+	// minSettle: less than a second would audit series while their
+	// images are still arriving one C-STORE after another.
+	minSettle = time.Second
+	// maxSettle: a day; longer and the daily discrepancy list would miss
+	// the day's studies.
+	maxSettle = 24 * time.Hour
+
+	// defaultAuditWorkers: each worker holds one series' pixels and maps
+	// (about 200 MiB for a 300-image 256x256 series, DEVELOPERS.md), and
+	// one such series audits in under a second, so two keep up with any
+	// scanner while keeping the node under half a GiB.
+	defaultAuditWorkers = 2
+
+	// maxPlausibleADC bounds every ADC in the configuration, mm²/s: free
+	// water at 37 C is 3.04e-3 (Holz 2000, DOMAIN.md); 0.01 is three
+	// times that, so a value above it is an ADC written in 1e-3 mm²/s
+	// or µm²/ms by mistake (0.7 for 0.7e-3).
+	maxPlausibleADC = 0.01
+)
+
+// AuditConfig is the audit: section.
+type AuditConfig struct {
+	// Settle is how long a series must receive no instance before it is
+	// audited (the pipeline); a later instance re-opens it.
+	Settle Duration `yaml:"settle"`
+	// Workers is how many series are audited at once.
+	Workers        int                   `yaml:"workers"`
+	Protocols      []ProtocolConfig      `yaml:"protocols"`
+	Phantoms       []PhantomConfig       `yaml:"phantoms"`
+	Rules          map[string]RuleConfig `yaml:"rules"`
+	Thresholds     rules.Thresholds      `yaml:"thresholds"`
+	PrivateSources []PrivateSourceConfig `yaml:"private_sources"`
+	Analysis       AnalysisSettings      `yaml:"analysis"`
+}
+
+// MatchConfig selects series (rules.Match): any pattern of any list
+// matching selects the series. Patterns are Go regular expressions (RE2
+// syntax); body parts are compared whole, ignoring case.
+type MatchConfig struct {
+	SeriesDescription []string `yaml:"series_description"`
+	ProtocolName      []string `yaml:"protocol_name"`
+	BodyPart          []string `yaml:"body_part"`
+}
+
+// ProtocolConfig is one protocol (rules.Protocol).
+type ProtocolConfig struct {
+	Name            string      `yaml:"name"`
+	Match           MatchConfig `yaml:"match"`
+	BValues         []float64   `yaml:"bvalues"`          // s/mm²
+	BValueTolerance float64     `yaml:"bvalue_tolerance"` // s/mm²
+	LowestB         float64     `yaml:"lowest_b"`         // the "b0" of the protocol, s/mm²
+	MinDirections   int         `yaml:"min_directions"`
+	ParenchymaADC   []float64   `yaml:"parenchyma_adc"` // [low, high], mm²/s
+	Head            bool        `yaml:"head"`           // CSF and free-water checks apply
+}
+
+// PhantomConfig is one phantom profile (rules.PhantomProfile).
+type PhantomConfig struct {
+	Name        string      `yaml:"name"`
+	Match       MatchConfig `yaml:"match"`
+	ExpectedADC float64     `yaml:"expected_adc"` // mm²/s
+	Tolerance   float64     `yaml:"tolerance"`    // relative, 0.036 for 3.6%
+}
+
+// RuleConfig switches a rule off or sets the severity of its findings
+// (rules.RuleSettings); absent keys keep the rule's own choice.
+type RuleConfig struct {
+	Enabled  *bool         `yaml:"enabled"`
+	Severity *SeverityName `yaml:"severity"`
+}
+
+// SeverityName is a rules.Severity written by name: info, warning or
+// error.
+type SeverityName rules.Severity
+
+// UnmarshalYAML reads info, warning or error.
+func (s *SeverityName) UnmarshalYAML(n *yaml.Node) error {
+	t, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := rules.ParseSeverity(t)
+	if err != nil {
+		*s = severityUnreadable
+		return typeError(n, "not a severity: use info, warning or error")
+	}
+	*s = SeverityName(v)
+	return nil
+}
+
+// severityUnreadable marks a severity the decoder already reported, so
+// that validation does not report it twice.
+const severityUnreadable SeverityName = -1
+
+// MarshalYAML writes the name.
+func (s SeverityName) MarshalYAML() (any, error) { return rules.Severity(s).String(), nil }
+
+// PrivateSourceConfig is one private b-value source (dwi.PrivateSource):
+// the private creator string that reserves a block in an odd group, the
+// element's offset in that block (the low byte of (gggg,xxee)), how to
+// read it, which value, and a scale to s/mm².
+type PrivateSourceConfig struct {
+	Name    string        `yaml:"name"`
+	Creator string        `yaml:"creator"`
+	Group   HexUint16     `yaml:"group"`   // e.g. "0x0019"
+	Element HexUint8      `yaml:"element"` // e.g. "0x0C"
+	Read    ValueKindName `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
+	Index   int           `yaml:"index"`
+	Scale   float64       `yaml:"scale"` // 0 or absent means 1
+}
+
+// HexUint16 is a DICOM group number written in hexadecimal, with or
+// without 0x ("0x0019", "0019").
+type HexUint16 uint16
+
+// UnmarshalYAML reads four hexadecimal digits at most.
+func (h *HexUint16) UnmarshalYAML(n *yaml.Node) error {
+	t, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := strconv.ParseUint(trimHex(t), 16, 16)
+	if err != nil {
+		return typeError(n, `not a group number in hexadecimal such as "0x0019"`)
+	}
+	*h = HexUint16(v)
+	return nil
+}
+
+// MarshalYAML writes 0x and four digits.
+func (h HexUint16) MarshalYAML() (any, error) { return fmt.Sprintf("0x%04X", uint16(h)), nil }
+
+// HexUint8 is the low byte of a private element number, in hexadecimal
+// ("0x0C", "0C").
+type HexUint8 uint8
+
+// UnmarshalYAML reads two hexadecimal digits at most.
+func (h *HexUint8) UnmarshalYAML(n *yaml.Node) error {
+	t, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := strconv.ParseUint(trimHex(t), 16, 8)
+	if err != nil {
+		return typeError(n, `not an element offset in hexadecimal from 0x00 to 0xFF such as "0x0C" (the low byte of (gggg,xxee); the block byte xx varies from file to file)`)
+	}
+	*h = HexUint8(v)
+	return nil
+}
+
+// MarshalYAML writes 0x and two digits.
+func (h HexUint8) MarshalYAML() (any, error) { return fmt.Sprintf("0x%02X", uint8(h)), nil }
+
+func trimHex(s string) string {
+	s = strings.TrimSpace(s)
+	if len(s) > 2 && (s[:2] == "0x" || s[:2] == "0X") {
+		return s[2:]
+	}
+	return s
+}
+
+// ValueKindName is a dwi.ValueKind written by name.
+type ValueKindName dwi.ValueKind
+
+// UnmarshalYAML reads FD, FL, DS, IS, SL, UL, SS, US or text.
+func (k *ValueKindName) UnmarshalYAML(n *yaml.Node) error {
+	t, err := scalar(n)
+	if err != nil {
+		return err
+	}
+	v, err := dwi.ParseValueKind(t)
+	if err != nil {
+		*k = valueKindUnreadable
+		return typeError(n, "not a value encoding: use FD, FL, DS, IS, SL, UL, SS, US or text")
+	}
+	*k = ValueKindName(v)
+	return nil
+}
+
+// valueKindUnreadable marks an encoding the decoder already reported.
+const valueKindUnreadable ValueKindName = -1
+
+// MarshalYAML writes the name.
+func (k ValueKindName) MarshalYAML() (any, error) { return dwi.ValueKind(k).String(), nil }
+
+// AnalysisSettings are the analysis settings a site may change
+// (analysis.AnalyzeConfig; the others keep their defaults).
+type AnalysisSettings struct {
+	ParenchymaADCMax float64 `yaml:"parenchyma_adc_max"` // mm²/s: tissue below is parenchyma, above CSF
+	CSFPercentile    float64 `yaml:"csf_percentile"`     // percentile of the head's ADC reported as CSF
+	FreeWaterCeiling float64 `yaml:"free_water_ceiling"` // mm²/s: no tissue diffuses faster
+}
+
+// DefaultAuditConfig is the audit section `dwiaudit serve` and `dwiaudit
+// check` run on without a file: the rules' defaults (rules.DefaultConfig),
+// the analysis' defaults, no private sources.
+func DefaultAuditConfig() AuditConfig {
+	rc := rules.DefaultConfig()
+	a := analysis.DefaultAnalyzeConfig()
+	c := AuditConfig{
+		Settle:         Duration(defaultSettle),
+		Workers:        defaultAuditWorkers,
+		Rules:          map[string]RuleConfig{},
+		PrivateSources: []PrivateSourceConfig{},
+		Thresholds:     rc.Thresholds,
+		Analysis: AnalysisSettings{
+			ParenchymaADCMax: a.ParenchymaADCMax,
+			CSFPercentile:    a.CSFPercentile,
+			FreeWaterCeiling: a.FreeWaterCeiling,
+		},
+	}
+	for _, p := range rc.Protocols {
+		c.Protocols = append(c.Protocols, ProtocolConfig{
+			Name: p.Name, Match: matchConfig(p.Match), BValues: slices.Clone(p.BValues),
+			BValueTolerance: p.BTolerance, LowestB: p.LowestB, MinDirections: p.MinDirections,
+			ParenchymaADC: []float64{p.ParenchymaADC[0], p.ParenchymaADC[1]}, Head: p.Head,
+		})
+	}
+	for _, p := range rc.Phantoms {
+		c.Phantoms = append(c.Phantoms, PhantomConfig{Name: p.Name, Match: matchConfig(p.Match), ExpectedADC: p.ExpectedADC, Tolerance: p.Tolerance})
+	}
+	for id, s := range rc.Rules {
+		r := RuleConfig{}
+		if s.Enabled != nil {
+			r.Enabled = new(*s.Enabled)
+		}
+		if s.Severity != nil {
+			r.Severity = new(SeverityName(*s.Severity))
+		}
+		c.Rules[id] = r
+	}
+	return c
+}
+
+func matchConfig(m rules.Match) MatchConfig {
+	return MatchConfig{SeriesDescription: slices.Clone(m.SeriesDescription), ProtocolName: slices.Clone(m.ProtocolName), BodyPart: slices.Clone(m.BodyPart)}
+}
+
+func (m MatchConfig) rules() rules.Match {
+	return rules.Match{SeriesDescription: slices.Clone(m.SeriesDescription), ProtocolName: slices.Clone(m.ProtocolName), BodyPart: slices.Clone(m.BodyPart)}
+}
+
+// RulesConfig is the configuration the rules read, not yet validated
+// (audit.Engine validates it).
+func (a AuditConfig) RulesConfig() *rules.Config {
+	rc := &rules.Config{Thresholds: a.Thresholds}
+	if len(a.Rules) > 0 {
+		rc.Rules = map[string]rules.RuleSettings{}
+	}
+	for _, p := range a.Protocols {
+		var adcRange [2]float64
+		copy(adcRange[:], p.ParenchymaADC)
+		rc.Protocols = append(rc.Protocols, rules.Protocol{
+			Name: p.Name, Match: p.Match.rules(), BValues: slices.Clone(p.BValues), BTolerance: p.BValueTolerance,
+			LowestB: p.LowestB, MinDirections: p.MinDirections, ParenchymaADC: adcRange, Head: p.Head,
+		})
+	}
+	for _, p := range a.Phantoms {
+		rc.Phantoms = append(rc.Phantoms, rules.PhantomProfile{Name: p.Name, Match: p.Match.rules(), ExpectedADC: p.ExpectedADC, Tolerance: p.Tolerance})
+	}
+	for id, r := range a.Rules {
+		s := rules.RuleSettings{Enabled: r.Enabled}
+		if r.Severity != nil && *r.Severity != severityUnreadable {
+			s.Severity = new(rules.Severity(*r.Severity))
+		}
+		rc.Rules[id] = s
+	}
+	return rc
+}
+
+// AnalyzeConfig is the analysis configuration: the defaults with the
+// section's values.
+func (a AuditConfig) AnalyzeConfig() analysis.AnalyzeConfig {
+	c := analysis.DefaultAnalyzeConfig()
+	c.ParenchymaADCMax = a.Analysis.ParenchymaADCMax
+	c.CSFPercentile = a.Analysis.CSFPercentile
+	c.FreeWaterCeiling = a.Analysis.FreeWaterCeiling
+	return c
+}
+
+// ExtractOptions are the file-reading options: the private sources.
+func (a AuditConfig) ExtractOptions() dwi.ExtractOptions {
+	var o dwi.ExtractOptions
+	for _, p := range a.PrivateSources {
+		o.PrivateSources = append(o.PrivateSources, dwi.PrivateSource{
+			Name: p.Name, Creator: p.Creator, Group: uint16(p.Group), Element: uint8(p.Element),
+			Read: dwi.ValueKind(p.Read), Index: p.Index, Scale: p.Scale,
+		})
+	}
+	return o
+}
+
+// Engine builds the audit engine of the section: every shipped rule,
+// the section's configuration, validated.
+func (a AuditConfig) Engine(log *slog.Logger) (*audit.Engine, error) {
+	e := audit.NewEngine(rules.All(), a.RulesConfig())
+	e.Analysis = a.AnalyzeConfig()
+	e.Extract = a.ExtractOptions()
+	e.Workers = a.Workers
+	e.Logger = log
+	if err := e.Validate(); err != nil {
+		return nil, err
+	}
+	return e, nil
+}
+
+// validate adds the section's problems to p, by field path. The
+// protocols, phantoms, rules and thresholds are judged by the rules'
+// own validation (rules.Config.Validate, which names fields by the same
+// YAML paths); the rest here.
+func (a AuditConfig) validate(p *problems) {
+	if s := time.Duration(a.Settle); s < minSettle || s > maxSettle {
+		p.addf("audit.settle", "%v is outside %v..%v", a.Settle, Duration(minSettle), Duration(maxSettle))
+	}
+	if a.Workers < 1 || a.Workers > audit.MaxWorkers {
+		p.addf("audit.workers", "%d is outside 1..%d", a.Workers, audit.MaxWorkers)
+	}
+
+	names := map[string]int{}
+	for i, pr := range a.Protocols {
+		f := fmt.Sprintf("audit.protocols[%d]", i)
+		p.unique(f+".name", pr.Name, i, names, "audit.protocols")
+		if n := len(pr.ParenchymaADC); n != 0 && n != 2 {
+			p.addf(f+".parenchyma_adc", "want [low, high] in mm²/s, got %d value(s)", n)
+		}
+	}
+	names = map[string]int{}
+	for i, ph := range a.Phantoms {
+		p.unique(fmt.Sprintf("audit.phantoms[%d].name", i), ph.Name, i, names, "audit.phantoms")
+	}
+	if err := a.RulesConfig().Validate(); err != nil {
+		for _, line := range strings.Split(err.Error(), "\n") {
+			*p = append(*p, "audit."+strings.TrimPrefix(line, rules.ErrInvalidConfig.Error()+": "))
+		}
+	}
+
+	for i, s := range a.PrivateSources {
+		f := fmt.Sprintf("audit.private_sources[%d]", i)
+		if strings.TrimSpace(s.Name) == "" {
+			p.addf(f+".name", "empty")
+		}
+		if strings.TrimSpace(s.Creator) == "" {
+			p.addf(f+".creator", "empty: the private creator string that reserves the block (PS3.5 7.8.1)")
+		}
+		// PS3.5 7.8.1: private groups are odd; 0001, 0003, 0005, 0007
+		// and FFFF are not available.
+		if g := uint16(s.Group); g%2 == 0 || g <= 0x0007 || g == 0xFFFF {
+			p.addf(f+".group", "0x%04X is not a private group (odd, 0x0009 to 0xFFFD; PS3.5 7.8.1)", g)
+		}
+		if s.Read == ValueKindName(dwi.ValueInvalid) {
+			p.addf(f+".read", "missing: FD, FL, DS, IS, SL, UL, SS, US or text")
+		}
+		if s.Index < 0 {
+			p.addf(f+".index", "%d is negative", s.Index)
+		}
+		if !(s.Scale >= 0) || math.IsInf(s.Scale, 0) {
+			p.addf(f+".scale", "%v is not a positive number", s.Scale)
+		}
+	}
+
+	an := a.Analysis
+	if !(an.ParenchymaADCMax > 0 && an.ParenchymaADCMax <= maxPlausibleADC) {
+		p.addf("audit.analysis.parenchyma_adc_max", "%v is not an ADC in mm²/s (0 < ADC <= %v)", an.ParenchymaADCMax, maxPlausibleADC)
+	}
+	if !(an.CSFPercentile > 0 && an.CSFPercentile <= 100) {
+		p.addf("audit.analysis.csf_percentile", "%v is outside (0, 100]", an.CSFPercentile)
+	}
+	if !(an.FreeWaterCeiling > 0 && an.FreeWaterCeiling <= maxPlausibleADC) {
+		p.addf("audit.analysis.free_water_ceiling", "%v is not an ADC in mm²/s (0 < ADC <= %v)", an.FreeWaterCeiling, maxPlausibleADC)
+	} else if an.ParenchymaADCMax >= an.FreeWaterCeiling {
+		p.addf("audit.analysis.parenchyma_adc_max", "%v is not below free_water_ceiling %v", an.ParenchymaADCMax, an.FreeWaterCeiling)
+	}
+}
+
+// unique checks that a list entry's name is not another entry's (an
+// empty name is the rules' validation's to report).
+func (p *problems) unique(field, name string, i int, seen map[string]int, list string) {
+	switch j, dup := seen[name]; {
+	case strings.TrimSpace(name) == "":
+	case dup:
+		p.addf(field, "%q is also %s[%d]'s name", name, list, j)
+	default:
+		seen[name] = i
+	}
+}
+
+// LoadAuditConfigFile reads a node configuration file for `dwiaudit
+// check`: only the audit: section counts, so problems of other sections
+// are not reported.
+func LoadAuditConfigFile(path string) (AuditConfig, error) {
+	c, err := LoadConfigFile(path)
+	var ce *ConfigError
+	if !errors.As(err, &ce) {
+		return c.Audit, err
+	}
+	var kept []string
+	for _, pr := range ce.Problems {
+		if !otherSection(pr) {
+			kept = append(kept, pr)
+		}
+	}
+	if len(kept) == 0 {
+		return c.Audit, nil
+	}
+	return c.Audit, &ConfigError{File: ce.File, Problems: kept}
+}
+
+// otherSection says whether a problem names a field outside audit:.
+func otherSection(problem string) bool {
+	for _, s := range []string{"node", "peers", "limits", "retention", "log"} {
+		if strings.HasPrefix(problem, s+".") || strings.HasPrefix(problem, s+"[") || strings.HasPrefix(problem, s+":") {
+			return true
+		}
+	}
+	return false
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	slices.Sort(keys)
+	return keys
 }

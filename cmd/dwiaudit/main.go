@@ -43,6 +43,7 @@ func commands() []command {
 		{"phantom", "write a synthetic diffusion study with a known truth", runPhantom},
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
+		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
 	}
 }
 

@@ -1,0 +1,417 @@
+package audit_test
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"io/fs"
+	"log/slog"
+	"math"
+	"os"
+	"path/filepath"
+	"reflect"
+	"slices"
+	"strings"
+	"testing"
+
+	"dwiaudit/audit"
+	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/phantom"
+	"dwiaudit/rules"
+	"dwiaudit/scp/part10"
+)
+
+// writeStudy writes a small phantom study for the engine's tests.
+func writeStudy(t *testing.T, dir string, opt phantom.Options) *phantom.Study {
+	t.Helper()
+	if opt.Matrix == 0 {
+		opt.Matrix, opt.Slices = 64, 8
+	}
+	st, err := phantom.Write(dir, opt)
+	if err != nil {
+		t.Fatalf("phantom.Write: %v", err)
+	}
+	return st
+}
+
+func newEngine() *audit.Engine {
+	e := audit.NewEngine(rules.All(), rules.DefaultConfig())
+	e.Workers = 2
+	return e
+}
+
+func TestValidateNamesEveryProblem(t *testing.T) {
+	e := audit.NewEngine([]rules.Rule{panicRule{}, panicRule{}, nil}, nil)
+	e.Workers = 0
+	e.Analysis.CSFPercentile = 0
+	e.Tolerances.BValue = -1
+	e.Extract.PrivateSources = []dwi.PrivateSource{{Name: "x", Creator: "ACME", Group: 0x0018}}
+	err := e.Validate()
+	if !errors.Is(err, audit.ErrInvalidEngine) {
+		t.Fatalf("Validate() = %v, want ErrInvalidEngine", err)
+	}
+	for _, want := range []string{"Config: nil", "Rules[1]: ID \"test-panics\" is also Rules[0]'s", "Rules[2]: nil",
+		"Analysis:", "Tolerances:", "Extract.PrivateSources[0]:", "Workers: 0, want 1.."} {
+		if !strings.Contains(err.Error(), want) {
+			t.Errorf("Validate() does not say %q:\n%v", want, err)
+		}
+	}
+	if err := newEngine().Validate(); err != nil {
+		t.Errorf("the default engine is invalid: %v", err)
+	}
+}
+
+func TestAuditFilesRefusesAnInvalidEngine(t *testing.T) {
+	e := newEngine()
+	e.Workers = audit.MaxWorkers + 1
+	if _, err := e.AuditFiles(t.Context(), []string{t.TempDir()}); !errors.Is(err, audit.ErrInvalidEngine) {
+		t.Errorf("AuditFiles = %v, want ErrInvalidEngine", err)
+	}
+}
+
+func TestAuditFilesSkipsWhatIsNotDICOMAndCountsIt(t *testing.T) {
+	dir := t.TempDir()
+	st := writeStudy(t, filepath.Join(dir, "study"), phantom.Options{})
+	for _, name := range []string{"README.txt", "study/notes.md"} {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte("not DICOM\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.NotDICOM != 2 || rep.Files != len(st.Files)+2 {
+		t.Errorf("files %d, not DICOM %d; want %d and 2", rep.Files, rep.NotDICOM, len(st.Files)+2)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].SeriesUID == "" || rep.Series[0].Protocol != "brain" {
+		t.Errorf("series %+v, want the one DWI series matched to the brain protocol", rep.Series)
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("clean study gave %s %s: %s", f.Severity, f.Rule, f.Message)
+		}
+	}
+}
+
+func TestSeriesReportCarriesIdentityBValuesAndMeasures(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{Seed: 4})
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 {
+		t.Fatalf("%d series, want 1", len(rep.Series))
+	}
+	s := rep.Series[0]
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	if s.StudyUID != st.StudyUID || s.SeriesUID != dwiInfo.UID || s.SeriesNumber != dwiInfo.Number || s.SeriesDescription != dwiInfo.Description {
+		t.Errorf("identity %+v, want study %s series %s #%d %q", s, st.StudyUID, dwiInfo.UID, dwiInfo.Number, dwiInfo.Description)
+	}
+	if s.Scanner != phantom.Scanners()[0].Station {
+		t.Errorf("scanner %q, want the station name %q (no label configured)", s.Scanner, phantom.Scanners()[0].Station)
+	}
+	if !slices.Equal(s.BValues, []float64{0, 1000}) {
+		t.Errorf("b-values %v, want [0 1000]", s.BValues)
+	}
+	// The phantom's white matter is 0.70e-3 mm²/s (Helenius 2002 via
+	// DOMAIN.md) and most of the parenchyma; its cortex 0.89e-3.
+	if m := s.Measures.ParenchymaMedianADC; !(m > 0.6e-3 && m < 0.9e-3) {
+		t.Errorf("tissue ADC %v, want the phantom's parenchyma (0.70-0.89e-3 mm²/s)", m)
+	}
+	if s.CannotCompute != "" {
+		t.Errorf("cannot compute %q", s.CannotCompute)
+	}
+}
+
+func TestAFileOfUnknownStudyGivesAFileLevelFinding(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	// A transfer syntax nobody knows: the header cannot be read, so the
+	// study is unknown (PS3.10 7.1: the meta is readable, the data set
+	// is not).
+	path := st.Files[0]
+	rewriteSyntax(t, path, "1.2.826.0.1.3680043.10.9999.1")
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	i := slices.IndexFunc(rep.Findings, func(f rules.Finding) bool { return f.Rule == rules.IDAuditFailed && f.StudyUID == "" })
+	if i < 0 {
+		t.Fatalf("no file-level audit-failed finding among %v", rep.Findings)
+	}
+	if f := rep.Findings[i]; !strings.Contains(f.Message, path) || f.SeriesUID != "" {
+		t.Errorf("file-level finding %+v, want the path and no series", f)
+	}
+	if i != 0 {
+		t.Errorf("the file-level finding is at %d, want it first", i)
+	}
+}
+
+func TestASeriesNoneOfWhoseFilesReadStillGetsItsSeriesAndFinding(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	for _, p := range dwiInfo.Files {
+		info, err := os.Stat(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := os.Truncate(p, info.Size()-10); err != nil {
+			t.Fatal(err)
+		}
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].SeriesUID != dwiInfo.UID || rep.Series[0].SeriesNumber != dwiInfo.Number ||
+		rep.Series[0].SeriesDescription != dwiInfo.Description || rep.Series[0].CannotCompute == "" {
+		t.Fatalf("series %+v, want the DWI series from its headers, not computed", rep.Series)
+	}
+	if len(rep.Findings) != 1 || rep.Findings[0].Rule != rules.IDAuditFailed || rep.Findings[0].SeriesUID != dwiInfo.UID ||
+		!strings.Contains(rep.Findings[0].Message, "cannot be read") {
+		t.Errorf("findings %+v, want one audit-failed on the series", rep.Findings)
+	}
+}
+
+func TestAB0OnlySeriesThatLendsItsB0IsNoAuditFailure(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{B0Series: true})
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 2 {
+		t.Fatalf("%d series, want the b0 series and the DWI series", len(rep.Series))
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("%s %s on series %d: %s", f.Severity, f.Rule, f.SeriesNumber, f.Message)
+		}
+	}
+}
+
+func TestSeverityOverridesAndSwitchesApply(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{Case: phantom.CaseNoB0})
+	info := rules.SeverityInfo
+	off := false
+	tests := []struct {
+		name     string
+		settings rules.RuleSettings
+		want     []rules.Severity // severities of missing-b0's findings
+	}{
+		{"the rule's own severity stands without settings", rules.RuleSettings{}, []rules.Severity{rules.SeverityError}},
+		{"a configured severity replaces it", rules.RuleSettings{Severity: &info}, []rules.Severity{rules.SeverityInfo}},
+		{"a disabled rule gives nothing", rules.RuleSettings{Enabled: &off}, nil},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			cfg := rules.DefaultConfig()
+			cfg.Rules = map[string]rules.RuleSettings{rules.IDMissingB0: tt.settings}
+			e := audit.NewEngine(rules.All(), cfg)
+			rep, err := e.AuditFiles(t.Context(), []string{st.Dir})
+			if err != nil {
+				t.Fatal(err)
+			}
+			var got []rules.Severity
+			for _, f := range rep.Findings {
+				if f.Rule == rules.IDMissingB0 {
+					got = append(got, f.Severity)
+				}
+			}
+			if !slices.Equal(got, tt.want) {
+				t.Errorf("missing-b0 severities %v, want %v", got, tt.want)
+			}
+		})
+	}
+}
+
+func TestFindingsAreOrderedByStudySeriesAndRule(t *testing.T) {
+	root := t.TempDir()
+	for _, c := range []phantom.Case{phantom.CaseSlicePositions, phantom.CaseNoB0, phantom.CaseBValueSetDiffers, phantom.CaseMissingSlices} {
+		writeStudy(t, filepath.Join(root, string(c)), phantom.Options{Case: c, Seed: 9})
+	}
+	e := newEngine()
+	rep, err := e.AuditFiles(t.Context(), []string{root})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Findings) < 4 {
+		t.Fatalf("%d findings, want one or more per study", len(rep.Findings))
+	}
+	sorted := slices.IsSortedFunc(rep.Findings, func(a, b rules.Finding) int {
+		if c := strings.Compare(a.StudyUID, b.StudyUID); c != 0 {
+			return c
+		}
+		if a.SeriesNumber != b.SeriesNumber {
+			return a.SeriesNumber - b.SeriesNumber
+		}
+		if c := strings.Compare(a.SeriesUID, b.SeriesUID); c != 0 {
+			return c
+		}
+		return strings.Compare(a.Rule, b.Rule)
+	})
+	if !sorted {
+		t.Error("findings are not ordered by study, series number, series and rule")
+	}
+	again, err := newEngine().AuditFiles(t.Context(), []string{root})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(findingKeys(rep), findingKeys(again)) {
+		t.Error("a second audit of the same files gives other findings or another order")
+	}
+}
+
+// findingKeys is what must not change between two audits of the same
+// files.
+func findingKeys(rep *audit.Report) []string {
+	var out []string
+	for _, f := range rep.Findings {
+		out = append(out, strings.Join([]string{f.StudyUID, f.SeriesUID, f.Rule, f.Severity.String(), f.Message}, "|"))
+	}
+	return out
+}
+
+func TestAuditFramesGivesWhatAuditFilesGives(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{Case: phantom.CaseMissingSlices, MultiFrame: true})
+	var frames []dwi.Frame
+	for _, p := range st.Files {
+		fr, err := dwi.ExtractFile(p, dwi.ExtractOptions{LoadPixels: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		frames = append(frames, fr...)
+	}
+	e := newEngine()
+	fromFrames, err := e.AuditFrames(t.Context(), frames)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fromFiles, err := e.AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(findingKeys(fromFrames), findingKeys(fromFiles)) {
+		t.Errorf("frames gave\n%v\nfiles gave\n%v", findingKeys(fromFrames), findingKeys(fromFiles))
+	}
+	if len(fromFrames.Studies) != 1 || fromFrames.Studies[0].StudyUID != st.StudyUID || len(fromFiles.Studies) != 0 {
+		t.Errorf("studies kept: frames %d, files %d; want 1 and 0 (KeepStudies off)", len(fromFrames.Studies), len(fromFiles.Studies))
+	}
+	if !slices.ContainsFunc(fromFrames.Findings, func(f rules.Finding) bool { return f.Rule == rules.IDIncompleteSeries }) {
+		t.Error("incomplete-series did not fire on the missing-slices case")
+	}
+}
+
+func TestKeepStudiesKeepsThem(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	e := newEngine()
+	e.KeepStudies = true
+	rep, err := e.AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Studies) != 1 || len(rep.Studies[0].Series) != 1 || !rep.Studies[0].Series[0].Computed() {
+		t.Errorf("studies %+v, want the one computed study", rep.Studies)
+	}
+}
+
+func TestAuditFilesReportsPathsThatAreNotThere(t *testing.T) {
+	_, err := newEngine().AuditFiles(t.Context(), []string{filepath.Join(t.TempDir(), "nowhere")})
+	if !errors.Is(err, fs.ErrNotExist) {
+		t.Errorf("AuditFiles = %v, want fs.ErrNotExist", err)
+	}
+}
+
+func TestAuditFilesStopsWhenCancelled(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	ctx, cancel := context.WithCancel(t.Context())
+	cancel()
+	if _, err := newEngine().AuditFiles(ctx, []string{st.Dir}); !errors.Is(err, context.Canceled) {
+		t.Errorf("AuditFiles = %v, want context.Canceled", err)
+	}
+}
+
+func TestNotComputedMeasuresAreNaN(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{Case: phantom.CaseNoB0})
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := rep.Series[0].Measures
+	if !math.IsNaN(m.ParenchymaMedianADC) || !math.IsNaN(m.CSFADC) || !math.IsNaN(m.B0SNR) || rep.Series[0].CannotCompute == "" {
+		t.Errorf("measures %+v, cannot compute %q; want NaN and a reason", m, rep.Series[0].CannotCompute)
+	}
+}
+
+// rewriteSyntax rewrites a file's Transfer Syntax UID (0002,0010).
+func rewriteSyntax(t *testing.T, path, ts string) {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta, off, err := part10.ReadMeta(bytes.NewReader(b))
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta.TransferSyntaxUID = ts
+	var out bytes.Buffer
+	if err := part10.WriteHeader(&out, meta); err != nil {
+		t.Fatal(err)
+	}
+	out.Write(b[off:])
+	if err := os.WriteFile(path, out.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+}
+
+func TestOneBadStudyDoesNotStopTheOthers(t *testing.T) {
+	root := t.TempDir()
+	bad := writeStudy(t, filepath.Join(root, "bad"), phantom.Options{Seed: 1})
+	for _, p := range bad.Files {
+		if err := os.Truncate(p, 200); err != nil { // the header is cut too
+			t.Fatal(err)
+		}
+	}
+	good := writeStudy(t, filepath.Join(root, "good"), phantom.Options{Case: phantom.CaseNoB0, Seed: 2})
+	rep, err := newEngine().AuditFiles(t.Context(), []string{root})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.ContainsFunc(rep.Findings, func(f rules.Finding) bool { return f.Rule == rules.IDMissingB0 && f.StudyUID == good.StudyUID }) {
+		t.Error("the good study's missing-b0 is missing")
+	}
+	if n := len(slices.DeleteFunc(slices.Clone(rep.Findings), func(f rules.Finding) bool { return f.Rule != rules.IDAuditFailed })); n == 0 {
+		t.Error("the bad files gave no audit-failed finding")
+	}
+}
+
+func TestAPanickingRuleIsLoggedWithoutPatientData(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var logs bytes.Buffer
+	e := audit.NewEngine(append(rules.All(), panicRule{}), rules.DefaultConfig())
+	e.Logger = slog.New(slog.NewTextHandler(&logs, nil))
+	rep, err := e.AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.ContainsFunc(rep.Findings, func(f rules.Finding) bool { return f.Rule == rules.IDAuditFailed }) {
+		t.Error("no audit-failed finding for the panicking rule")
+	}
+	if !strings.Contains(logs.String(), "rule panicked") || !strings.Contains(logs.String(), panicRuleID) {
+		t.Errorf("log lacks the panic:\n%s", logs.String())
+	}
+	// The phantom's invented patient (phantom.Options defaults).
+	if strings.Contains(logs.String(), "SYNTHETIC^CASE") || strings.Contains(logs.String(), "HGH-SYN-0001") {
+		t.Error("the log carries patient identifiers")
+	}
+}

@@ -1,0 +1,274 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+
+	"dwiaudit/audit"
+	"dwiaudit/audit/analysis"
+	"dwiaudit/audit/phantom"
+	"dwiaudit/rules"
+	"dwiaudit/scp/part10"
+)
+
+// checkStudy writes a small phantom study for the check tests.
+func checkStudy(t *testing.T, c phantom.Case) string {
+	t.Helper()
+	return checkStudySeed(t, c, 3)
+}
+
+// checkStudySeed is checkStudy with another seed: another study (the
+// UIDs depend on the seed).
+func checkStudySeed(t *testing.T, c phantom.Case, seed int64) string {
+	t.Helper()
+	st, err := phantom.Write(filepath.Join(t.TempDir(), string(c)), phantom.Options{Case: c, Matrix: 64, Slices: 8, Seed: seed})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return st.Dir
+}
+
+// compressedStudy is a clean study with one file claiming JPEG Baseline
+// (PS3.5 A.4, PS3.6 Table A-1: 1.2.840.10008.1.2.4.50) over native
+// pixels: the audit gives audit-failed, at severity warning
+// (rules.AuditFailed), and nothing else.
+func compressedStudy(t *testing.T) string {
+	t.Helper()
+	dir := checkStudySeed(t, phantom.CaseClean, 5)
+	var files []string
+	filepath.WalkDir(dir, func(p string, d os.DirEntry, err error) error {
+		if err == nil && d.Type().IsRegular() {
+			files = append(files, p)
+		}
+		return nil
+	})
+	slices.Sort(files)
+	path := files[len(files)/2]
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta, off, err := part10.ReadMeta(bytes.NewReader(b))
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta.TransferSyntaxUID = "1.2.840.10008.1.2.4.50"
+	var out bytes.Buffer
+	if err := part10.WriteHeader(&out, meta); err != nil {
+		t.Fatal(err)
+	}
+	out.Write(b[off:])
+	if err := os.WriteFile(path, out.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return dir
+}
+
+func TestCheckExitCodes(t *testing.T) {
+	clean := checkStudy(t, phantom.CaseClean)
+	noB0 := checkStudy(t, phantom.CaseNoB0)
+	compressed := compressedStudy(t)
+	cfg := filepath.Join(t.TempDir(), "node.yaml")
+	if err := os.WriteFile(cfg, []byte("audit:\n  rules:\n    missing-b0: {severity: warning}\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	badCfg := filepath.Join(t.TempDir(), "bad.yaml")
+	if err := os.WriteFile(badCfg, []byte("audit:\n  workers: 0\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	tests := []struct {
+		name string
+		args []string
+		want int
+	}{
+		{"a clean study exits 0", []string{clean}, exitOK},
+		{"an error finding exits 1", []string{noB0}, exitFailure},
+		{"a warning does not fail by default", []string{compressed}, exitOK},
+		{"a warning fails with --fail-on warning", []string{"--fail-on", "warning", compressed}, exitFailure},
+		{"a severity lowered in the configuration no longer fails", []string{"--config", cfg, noB0}, exitOK},
+		{"no path is a usage error", nil, exitUsage},
+		{"an unknown format is a usage error", []string{"--format", "xml", clean}, exitUsage},
+		{"--fail-on info is a usage error", []string{"--fail-on", "info", clean}, exitUsage},
+		{"an invalid configuration is a usage error", []string{"--config", badCfg, clean}, exitUsage},
+		{"a missing configuration file is a usage error", []string{"--config", filepath.Join(t.TempDir(), "none.yaml"), clean}, exitUsage},
+		{"a path that is not there is a usage error", []string{filepath.Join(t.TempDir(), "nowhere")}, exitUsage},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			r := runCLI(t, append([]string{"check"}, tt.args...)...)
+			if r.code != tt.want {
+				t.Errorf("exit code %d, want %d", r.code, tt.want)
+			}
+		})
+	}
+}
+
+func TestCheckTextShowsSeriesFindingsAndTheCaution(t *testing.T) {
+	r := runCLI(t, "check", checkStudy(t, phantom.CaseNoB0), checkStudy(t, phantom.CaseClean))
+	for _, want := range []string{
+		"2 diffusion series in 2 studies",
+		"SERIES", "DESCRIPTION", "TISSUE ADC", "CSF ADC", "B0 SNR",
+		"DWI b0 b1000 3dir", "brain", "0,1000",
+		"SEVERITY", "RULE", "error", rules.IDMissingB0,
+		"1 error",
+		// DOMAIN.md, Safety wording: every report that shows findings.
+		"dwiaudit checks acquisitions; it does not diagnose. Clinical decisions rest with the radiologist and local policy.",
+	} {
+		if !strings.Contains(r.stdout, want) {
+			t.Errorf("text output lacks %q:\n%s", want, r.stdout)
+		}
+	}
+	if r := runCLI(t, "check", checkStudy(t, phantom.CaseClean)); !strings.Contains(r.stdout, "No findings.") || !strings.Contains(r.stdout, cautionLine) {
+		t.Errorf("clean text output:\n%s", r.stdout)
+	}
+}
+
+// The key set of `dwiaudit check --format json` (issue 5, item 4): a
+// stable interface, exactly these names.
+var (
+	checkTopKeys     = []string{"findings", "series"}
+	checkSeriesKeys  = []string{"bvalues", "measures", "protocol", "scanner", "series_description", "series_number", "series_uid", "study_uid"}
+	checkMeasureKeys = []string{"b0_snr", "csf_adc", "tissue_adc_median"}
+	checkFindingKeys = []string{"expected", "measured", "message", "rule", "series_uid", "severity", "study_uid"}
+)
+
+// TestCheckJSONIsStable pins the key set and the types of every value,
+// on a real run: a computed series, one not computed (nulls), findings.
+func TestCheckJSONIsStable(t *testing.T) {
+	r := runCLI(t, "check", "--format", "json", checkStudy(t, phantom.CaseClean), checkStudy(t, phantom.CaseNoB0), compressedStudy(t))
+	if r.code != exitFailure {
+		t.Errorf("exit code %d, want 1 (missing-b0 is an error)", r.code)
+	}
+	var top map[string]any
+	if err := json.Unmarshal([]byte(r.stdout), &top); err != nil {
+		t.Fatalf("not JSON: %v\n%s", err, r.stdout)
+	}
+	wantKeys(t, "top level", top, checkTopKeys)
+	series, _ := top["series"].([]any)
+	findings, _ := top["findings"].([]any)
+	if len(series) != 3 || len(findings) < 2 {
+		t.Fatalf("%d series and %d findings, want 3 and at least 2", len(series), len(findings))
+	}
+	sawNull, sawNumber := false, false
+	for _, s := range series {
+		m, ok := s.(map[string]any)
+		if !ok {
+			t.Fatalf("series entry %T", s)
+		}
+		wantKeys(t, "series", m, checkSeriesKeys)
+		for _, k := range []string{"study_uid", "series_uid", "series_description", "scanner", "protocol"} {
+			wantType[string](t, "series."+k, m[k])
+		}
+		wantType[float64](t, "series.series_number", m["series_number"])
+		for _, b := range wantType[[]any](t, "series.bvalues", m["bvalues"]) {
+			wantType[float64](t, "series.bvalues[]", b)
+		}
+		meas := wantType[map[string]any](t, "series.measures", m["measures"])
+		wantKeys(t, "series.measures", meas, checkMeasureKeys)
+		for _, k := range checkMeasureKeys {
+			switch v := meas[k].(type) {
+			case nil:
+				sawNull = true
+			case float64:
+				sawNumber = true
+			default:
+				t.Errorf("measures.%s is %T, want a number or null", k, v)
+			}
+		}
+		if adc, ok := meas["tissue_adc_median"].(float64); ok && !(adc > 0.0005 && adc < 0.001) {
+			t.Errorf("tissue_adc_median %v: want mm²/s, about 0.0007 for the phantom's white matter (Helenius 2002 via DOMAIN.md)", adc)
+		}
+	}
+	if !sawNull || !sawNumber {
+		t.Errorf("measures: saw null %v, number %v; want both (a computed series and one not computed)", sawNull, sawNumber)
+	}
+	for _, f := range findings {
+		m := wantType[map[string]any](t, "finding", f)
+		wantKeys(t, "finding", m, checkFindingKeys)
+		for _, k := range []string{"rule", "severity", "study_uid", "series_uid", "message"} {
+			wantType[string](t, "finding."+k, m[k])
+		}
+		if sev := m["severity"]; sev != "info" && sev != "warning" && sev != "error" {
+			t.Errorf("severity %v", sev)
+		}
+	}
+}
+
+func wantKeys(t *testing.T, what string, m map[string]any, want []string) {
+	t.Helper()
+	var got []string
+	for k := range m {
+		got = append(got, k)
+	}
+	slices.Sort(got)
+	if !slices.Equal(got, want) {
+		t.Errorf("%s keys %v, want exactly %v", what, got, want)
+	}
+}
+
+func wantType[T any](t *testing.T, what string, v any) T {
+	t.Helper()
+	x, ok := v.(T)
+	if !ok {
+		var zero T
+		t.Errorf("%s is %T (%v), want %T", what, v, v, zero)
+	}
+	return x
+}
+
+// TestCheckJSONGolden pins the bytes of the JSON for a fixed report:
+// names, order, number formatting, null for NaN, [] for no b-values.
+// Regenerate testdata/check.golden.json only for a deliberate format
+// change (DWIAUDIT_UPDATE_GOLDEN=1).
+func TestCheckJSONGolden(t *testing.T) {
+	nan := math.NaN()
+	rep := &audit.Report{
+		Series: []audit.SeriesReport{
+			{
+				StudyUID: "2.25.1", SeriesUID: "2.25.1.2", SeriesNumber: 2, SeriesDescription: "DWI b0 b1000 3dir",
+				Scanner: "HGH-MR1", Protocol: "brain", BValues: []float64{0, 1000},
+				Measures: analysis.Measures{ParenchymaMedianADC: 0.00079, CSFADC: 0.00301, B0SNR: 58.25},
+			},
+			{
+				StudyUID: "2.25.1", SeriesUID: "2.25.1.3", SeriesNumber: 3, SeriesDescription: "DWI b1000",
+				Measures: analysis.Measures{ParenchymaMedianADC: nan, CSFADC: nan, B0SNR: math.Inf(1)}, CannotCompute: "no b0",
+			},
+		},
+		Findings: []rules.Finding{
+			{Rule: rules.IDMissingB0, Severity: rules.SeverityError, StudyUID: "2.25.1", SeriesUID: "2.25.1.3", SeriesNumber: 3,
+				Message: "no b0", Measured: []float64{1000}, Expected: 0.0},
+			{Rule: rules.IDADCOutOfRange, Severity: rules.SeverityWarning, StudyUID: "2.25.1", SeriesUID: "2.25.1.2", SeriesNumber: 2,
+				Message: "CSF ADC low", Measured: 0.0021, Expected: []float64{0.00255, 0.00345}},
+			{Rule: rules.IDAuditFailed, Severity: rules.SeverityInfo, StudyUID: "2.25.1", SeriesUID: "2.25.1.2",
+				Message: "odd", Measured: nan, Expected: "a series the audit can read and compute"},
+		},
+	}
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(checkBody(rep)); err != nil {
+		t.Fatal(err)
+	}
+	golden := filepath.Join("testdata", "check.golden.json")
+	if os.Getenv("DWIAUDIT_UPDATE_GOLDEN") == "1" {
+		if err := os.MkdirAll("testdata", 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(golden)
+	if err != nil {
+		t.Fatalf("%v (run with DWIAUDIT_UPDATE_GOLDEN=1 to create it)", err)
+	}
+	if !bytes.Equal(buf.Bytes(), want) {
+		t.Errorf("JSON differs from %s:\n%s", golden, buf.String())
+	}
+}
