@@ -24,22 +24,32 @@ type studyLister interface {
 	Ping() error
 }
 
+// findingsLister is what GET /api/v1/findings needs of the store
+// (*store.Store has it; a lister without it answers that endpoint with
+// 404).
+type findingsLister interface {
+	Findings(day string) ([]store.AuditRecord, error)
+}
+
 // api serves the HTTP endpoints.
 type api struct {
-	store   studyLister
-	loc     *time.Location // receive times are shown in the node's time zone
-	dicomUp func() bool    // whether the DICOM acceptor is serving
-	log     *slog.Logger
+	store    studyLister
+	findings findingsLister // nil when the store keeps no audits
+	loc      *time.Location // receive times are shown in the node's time zone
+	dicomUp  func() bool    // whether the DICOM acceptor is serving
+	log      *slog.Logger
 }
 
 func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger) http.Handler {
 	a := &api{store: st, loc: loc, dicomUp: dicomUp, log: log}
+	a.findings, _ = st.(findingsLister)
 	mux := http.NewServeMux()
 	// Patterns without a method, and getOnly inside, so that a wrong
 	// method gets a JSON 405 like every other error.
 	mux.HandleFunc("/healthz", getOnly(a.healthz))
 	mux.HandleFunc("/readyz", getOnly(a.readyz))
 	mux.HandleFunc("/api/v1/studies", getOnly(a.studies))
+	mux.HandleFunc("/api/v1/findings", getOnly(a.findingsOfDay))
 	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusNotFound, fmt.Sprintf("no such endpoint %q", r.URL.Path))
 	})
@@ -205,4 +215,74 @@ func studiesBody(day string, list []store.Study, loc *time.Location) StudiesResp
 		out.Bytes += sj.Bytes
 	}
 	return out
+}
+
+// FindingsResponse is the body of GET /api/v1/findings: the current
+// audit of every series audited on the day (by audit time, in the
+// node's time zone). A series audited again shows only its newest audit.
+type FindingsResponse struct {
+	Day    string      `json:"day"`
+	Audits []AuditJSON `json:"audits"` // oldest audit first
+}
+
+// AuditJSON is one audit of one series. Findings are as the audit
+// stored them (rules.Finding as JSON: rule, severity, UIDs, message,
+// measured, expected); Measures are the series' computed measures
+// (null when the series was not computed).
+type AuditJSON struct {
+	AuditTime       time.Time       `json:"audit_time"`
+	StudyUID        string          `json:"study_uid"`
+	SeriesUID       string          `json:"series_uid"`
+	Scanner         string          `json:"scanner"`
+	AccessionNumber string          `json:"accession_number"`
+	Findings        json.RawMessage `json:"findings"`
+	Measures        json.RawMessage `json:"measures"`
+}
+
+// findingsOfDay lists the audits of ?day=YYYY-MM-DD (today in the
+// node's time zone when absent).
+func (a *api) findingsOfDay(w http.ResponseWriter, r *http.Request) {
+	if a.findings == nil {
+		writeError(w, http.StatusNotFound, "this node keeps no audits")
+		return
+	}
+	day := r.URL.Query().Get("day")
+	if day == "" {
+		day = time.Now().In(a.loc).Format(dayLayout)
+	}
+	if _, err := time.Parse(dayLayout, day); err != nil {
+		writeError(w, http.StatusBadRequest, fmt.Sprintf("day %q is not YYYY-MM-DD", day))
+		return
+	}
+	list, err := a.findings.Findings(day)
+	if errors.Is(err, store.ErrClosed) {
+		writeError(w, http.StatusServiceUnavailable, "the node is stopping")
+		return
+	}
+	if err != nil {
+		a.log.Error("listing findings failed", "err", err)
+		writeError(w, http.StatusInternalServerError, "listing findings failed: "+err.Error())
+		return
+	}
+	body := FindingsResponse{Day: day, Audits: make([]AuditJSON, 0, len(list))}
+	for _, rec := range list {
+		measures := rec.Measures
+		if len(measures) == 0 {
+			measures = json.RawMessage("null")
+		}
+		findings := rec.Findings
+		if len(findings) == 0 {
+			findings = json.RawMessage("[]")
+		}
+		body.Audits = append(body.Audits, AuditJSON{
+			AuditTime:       rec.AuditTime.In(a.loc),
+			StudyUID:        rec.StudyInstanceUID,
+			SeriesUID:       rec.SeriesUID,
+			Scanner:         rec.Scanner,
+			AccessionNumber: rec.AccessionNumber,
+			Findings:        findings,
+			Measures:        measures,
+		})
+	}
+	writeJSON(w, http.StatusOK, body)
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"io"
+	"time"
 
 	"dwiaudit/scp"
 	"dwiaudit/scp/dimse"
@@ -15,23 +16,47 @@ type instancePutter interface {
 	Put(ctx context.Context, req store.PutRequest, data io.Reader) (store.InstanceRef, error)
 }
 
+// instanceLooker finds the study and series of a stored instance.
+type instanceLooker interface {
+	Instance(sopUID string) (store.Instance, error)
+}
+
+// auditNotifier is told about each committed instance (audit.Pipeline).
+type auditNotifier interface {
+	Notify(seriesUID, studyUID string, at time.Time)
+}
+
 // ingest is the acceptor's StoreHandler: it streams each C-STORE data set
 // into the store, which returns only once the instance is durable, so a
 // success status is never sent for something the node does not have.
+// Each instance committed (not an identical duplicate, which changes
+// nothing to audit) is then told to the audit pipeline, when there is
+// one.
 type ingest struct {
-	store instancePutter
-	peers *peerTable
+	store     instancePutter
+	peers     *peerTable
+	instances instanceLooker // with audit
+	audit     auditNotifier  // nil: no audit
 }
 
 // HandleStore implements scp.StoreHandler.
 func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
-	_, err := h.store.Put(ctx, store.PutRequest{
+	ref, err := h.store.Put(ctx, store.PutRequest{
 		SOPClassUID:       req.SOPClassUID,
 		SOPInstanceUID:    req.SOPInstanceUID,
 		TransferSyntaxUID: req.TransferSyntaxUID,
 		CallingAETitle:    req.CallingAETitle,
 		ScannerLabel:      h.peers.scanner(req.CallingAETitle),
 	}, req.Data)
+	if err == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
+		// The time is taken after the commit, so that an audit that
+		// listed the series' files before it cannot take the series
+		// off the pending list (store.ClearPending).
+		at := time.Now()
+		if in, lerr := h.instances.Instance(ref.SOPInstanceUID); lerr == nil {
+			h.audit.Notify(in.SeriesInstanceUID, in.StudyInstanceUID, at)
+		}
+	}
 	return storeStatus(err)
 }
 

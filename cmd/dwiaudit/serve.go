@@ -1,8 +1,8 @@
 package main
 
 // `dwiaudit serve`: the running node. Wiring, in order: configuration ->
-// store -> DICOM acceptor -> HTTP server -> pruning; and back down on
-// SIGINT/SIGTERM.
+// store -> audit pipeline -> DICOM acceptor -> HTTP server -> pruning;
+// and back down on SIGINT/SIGTERM.
 
 import (
 	"context"
@@ -18,6 +18,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"dwiaudit/audit"
 	"dwiaudit/scp"
 	"dwiaudit/store"
 )
@@ -58,6 +59,7 @@ func runServe(ctx context.Context, env *cliEnv, args []string) int {
 	fs.String("ae-title", "", "our AE title (overrides node.ae_title; default "+scp.DefaultAETitle+")")
 	fs.String("log-format", "", "text or json (overrides log.format; default text)")
 	fs.String("log-level", "", "debug, info, warn or error (overrides log.level; default info)")
+	fs.String("settle", "", "how long a study must receive nothing before it is audited, e.g. 2s (overrides audit.settle; default "+Duration(defaultSettle).String()+")")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -105,6 +107,10 @@ func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
 		case "log-format":
 			if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
 				flagProblems = append(flagProblems, "--log-format: "+err.Error())
+			}
+		case "settle":
+			if err := cfg.Audit.Settle.UnmarshalText([]byte(v)); err != nil {
+				flagProblems = append(flagProblems, "--settle: "+err.Error())
 			}
 		case "log-level":
 			if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
@@ -168,6 +174,29 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		}
 	}()
 
+	eng, err := cfg.Audit.Engine(log.With("component", "audit"))
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
+	pipe := &audit.Pipeline{
+		Engine:  eng,
+		Store:   st,
+		Settle:  time.Duration(cfg.Audit.Settle),
+		Workers: cfg.Audit.Workers,
+		Logger:  log.With("component", "audit"),
+	}
+	if err := pipe.Start(context.Background()); err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitFailure
+	}
+	pipeClosed := false
+	defer func() {
+		if !pipeClosed {
+			pipe.Close()
+		}
+	}()
+
 	dl, err := net.Listen("tcp", cfg.Node.DICOMListen)
 	if err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve: DICOM listener:", err)
@@ -190,7 +219,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
 		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
 		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
-		Handler:                &ingest{store: st, peers: peers},
+		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe},
 		Logger:                 log.With("component", "scp"),
 	}
 	var dicomUp atomic.Bool
@@ -217,7 +246,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	fmt.Fprintf(env.stdout, "%s%s\n", listeningHTTPPrefix, hl.Addr())
 	log.Info("node started", "dicom", dl.Addr().String(), "ae_title", cfg.Node.AETitle, "http", hl.Addr().String(),
 		"data_dir", dataDir, "peers", len(cfg.Peers), "disk_floor", cfg.Limits.DiskFloor.String(),
-		"retention", cfg.Retention.InstanceFiles.String())
+		"retention", cfg.Retention.InstanceFiles.String(), "settle", cfg.Audit.Settle.String())
 
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
@@ -250,6 +279,10 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	cancel()
 	stopPrune()
 	pruning.Wait()
+	// Audits in flight are cancelled; their series stay pending in the
+	// store and are audited after the next start.
+	pipeClosed = true
+	pipe.Close()
 	storeClosed = true
 	if err := st.Close(); err != nil {
 		log.Error("closing the store failed", "err", err)

@@ -1,0 +1,472 @@
+package audit
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"path/filepath"
+	"runtime/debug"
+	"slices"
+	"sync"
+	"time"
+
+	"dwiaudit/rules"
+	"dwiaudit/store"
+)
+
+// Limits of the pipeline.
+const (
+	// DefaultAuditTimeout bounds one study's audit. A 300-image series
+	// audits in under a second (DEVELOPERS.md); a study of a few such
+	// series over a slow disk stays far under two minutes, and anything
+	// longer is stuck and must not hold a worker for ever.
+	DefaultAuditTimeout = 2 * time.Minute
+)
+
+// ErrPipeline: the pipeline's fields cannot work or it was started
+// twice.
+var ErrPipeline = errors.New("audit: invalid pipeline")
+
+// PipelineStore is what the pipeline needs of the store (*store.Store
+// has it): the pending list, the audits, and a study's files.
+type PipelineStore interface {
+	MarkPending(seriesUID, studyUID string, at time.Time) error
+	Pending() ([]store.PendingSeries, error)
+	ClearPending(seriesUID string, auditedAt time.Time) error
+	SaveAudit(rec store.AuditRecord) error
+	Study(uid string) (store.Study, error)
+	Instances(seriesUID string) ([]store.Instance, error)
+	Dir() string
+}
+
+// Pipeline audits what the node receives: a study is audited once none
+// of its series received an instance for Settle; a later instance opens
+// it again, and the new audit replaces the findings of the old one (the
+// store keeps the history). Which series await an audit is kept in the
+// store, so a restart loses none.
+//
+// The settle clock runs per study, not per series: the audit reads the
+// whole study (a series may borrow its b0 from another), so auditing it
+// while another of its series still arrives would be redone anyway.
+type Pipeline struct {
+	Engine *Engine
+	Store  PipelineStore
+	// Settle is how long a study must be quiet before it is audited.
+	Settle time.Duration
+	// Workers is how many studies are audited at once (each holds one
+	// study's pixels and maps).
+	Workers int
+	// Timeout bounds one study's audit; DefaultAuditTimeout when zero.
+	Timeout time.Duration
+	// Now is the clock of audit times; time.Now when nil.
+	Now func() time.Time
+	// Logger gets UIDs, counts and errors, never patient data. Nil
+	// discards.
+	Logger *slog.Logger
+
+	mu      sync.Mutex
+	started bool
+	closed  bool
+	studies map[string]*studyState
+	ctx     context.Context
+	cancel  context.CancelFunc
+	queue   chan string
+	workers sync.WaitGroup
+	feeders sync.WaitGroup
+}
+
+// studyState is the in-memory schedule of one study.
+type studyState struct {
+	timer   *time.Timer // settle timer, nil when none runs
+	running bool        // a worker audits it now
+	again   bool        // it settled again while running
+}
+
+func (p *Pipeline) now() time.Time {
+	if p.Now == nil {
+		return time.Now()
+	}
+	return p.Now()
+}
+
+func (p *Pipeline) log() *slog.Logger {
+	if p.Logger == nil {
+		return slog.New(slog.NewTextHandler(io.Discard, nil))
+	}
+	return p.Logger
+}
+
+// Start starts the workers and re-queues every series the store lists
+// as pending (received before a restart and not audited), each to be
+// audited once its settle time, counted from its last instance, is over.
+func (p *Pipeline) Start(ctx context.Context) error {
+	var errs []error
+	if p.Engine == nil {
+		errs = append(errs, fmt.Errorf("%w: Engine is nil", ErrPipeline))
+	}
+	if p.Store == nil {
+		errs = append(errs, fmt.Errorf("%w: Store is nil", ErrPipeline))
+	}
+	if p.Settle < 0 {
+		errs = append(errs, fmt.Errorf("%w: Settle %v is negative", ErrPipeline, p.Settle))
+	}
+	if p.Workers < 1 || p.Workers > MaxWorkers {
+		errs = append(errs, fmt.Errorf("%w: Workers %d, want 1..%d", ErrPipeline, p.Workers, MaxWorkers))
+	}
+	if err := errors.Join(errs...); err != nil {
+		return err
+	}
+	p.mu.Lock()
+	if p.started {
+		p.mu.Unlock()
+		return fmt.Errorf("%w: started twice", ErrPipeline)
+	}
+	p.started = true
+	p.studies = map[string]*studyState{}
+	p.ctx, p.cancel = context.WithCancel(ctx)
+	p.queue = make(chan string)
+	for range p.Workers {
+		p.workers.Go(p.work)
+	}
+	p.mu.Unlock()
+
+	pending, err := p.Store.Pending()
+	if err != nil {
+		return fmt.Errorf("audit: listing pending series: %w", err)
+	}
+	now := p.now()
+	for _, ps := range pending {
+		wait := max(p.Settle-now.Sub(ps.LastInstance), 0)
+		p.schedule(ps.StudyInstanceUID, wait)
+	}
+	if len(pending) > 0 {
+		p.log().Info("pending series re-queued", "series", len(pending))
+	}
+	return nil
+}
+
+// Notify tells the pipeline that an instance of the series was committed
+// at at. The series is recorded as pending in the store before the
+// settle timer of its study is (re)started.
+func (p *Pipeline) Notify(seriesUID, studyUID string, at time.Time) {
+	if err := p.Store.MarkPending(seriesUID, studyUID, at); err != nil {
+		// The audit still runs; only a restart before it would lose it.
+		p.log().Warn("recording a pending series failed", "series", seriesUID, "err", err)
+	}
+	p.schedule(studyUID, p.Settle)
+}
+
+// schedule (re)starts the settle timer of a study.
+func (p *Pipeline) schedule(study string, wait time.Duration) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if !p.started || p.closed {
+		return
+	}
+	st := p.studies[study]
+	if st == nil {
+		st = &studyState{}
+		p.studies[study] = st
+	}
+	if st.timer != nil {
+		st.timer.Stop()
+	}
+	st.timer = time.AfterFunc(wait, func() { p.settled(study, st) })
+}
+
+// settled is the end of a study's settle time: it goes to a worker, or,
+// if a worker audits it now, is marked to be audited again after.
+func (p *Pipeline) settled(study string, st *studyState) {
+	p.mu.Lock()
+	if p.closed || p.studies[study] != st {
+		p.mu.Unlock()
+		return
+	}
+	st.timer = nil
+	if st.running {
+		st.again = true
+		p.mu.Unlock()
+		return
+	}
+	st.running = true
+	p.feeders.Add(1)
+	p.mu.Unlock()
+	defer p.feeders.Done()
+	select {
+	case p.queue <- study:
+	case <-p.ctx.Done():
+	}
+}
+
+// work audits studies from the queue until Close.
+func (p *Pipeline) work() {
+	for {
+		select {
+		case <-p.ctx.Done():
+			return
+		case study := <-p.queue:
+			p.auditStudy(study)
+			p.mu.Lock()
+			st := p.studies[study]
+			st.running = false
+			switch {
+			case st.again:
+				st.again = false
+				st.timer = time.AfterFunc(0, func() { p.settled(study, st) })
+			case st.timer == nil:
+				delete(p.studies, study)
+			}
+			p.mu.Unlock()
+		}
+	}
+}
+
+// Close stops the timers and the workers, cancelling audits in flight
+// (their series stay pending in the store, for the next start), and
+// returns once every worker has returned.
+func (p *Pipeline) Close() {
+	p.mu.Lock()
+	if !p.started || p.closed {
+		p.closed = true
+		p.mu.Unlock()
+		return
+	}
+	p.closed = true
+	for _, st := range p.studies {
+		if st.timer != nil {
+			st.timer.Stop()
+		}
+	}
+	p.cancel()
+	p.mu.Unlock()
+	p.feeders.Wait()
+	p.workers.Wait()
+}
+
+// auditStudy audits one study and saves an audit of each of its series;
+// a panic becomes an audit-failed audit of the study's series.
+func (p *Pipeline) auditStudy(study string) {
+	log := p.log().With("study", study)
+	started := p.now()
+	st, err := p.Store.Study(study)
+	if err != nil {
+		if !errors.Is(err, store.ErrClosed) {
+			log.Warn("audit: study not readable from the store", "err", err)
+		}
+		return
+	}
+	defer func() {
+		if r := recover(); r != nil {
+			log.Error("audit panicked", "panic", fmt.Sprint(r), "stack", string(debug.Stack()))
+			p.saveFailed(st, fmt.Sprintf("the audit stopped on an internal error: %v", r), started)
+		}
+	}()
+
+	var paths []string
+	for _, se := range st.Series {
+		ins, err := p.Store.Instances(se.SeriesInstanceUID)
+		if err != nil {
+			log.Warn("audit: series instances not readable from the store", "series", se.SeriesInstanceUID, "err", err)
+			continue
+		}
+		for _, in := range ins {
+			if !in.Pruned && !in.Missing {
+				paths = append(paths, filepath.Join(p.Store.Dir(), filepath.FromSlash(in.Path)))
+			}
+		}
+	}
+	timeout := p.Timeout
+	if timeout <= 0 {
+		timeout = DefaultAuditTimeout
+	}
+	ctx, cancel := context.WithTimeout(p.ctx, timeout)
+	defer cancel()
+	rep, err := p.Engine.AuditFiles(ctx, paths)
+	switch {
+	case p.ctx.Err() != nil:
+		return // stopping: the series stay pending
+	case err != nil:
+		log.Warn("audit failed", "err", err)
+		p.saveFailed(st, "the audit did not finish: "+err.Error(), started)
+		return
+	}
+	p.save(st, rep, started)
+	log.Info("study audited", "series", len(rep.Series), "findings", len(rep.Findings), "took", p.now().Sub(started).Round(time.Millisecond).String())
+}
+
+// save stores an audit per series of the report (and per series only a
+// finding names), then takes the study's series off the pending list.
+func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
+	at := p.now()
+	bySeries := map[string][]rules.Finding{}
+	var studyWide []rules.Finding
+	for _, f := range rep.Findings {
+		if f.SeriesUID == "" {
+			studyWide = append(studyWide, f)
+			continue
+		}
+		bySeries[f.SeriesUID] = append(bySeries[f.SeriesUID], f)
+	}
+	var order []string
+	reports := map[string]*SeriesReport{}
+	for i := range rep.Series {
+		uid := rep.Series[i].SeriesUID
+		if _, ok := reports[uid]; !ok {
+			order = append(order, uid)
+			reports[uid] = &rep.Series[i]
+		}
+	}
+	for uid := range bySeries {
+		if _, ok := reports[uid]; !ok {
+			order = append(order, uid)
+		}
+	}
+	slices.Sort(order)
+	ok := true
+	for _, uid := range order {
+		fs := append(slices.Clone(bySeries[uid]), studyWide...)
+		rec := store.AuditRecord{
+			AuditTime:        at,
+			StudyInstanceUID: st.StudyInstanceUID,
+			SeriesUID:        uid,
+			AccessionNumber:  st.AccessionNumber,
+			Findings:         findingsJSON(fs),
+		}
+		if r := reports[uid]; r != nil {
+			rec.Scanner = r.Scanner
+			rec.Measures = measuresJSON(r)
+		} else if len(fs) > 0 {
+			rec.Scanner = fs[0].Scanner
+		}
+		if err := p.Store.SaveAudit(rec); err != nil {
+			ok = false
+			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", uid, "err", err)
+		}
+	}
+	if ok {
+		p.clear(st, started)
+	}
+}
+
+// saveFailed stores an audit-failed audit for every series of the study.
+func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
+	at := p.now()
+	ok := true
+	for _, se := range st.Series {
+		f := rules.AuditFailed(nil, msg)
+		f.StudyUID, f.SeriesUID = st.StudyInstanceUID, se.SeriesInstanceUID
+		f.SeriesNumber, f.SeriesDescription = se.SeriesNumber, se.SeriesDescription
+		f.Scanner = scannerLabel(se)
+		fs := []rules.Finding{f}
+		if p.Engine.Config != nil {
+			if !p.Engine.Config.Enabled(rules.IDAuditFailed) {
+				fs = nil
+			} else {
+				fs = rules.Apply(p.Engine.Config, fs)
+			}
+		}
+		err := p.Store.SaveAudit(store.AuditRecord{
+			AuditTime:        at,
+			StudyInstanceUID: st.StudyInstanceUID,
+			SeriesUID:        se.SeriesInstanceUID,
+			Scanner:          f.Scanner,
+			AccessionNumber:  st.AccessionNumber,
+			Findings:         findingsJSON(fs),
+		})
+		if err != nil {
+			ok = false
+			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", se.SeriesInstanceUID, "err", err)
+		}
+	}
+	if ok {
+		p.clear(st, started)
+	}
+}
+
+// clear takes the study's series off the pending list unless an
+// instance arrived after the audit listed the files.
+func (p *Pipeline) clear(st store.Study, started time.Time) {
+	for _, se := range st.Series {
+		if err := p.Store.ClearPending(se.SeriesInstanceUID, started); err != nil {
+			p.log().Warn("clearing a pending series failed", "series", se.SeriesInstanceUID, "err", err)
+		}
+	}
+}
+
+func scannerLabel(se store.Series) string {
+	if se.ScannerLabel != "" {
+		return se.ScannerLabel
+	}
+	return se.StationName
+}
+
+// findingsJSON encodes findings as the store keeps them. A measured or
+// expected value JSON cannot hold (NaN, an infinity) is kept as text.
+func findingsJSON(fs []rules.Finding) json.RawMessage {
+	if fs == nil {
+		fs = []rules.Finding{}
+	}
+	if b, err := json.Marshal(fs); err == nil {
+		return b
+	}
+	out := make([]json.RawMessage, 0, len(fs))
+	for _, f := range fs {
+		b, err := json.Marshal(f)
+		if err != nil {
+			f.Measured, f.Expected = fmt.Sprint(f.Measured), fmt.Sprint(f.Expected)
+			b, err = json.Marshal(f)
+		}
+		if err == nil {
+			out = append(out, b)
+		}
+	}
+	b, _ := json.Marshal(out) // RawMessages already valid
+	return b
+}
+
+// seriesMeasures is how a series' measures are stored: ADC in mm²/s,
+// null where undefined.
+type seriesMeasures struct {
+	SeriesNumber           int       `json:"series_number"`
+	SeriesDescription      string    `json:"series_description"`
+	Protocol               string    `json:"protocol"`
+	BValues                []float64 `json:"bvalues"`
+	TissueADCMedian        *float64  `json:"tissue_adc_median"`
+	CSFADC                 *float64  `json:"csf_adc"`
+	B0SNR                  *float64  `json:"b0_snr"`
+	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
+	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
+	FractionNegative       *float64  `json:"fraction_negative"`
+	CannotCompute          string    `json:"cannot_compute,omitempty"`
+}
+
+func measuresJSON(r *SeriesReport) json.RawMessage {
+	fin := func(v float64) *float64 {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil
+		}
+		return &v
+	}
+	m := r.Measures
+	b, err := json.Marshal(seriesMeasures{
+		SeriesNumber:           r.SeriesNumber,
+		SeriesDescription:      r.SeriesDescription,
+		Protocol:               r.Protocol,
+		BValues:                r.BValues,
+		TissueADCMedian:        fin(m.ParenchymaMedianADC),
+		CSFADC:                 fin(m.CSFADC),
+		B0SNR:                  fin(m.B0SNR),
+		HighBTissueSNR:         fin(m.HighBTissueSNR),
+		FractionAboveFreeWater: fin(m.FractionAboveFreeWater),
+		FractionNegative:       fin(m.FractionNegative),
+		CannotCompute:          r.CannotCompute,
+	})
+	if err != nil {
+		return nil
+	}
+	return b
+}
