@@ -8,7 +8,8 @@
 //	Dir/index.db                                        bbolt index (see Buckets)
 //	Dir/instances/<StudyUID>/<SeriesUID>/<SOPUID>.dcm   first version of an instance
 //	Dir/instances/<StudyUID>/<SeriesUID>/<SOPUID>.v2.dcm  second version (v3, ...)
-//	Dir/tmp/put-*.tmp                                   files being received
+//	Dir/tmp/put-*.tmp                                   files being received, and up to
+//	                                                    spareTemps empty ones made ahead
 //
 // Folder and file names are UIDs, which is safe only because every UID is
 // checked against the UI rules (digits and dots, 1 to 64 characters, no
@@ -27,13 +28,20 @@
 // # Writing an instance
 //
 // Put follows the order of bbolt's own commit, data before pointer:
-// write the temp file in Dir/tmp and fsync it, close it, let
-// Options.Describe read its header, rename it into its series folder
-// (creating folders and fsyncing each new folder's parent), fsync the
-// series folder, commit the index record, and only then return. A crash
-// at any point leaves either nothing, a temp file (removed at the next
-// Open), or a file without a record (indexed again by Reconcile); never a
-// record without its file.
+// write the temp file in Dir/tmp and fsync it, close it, rename it into
+// its series folder (creating folders and fsyncing each new folder's
+// parent), fsync the series folder, commit the index record, and only
+// then return. Options.Describe reads the file's header while the fsync
+// runs: it only reads, and the series folder it names is needed only for
+// the rename. A crash at any point leaves either nothing, a temp file
+// (removed at the next Open), or a file without a record (indexed again
+// by Reconcile); never a record without its file.
+//
+// The temp file itself is usually made ahead of time: a goroutine
+// (spareLoop, put.go) keeps a few empty ones created, so that a Put's
+// answer does not wait for a file create, and replaces each one a Put
+// takes. They are ordinary temp files: removed by Close, and by the next
+// Open after a crash.
 //
 // Concurrent Puts share the expensive part. Each Put receives and fsyncs
 // its own temp file in parallel; then a single committer goroutine

@@ -40,13 +40,13 @@ func TestDuplicates(t *testing.T) {
 	for _, st := range steps {
 		t.Run(st.name, func(t *testing.T) {
 			clock.Advance(time.Minute)
-			before := folderFiles(t, opts.Dir)
+			before := storeFiles(t, s)
 			ref := mustPut(t, s, st.put)
 			if ref != st.want {
 				t.Errorf("ref = %+v, want %+v", ref, st.want)
 			}
 			if st.want.Duplicate == DupIdentical {
-				sameFiles(t, before, folderFiles(t, opts.Dir))
+				sameFiles(t, before, storeFiles(t, s))
 			}
 			in, err := s.Instance(a.SOP)
 			if err != nil {
@@ -91,7 +91,7 @@ func TestDuplicates(t *testing.T) {
 }
 
 func TestConcurrentIdenticalPutsStoreOneFile(t *testing.T) {
-	s, opts := newTestStore(t)
+	s, _ := newTestStore(t)
 	ti := testInstance{SOP: uid(11, 1), Payload: 64 << 10}
 	var wg sync.WaitGroup
 	refs := make([]InstanceRef, 8)
@@ -115,7 +115,7 @@ func TestConcurrentIdenticalPutsStoreOneFile(t *testing.T) {
 	if counts[DupNone] != 1 || counts[DupIdentical] != 7 {
 		t.Errorf("outcomes %v, want 1 none and 7 identical", counts)
 	}
-	files := folderFiles(t, opts.Dir)
+	files := storeFiles(t, s)
 	n := 0
 	for _, f := range files {
 		if filepath.Ext(f) == ".dcm" {

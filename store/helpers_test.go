@@ -313,6 +313,28 @@ func folderFiles(t testing.TB, dir string) []string {
 	return out
 }
 
+// storeFiles is folderFiles of an open Store's folder without the empty
+// temp files it keeps ready for the next Puts (spareLoop). Call it with no
+// Put in flight: every live temp name is then a spare. The folder is
+// listed before the live names are read, and a name is live before its
+// file exists, so a spare created meanwhile is never reported.
+func storeFiles(t testing.TB, s *Store) []string {
+	t.Helper()
+	files := folderFiles(t, s.dir)
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	out := files[:0]
+	for _, f := range files {
+		if name, ok := strings.CutPrefix(f, tmpDir+"/"); ok {
+			if _, spare := s.liveTemps[name]; spare {
+				continue
+			}
+		}
+		out = append(out, f)
+	}
+	return out
+}
+
 // tmpFiles lists Dir/tmp.
 func tmpFiles(t testing.TB, dir string) []string {
 	t.Helper()

@@ -160,6 +160,13 @@ func parseReceivedKey(k []byte) (t time.Time, version int, sop string, ok bool) 
 		int(binary.BigEndian.Uint32(k[8:12])), string(k[12:]), true
 }
 
+// hasKey reports whether b holds key. Bucket.Get cannot tell an absent
+// key from one with an empty value, which the link buckets store.
+func hasKey(b *bolt.Bucket, key []byte) bool {
+	k, _ := b.Cursor().Seek(key)
+	return bytes.Equal(k, key)
+}
+
 // getJSON decodes the value at key into v; found is false when absent.
 func getJSON(b *bolt.Bucket, key []byte, v any) (found bool, err error) {
 	raw := b.Get(key)
@@ -300,8 +307,13 @@ func linkVersion(tx *bolt.Tx, sop string, prev, nv *versionRecord, a Attributes)
 	if err := putJSON(seriesB, []byte(sr.SeriesInstanceUID), sr); err != nil {
 		return err
 	}
-	if err := tx.Bucket(bucketStudySeries).Put(pairKey(sr.StudyInstanceUID, sr.SeriesInstanceUID), nil); err != nil {
-		return err
+	// Every touched leaf is a page bbolt writes and syncs: put the link
+	// only when it is new (reading dirties nothing).
+	studySeries := tx.Bucket(bucketStudySeries)
+	if k := pairKey(sr.StudyInstanceUID, sr.SeriesInstanceUID); !hasKey(studySeries, k) {
+		if err := studySeries.Put(k, nil); err != nil {
+			return err
+		}
 	}
 
 	st, err := getStudy(tx, sr.StudyInstanceUID)

@@ -39,10 +39,13 @@ type Options struct {
 
 	// Describe reads the header of a complete Part 10 file at path and
 	// returns what the index keeps about it. Put calls it on the temp
-	// file after it is fsynced and closed, before the rename; Reconcile
-	// calls it on instance files without a record. Required for a
-	// writable Store. It may be called from several goroutines; a panic in
-	// it is recovered and reported as ErrUnreadable.
+	// file once every byte is written, while its fsync runs (the file
+	// may still be open for that; the header comes from the page cache),
+	// and renames the file only when both are done; Reconcile calls it on
+	// instance files without a record. It must only read the file.
+	// Required for a writable Store. It may be called from several
+	// goroutines; a panic in it is recovered and reported as
+	// ErrUnreadable.
 	Describe func(path string) (Attributes, error)
 
 	// FreeSpace reports the bytes available to us in the file system

@@ -105,14 +105,14 @@ func TestPrune(t *testing.T) {
 
 func TestPruneWithoutRetentionKeepsEverything(t *testing.T) {
 	clock := newTestClock(time.Date(2025, 1, 10, 8, 0, 0, 0, time.UTC))
-	s, opts := newTestStore(t, func(o *Options) { o.Now = clock.Now })
+	s, _ := newTestStore(t, func(o *Options) { o.Now = clock.Now })
 	mustPut(t, s, testInstance{SOP: uid(32, 1), Payload: 100})
 	clock.Advance(10 * 365 * 24 * time.Hour)
-	before := folderFiles(t, opts.Dir)
+	before := storeFiles(t, s)
 	if rep, err := s.Prune(t.Context()); err != nil || rep != (PruneReport{}) {
 		t.Errorf("Prune = %+v, %v", rep, err)
 	}
-	sameFiles(t, before, folderFiles(t, opts.Dir))
+	sameFiles(t, before, storeFiles(t, s))
 }
 
 func TestPruneSeesOldFilesIndexedAfterIt(t *testing.T) {

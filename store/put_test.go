@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
@@ -12,6 +13,7 @@ import (
 	"sync"
 	"syscall"
 	"testing"
+	"time"
 )
 
 // event is one durability step seen by the hooks or the test's Describe.
@@ -43,12 +45,18 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 	ti := testInstance{SOP: uid(1, 1), InstanceNumber: 1, Payload: 300 << 10}
 	want := append(encodeFileMeta(fileMeta{SOPClassUID: mrImageStorage, SOPInstanceUID: ti.SOP,
 		TransferSyntaxUID: explicitVRLE, SourceAETitle: "HARBOUR_MR1"}), ti.dataSet()...)
-	var describeErr error
+	var describeErr, closeErr error
 	s, opts := newTestStore(t, func(o *Options) {
 		o.hooks = &hooks{
 			tempSynced: func(p string) { log.add("synced", p) },
-			renamed:    func(from, to string) { log.add("renamed", from); log.add("renamed-to", to) },
-			dirSynced:  func(d string) { log.add("dir-synced", d) },
+			renamed: func(from, to string) {
+				log.add("renamed", from)
+				log.add("renamed-to", to)
+				if openHere(to) { // the order: fsync, close, rename
+					closeErr = errors.New("the temp file was still open when it was renamed")
+				}
+			},
+			dirSynced: func(d string) { log.add("dir-synced", d) },
 			committed: func(sops []string) {
 				for _, sop := range sops {
 					log.add("committed", sop)
@@ -57,7 +65,8 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 		}
 		o.Describe = func(p string) (Attributes, error) {
 			log.add("described", p)
-			// Describe must see the whole file, already closed by Put.
+			// Describe must see the whole file. It runs while Put's fsync
+			// of it does, so the file may still be open.
 			got, err := os.ReadFile(p)
 			switch {
 			case err != nil:
@@ -66,8 +75,6 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 				describeErr = errors.New("Describe saw an incomplete or different temp file")
 			case filepath.Dir(p) != filepath.Join(o.Dir, tmpDir):
 				describeErr = errors.New("Describe was not given the temp file")
-			case openHere(p):
-				describeErr = errors.New("the temp file was still open when Describe was called")
 			}
 			return describeTestFile(p)
 		}
@@ -76,6 +83,9 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 	ref := mustPut(t, s, ti)
 	if describeErr != nil {
 		t.Fatal(describeErr)
+	}
+	if closeErr != nil {
+		t.Error(closeErr)
 	}
 	final := filepath.Join(opts.Dir, "instances", "2.25.1001", "2.25.1001.1", ti.SOP+".dcm")
 	if ref.Path != "instances/2.25.1001/2.25.1001.1/"+ti.SOP+".dcm" || ref.Version != 1 || ref.Duplicate != DupNone {
@@ -91,9 +101,12 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 		}
 	}
 	log.mu.Unlock()
+	// Describe and the fsync run at once; both come before the rename.
+	if i := log.index("described", tmpPath); i < 0 || i > log.index("renamed", tmpPath) {
+		t.Errorf("Describe of %s not before its rename; events %v", tmpPath, log.events)
+	}
 	steps := []event{
 		{"synced", tmpPath},
-		{"described", tmpPath},
 		{"renamed", tmpPath},
 		{"renamed-to", final},
 		{"dir-synced", filepath.Dir(final)},
@@ -130,8 +143,11 @@ func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 		in.DataSetOffset != int64(len(want)-len(ti.dataSet())) || in.StudyInstanceUID != "2.25.1001" {
 		t.Errorf("Instance = %+v", in)
 	}
-	if names := tmpFiles(t, opts.Dir); len(names) != 0 {
-		t.Errorf("tmp not empty after Put: %v", names)
+	if _, err := os.Lstat(tmpPath); !errors.Is(err, fs.ErrNotExist) {
+		t.Errorf("temp file %s still there after Put: %v", tmpPath, err)
+	}
+	if got := storeFiles(t, s); slices.ContainsFunc(got, func(f string) bool { return strings.HasPrefix(f, tmpDir+"/") && f != tmpDir+"/" }) {
+		t.Errorf("tmp holds more than the spare temp files after Put: %v", got)
 	}
 }
 
@@ -172,7 +188,7 @@ func TestPutRefusesUnsafeUIDs(t *testing.T) {
 		{"study UID from Describe", func(ti *testInstance, _ *PutRequest, u string) { ti.Study = u; ti.Series = "2.25.77" }},
 		{"series UID from Describe", func(ti *testInstance, _ *PutRequest, u string) { ti.Series = u }},
 	}
-	s, opts := newTestStore(t)
+	s, _ := newTestStore(t)
 	mustPut(t, s, testInstance{SOP: uid(9, 9), Payload: 64})
 	n := 0
 	for _, f := range fields {
@@ -187,12 +203,12 @@ func TestPutRefusesUnsafeUIDs(t *testing.T) {
 				ti := testInstance{SOP: uid(2, n), Payload: 1024}
 				req := ti.request()
 				f.set(&ti, &req, b.uid)
-				before := folderFiles(t, opts.Dir)
+				before := storeFiles(t, s)
 				_, err := s.Put(t.Context(), req, bytes.NewReader(ti.dataSet()))
 				if !errors.Is(err, ErrInvalidUID) {
 					t.Fatalf("Put = %v, want ErrInvalidUID", err)
 				}
-				sameFiles(t, before, folderFiles(t, opts.Dir))
+				sameFiles(t, before, storeFiles(t, s))
 				if _, err := s.Instance(req.SOPInstanceUID); !errors.Is(err, ErrNotFound) && req.SOPInstanceUID != "" {
 					t.Errorf("Instance after refused Put = %v, want ErrNotFound", err)
 				}
@@ -292,7 +308,7 @@ func TestPutLeavesNothingWhenItFails(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name+" leaves no file and no record", func(t *testing.T) {
-			s, opts := newTestStore(t, func(o *Options) {
+			s, _ := newTestStore(t, func(o *Options) {
 				if c.describe != nil {
 					o.Describe = c.describe
 				}
@@ -301,12 +317,12 @@ func TestPutLeavesNothingWhenItFails(t *testing.T) {
 			if c.ctx != nil {
 				ctx = c.ctx()
 			}
-			before := folderFiles(t, opts.Dir)
+			before := storeFiles(t, s)
 			_, err := s.Put(ctx, ti.request(), c.data())
 			if !errors.Is(err, c.want) {
 				t.Fatalf("Put = %v, want %v", err, c.want)
 			}
-			sameFiles(t, before, folderFiles(t, opts.Dir))
+			sameFiles(t, before, storeFiles(t, s))
 			if _, err := s.Instance(ti.SOP); !errors.Is(err, ErrNotFound) {
 				t.Errorf("Instance = %v, want ErrNotFound", err)
 			}
@@ -353,12 +369,12 @@ func TestPutKeepsTheDiskFloor(t *testing.T) {
 
 	t.Run("a Put is refused before it starts when free space is below the floor", func(t *testing.T) {
 		var described bool
-		s, opts := newTestStore(t, func(o *Options) {
+		s, _ := newTestStore(t, func(o *Options) {
 			o.DiskFloor = floor
 			o.FreeSpace = func(string) (uint64, error) { return floor - 1, nil }
 			o.Describe = func(p string) (Attributes, error) { described = true; return describeTestFile(p) }
 		})
-		before := folderFiles(t, opts.Dir)
+		before := storeFiles(t, s)
 		_, err := s.Put(t.Context(), ti.request(), bytes.NewReader(ti.dataSet()))
 		if !errors.Is(err, ErrOutOfSpace) {
 			t.Fatalf("Put = %v, want ErrOutOfSpace", err)
@@ -366,12 +382,12 @@ func TestPutKeepsTheDiskFloor(t *testing.T) {
 		if described {
 			t.Error("Describe was called for a refused Put")
 		}
-		sameFiles(t, before, folderFiles(t, opts.Dir))
+		sameFiles(t, before, storeFiles(t, s))
 	})
 
 	t.Run("a Put is stopped mid-write when free space falls to the floor", func(t *testing.T) {
 		disk := &fakeDisk{}
-		s, opts := newTestStore(t, func(o *Options) {
+		s, _ := newTestStore(t, func(o *Options) {
 			disk.dir = o.Dir
 			// Room for the floor, one check interval and 6 MiB: the check
 			// at 4 MiB passes, the one at 8 MiB fails.
@@ -380,7 +396,7 @@ func TestPutKeepsTheDiskFloor(t *testing.T) {
 			o.FreeSpace = disk.FreeSpace
 		})
 		disk.base = disk.used()
-		before := folderFiles(t, opts.Dir)
+		before := storeFiles(t, s)
 		_, err := s.Put(t.Context(), ti.request(), bytes.NewReader(ti.dataSet()))
 		if !errors.Is(err, ErrOutOfSpace) {
 			t.Fatalf("Put = %v, want ErrOutOfSpace", err)
@@ -388,7 +404,7 @@ func TestPutKeepsTheDiskFloor(t *testing.T) {
 		if disk.calls != 3 {
 			t.Errorf("free space checked %d times, want 3 (start, 4 MiB, 8 MiB)", disk.calls)
 		}
-		sameFiles(t, before, folderFiles(t, opts.Dir))
+		sameFiles(t, before, storeFiles(t, s))
 		if _, err := s.Instance(ti.SOP); !errors.Is(err, ErrNotFound) {
 			t.Errorf("Instance = %v, want ErrNotFound", err)
 		}
@@ -507,4 +523,88 @@ func TestGroupCommitSharesOneTransaction(t *testing.T) {
 	if st := s.Stats(); st.Commits != 2 || st.Puts != followers+1 {
 		t.Errorf("Stats = %+v", st)
 	}
+}
+
+// waitForSpare waits until spareLoop has a spare temp file ready (it makes
+// them in the background after a Put takes or misses one).
+func waitForSpare(t *testing.T, s *Store) {
+	t.Helper()
+	deadline := time.Now().Add(5 * time.Second)
+	for len(s.spares) == 0 {
+		if time.Now().After(deadline) {
+			t.Fatal("no spare temp file was made within 5 s of a Put")
+		}
+		time.Sleep(time.Millisecond)
+	}
+}
+
+func TestSpareTempFiles(t *testing.T) {
+	t.Run("a store makes none before its first Put", func(t *testing.T) {
+		_, opts := newTestStore(t)
+		if names := tmpFiles(t, opts.Dir); len(names) != 0 {
+			t.Errorf("tmp after Open: %v", names)
+		}
+	})
+
+	t.Run("after a Put tmp holds only empty live spares, at most spareTemps", func(t *testing.T) {
+		s, opts := newTestStore(t)
+		mustPut(t, s, testInstance{SOP: uid(60, 1), Payload: 1024})
+		waitForSpare(t, s)
+		names := tmpFiles(t, opts.Dir)
+		if len(names) > spareTemps {
+			t.Errorf("%d files in tmp, want at most %d: %v", len(names), spareTemps, names)
+		}
+		for _, name := range names {
+			fi, err := os.Stat(filepath.Join(opts.Dir, tmpDir, name))
+			if err != nil || fi.Size() != 0 {
+				t.Errorf("tmp/%s: %v, size %d; a spare is empty", name, err, fi.Size())
+			}
+			s.mu.Lock()
+			_, live := s.liveTemps[name]
+			s.mu.Unlock()
+			if !live {
+				t.Errorf("tmp/%s is not live: a Reconcile would remove it", name)
+			}
+		}
+	})
+
+	t.Run("the next Put writes into a spare made before it", func(t *testing.T) {
+		var synced []string
+		s, opts := newTestStore(t, func(o *Options) {
+			o.hooks = &hooks{tempSynced: func(p string) { synced = append(synced, filepath.Base(p)) }}
+		})
+		mustPut(t, s, testInstance{SOP: uid(61, 1), Payload: 1024})
+		waitForSpare(t, s)
+		before := tmpFiles(t, opts.Dir)
+		mustPut(t, s, testInstance{SOP: uid(61, 2), Payload: 1024})
+		if len(synced) != 2 || !slices.Contains(before, synced[1]) {
+			t.Errorf("second Put wrote %v, spares before it %v", synced, before)
+		}
+	})
+
+	t.Run("Reconcile leaves the spares and Puts go on using them", func(t *testing.T) {
+		s, _ := newTestStore(t)
+		mustPut(t, s, testInstance{SOP: uid(62, 1), Payload: 1024})
+		waitForSpare(t, s)
+		rep, err := s.Reconcile(t.Context())
+		if err != nil || rep.TempRemoved != 0 {
+			t.Errorf("Reconcile = %+v, %v; want no temp file removed", rep, err)
+		}
+		mustPut(t, s, testInstance{SOP: uid(62, 2), Payload: 1024})
+		if _, err := s.Instance(uid(62, 2)); err != nil {
+			t.Errorf("Instance after Reconcile and Put: %v", err)
+		}
+	})
+
+	t.Run("Close removes the spares", func(t *testing.T) {
+		s, opts := newTestStore(t)
+		mustPut(t, s, testInstance{SOP: uid(63, 1), Payload: 1024})
+		waitForSpare(t, s)
+		if err := s.Close(); err != nil {
+			t.Fatal(err)
+		}
+		if names := tmpFiles(t, opts.Dir); len(names) != 0 {
+			t.Errorf("tmp after Close: %v", names)
+		}
+	})
 }

@@ -57,6 +57,13 @@ type Store struct {
 	stop          chan struct{} // closed by Close once no Put is in flight
 	committerDone chan struct{} // closed by the committer on exit
 
+	// spares holds empty temp files created ahead by spareLoop (the only
+	// sender) for Puts to take; wantSpare (capacity 1) wakes spareLoop
+	// when a Put took one. Their names are in liveTemps.
+	spares     chan tempFile
+	wantSpare  chan struct{}
+	sparesDone chan struct{} // closed by spareLoop on exit
+
 	// abort is cancelled by Close, so that Puts still receiving data stop.
 	abort       context.Context
 	cancelAbort context.CancelFunc
@@ -81,7 +88,7 @@ type Store struct {
 	// pruneMu keeps Prune calls one at a time.
 	pruneMu sync.Mutex
 
-	bufs sync.Pool // *[]byte of copyBufferSize, for Put
+	bufs sync.Pool // *[]byte of headRoom+copyBufferSize, for Put
 
 	stats struct {
 		puts, duplicates, commits, dirSyncs atomic.Uint64
@@ -127,7 +134,7 @@ func Open(opts Options) (*Store, error) {
 	if opts.hooks != nil {
 		s.hooks = *opts.hooks
 	}
-	s.bufs.New = func() any { b := make([]byte, copyBufferSize); return &b }
+	s.bufs.New = func() any { b := make([]byte, headRoom+copyBufferSize); return &b }
 
 	path := filepath.Join(dir, indexFile)
 	if opts.ReadOnly {
@@ -175,7 +182,11 @@ func Open(opts Options) (*Store, error) {
 	s.ready = make(chan *pending, maxBatch)
 	s.stop = make(chan struct{})
 	s.committerDone = make(chan struct{})
+	s.spares = make(chan tempFile, spareTemps)
+	s.wantSpare = make(chan struct{}, 1)
+	s.sparesDone = make(chan struct{})
 	go s.commitLoop()
+	go s.spareLoop()
 	return s, nil
 }
 
@@ -218,6 +229,7 @@ func (s *Store) Close() error {
 	if s.stop != nil {
 		close(s.stop)
 		<-s.committerDone
+		<-s.sparesDone
 	}
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("store: closing index: %w", err)
