@@ -62,6 +62,9 @@ type Pipeline struct {
 	Workers int
 	// Timeout bounds one study's audit; DefaultAuditTimeout when zero.
 	Timeout time.Duration
+	// TestPatientIDs are the Patient IDs of test studies: their audits
+	// are saved with AuditRecord.TestPatient set.
+	TestPatientIDs []string
 	// Now is the clock of audit times; time.Now when nil.
 	Now func() time.Time
 	// Logger gets UIDs, counts and errors, never patient data. Nil
@@ -334,6 +337,7 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
 			StudyInstanceUID: st.StudyInstanceUID,
 			SeriesUID:        uid,
 			AccessionNumber:  st.AccessionNumber,
+			TestPatient:      p.testPatient(st),
 			Findings:         findingsJSON(fs),
 		}
 		if r := reports[uid]; r != nil {
@@ -375,6 +379,7 @@ func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
 			SeriesUID:        se.SeriesInstanceUID,
 			Scanner:          f.Scanner,
 			AccessionNumber:  st.AccessionNumber,
+			TestPatient:      p.testPatient(st),
 			Findings:         findingsJSON(fs),
 		})
 		if err != nil {
@@ -395,6 +400,11 @@ func (p *Pipeline) clear(st store.Study, started time.Time) {
 			p.log().Warn("clearing a pending series failed", "series", se.SeriesInstanceUID, "err", err)
 		}
 	}
+}
+
+// testPatient reports whether the study is a test study.
+func (p *Pipeline) testPatient(st store.Study) bool {
+	return st.PatientID != "" && slices.Contains(p.TestPatientIDs, st.PatientID)
 }
 
 func scannerLabel(se store.Series) string {

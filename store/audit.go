@@ -46,13 +46,17 @@ type PendingSeries struct {
 // opaque to the store (JSON written by the audit package), so that the
 // store depends on nothing above it.
 type AuditRecord struct {
-	AuditTime        time.Time       `json:"audit_time"`
-	StudyInstanceUID string          `json:"study"`
-	SeriesUID        string          `json:"series"`
-	Scanner          string          `json:"scanner,omitempty"`
-	AccessionNumber  string          `json:"accession,omitempty"`
-	Findings         json.RawMessage `json:"findings"`
-	Measures         json.RawMessage `json:"measures,omitempty"`
+	AuditTime        time.Time `json:"audit_time"`
+	StudyInstanceUID string    `json:"study"`
+	SeriesUID        string    `json:"series"`
+	Scanner          string    `json:"scanner,omitempty"`
+	AccessionNumber  string    `json:"accession,omitempty"`
+	// TestPatient marks an audit of a test study (a Patient ID the
+	// configuration names as a test patient, such as the self-test's):
+	// compliance reports and drift metrics leave it out.
+	TestPatient bool            `json:"test_patient,omitempty"`
+	Findings    json.RawMessage `json:"findings"`
+	Measures    json.RawMessage `json:"measures,omitempty"`
 }
 
 // pendingRecord is the value in bucketAuditPending.

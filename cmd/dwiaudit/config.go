@@ -737,6 +737,10 @@ func (t *peerTable) scanner(callingAE string) string {
 
 // Defaults and limits of the audit section.
 const (
+	// DefaultTestPatientID is the Patient ID `dwiaudit selftest` sends
+	// under, and the one test study ID the node knows without a file.
+	DefaultTestPatientID = "DWIAUDIT-SELFTEST"
+
 	// defaultSettle is how long a series must be quiet before it is
 	// audited: scanners send a series over one association in seconds,
 	// a PACS auto-route may pause between series for tens of seconds
@@ -769,7 +773,11 @@ type AuditConfig struct {
 	// audited (the pipeline); a later instance re-opens it.
 	Settle Duration `yaml:"settle"`
 	// Workers is how many series are audited at once.
-	Workers        int                   `yaml:"workers"`
+	Workers int `yaml:"workers"`
+	// TestPatientIDs are Patient IDs (0010,0020) of test studies (the
+	// installation self-test sends one): audited like any other, but
+	// left out of compliance reports and drift metrics.
+	TestPatientIDs []string              `yaml:"test_patient_ids"`
 	Protocols      []ProtocolConfig      `yaml:"protocols"`
 	Phantoms       []PhantomConfig       `yaml:"phantoms"`
 	Rules          map[string]RuleConfig `yaml:"rules"`
@@ -945,6 +953,7 @@ func DefaultAuditConfig() AuditConfig {
 	c := AuditConfig{
 		Settle:         Duration(defaultSettle),
 		Workers:        defaultAuditWorkers,
+		TestPatientIDs: []string{DefaultTestPatientID},
 		Rules:          map[string]RuleConfig{},
 		PrivateSources: []PrivateSourceConfig{},
 		Thresholds:     rc.Thresholds,
@@ -1059,6 +1068,13 @@ func (a AuditConfig) validate(p *problems) {
 	}
 	if a.Workers < 1 || a.Workers > audit.MaxWorkers {
 		p.addf("audit.workers", "%d is outside 1..%d", a.Workers, audit.MaxWorkers)
+	}
+
+	for i, id := range a.TestPatientIDs {
+		// PS3.5 6.2: Patient ID is LO, at most 64 characters, no backslash.
+		if id == "" || len(id) > 64 || strings.ContainsAny(id, "\\\r\n") {
+			p.addf(fmt.Sprintf("audit.test_patient_ids[%d]", i), "%q is not a Patient ID (LO: 1 to 64 characters, no backslash or line break)", id)
+		}
 	}
 
 	names := map[string]int{}

@@ -185,6 +185,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Settle:  time.Duration(cfg.Audit.Settle),
 		Workers: cfg.Audit.Workers,
 		Logger:  log.With("component", "audit"),
+
+		TestPatientIDs: cfg.Audit.TestPatientIDs,
 	}
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
