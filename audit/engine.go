@@ -166,6 +166,10 @@ type SeriesReport struct {
 	BValues       []float64 // nominal b-values present, s/mm², ascending
 	Measures      analysis.Measures
 	CannotCompute string
+	// PhantomADC is the central-region ADC of a phantom series
+	// (rules.PhantomCentralADC, mm²/s) and PhantomExpectedADC its
+	// profile's expected value; NaN for other series.
+	PhantomADC, PhantomExpectedADC float64
 }
 
 // Report is the outcome of one audit call.
@@ -468,7 +472,7 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 	}
 	rep.Findings = append(rep.Findings, found...)
 	for _, sa := range st.Series {
-		rep.Series = append(rep.Series, seriesReport(in.uid, sa, in.known))
+		rep.Series = append(rep.Series, seriesReport(in.uid, sa, in.known, cfg))
 	}
 	return st
 }
@@ -559,8 +563,8 @@ func fill(f *rules.Finding, st *rules.Study, known map[string]header.Identity) {
 
 // seriesReport summarises one series of study: assembled, or (nil
 // Series) known only from its error and its files' headers.
-func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.Identity) SeriesReport {
-	r := SeriesReport{StudyUID: study, Measures: undefinedMeasures()}
+func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.Identity, cfg *rules.Config) SeriesReport {
+	r := SeriesReport{StudyUID: study, Measures: undefinedMeasures(), PhantomADC: math.NaN(), PhantomExpectedADC: math.NaN()}
 	if s := sa.Series; s != nil {
 		r.SeriesUID, r.SeriesNumber, r.SeriesDescription = s.SeriesInstanceUID, s.SeriesNumber, s.SeriesDescription
 		r.Scanner, r.BValues = scannerOf(s.Scanner), slices.Clone(s.Facts.BValues)
@@ -575,6 +579,10 @@ func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.I
 	switch {
 	case sa.Phantom != nil:
 		r.Protocol = sa.Phantom.Name
+		r.PhantomExpectedADC = sa.Phantom.ExpectedADC
+		if cfg != nil {
+			r.PhantomADC, _ = rules.PhantomCentralADC(sa, cfg)
+		}
 	case sa.Protocol != nil:
 		r.Protocol = sa.Protocol.Name
 	}

@@ -415,3 +415,46 @@ func TestAPanickingRuleIsLoggedWithoutPatientData(t *testing.T) {
 		t.Error("the log carries patient identifiers")
 	}
 }
+
+func TestPhantomSeriesReportTheirCentralADC(t *testing.T) {
+	cases := []struct {
+		name   string
+		c      phantom.Case
+		lo, hi float64 // mm²/s
+	}{
+		// Ice water at 0 °C: 1.10e-3 mm²/s (QIBA DWI profile; Malyarenko
+		// et al., JMRI 2013;37:1238; DOMAIN.md). The phantom plants it.
+		{"an ice-water phantom at 0 C reports about 1.10e-3", phantom.CaseIceWater0C, 1.10e-3 * 0.98, 1.10e-3 * 1.02},
+		// The warm case is above the ±3.6% tolerance by construction.
+		{"a warm ice-water phantom reports more than 3.6% above it", phantom.CaseIceWaterWarm, 1.10e-3 * 1.036, 1.6e-3},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			st := writeStudy(t, t.TempDir(), phantom.Options{Case: c.c, Seed: 2})
+			rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(rep.Series) != 1 {
+				t.Fatalf("%d series, want 1", len(rep.Series))
+			}
+			s := rep.Series[0]
+			if s.PhantomExpectedADC != 1.10e-3 {
+				t.Errorf("expected ADC %v, want the ice-water profile's 1.10e-3", s.PhantomExpectedADC)
+			}
+			if !(s.PhantomADC >= c.lo && s.PhantomADC <= c.hi) {
+				t.Errorf("central ADC %v, want %v..%v", s.PhantomADC, c.lo, c.hi)
+			}
+		})
+	}
+	t.Run("a brain series has no phantom ADC", func(t *testing.T) {
+		st := writeStudy(t, t.TempDir(), phantom.Options{Seed: 2})
+		rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if s := rep.Series[0]; !math.IsNaN(s.PhantomADC) || !math.IsNaN(s.PhantomExpectedADC) {
+			t.Errorf("phantom ADC %v expected %v, want NaN for a brain series", s.PhantomADC, s.PhantomExpectedADC)
+		}
+	})
+}

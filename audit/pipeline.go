@@ -452,6 +452,10 @@ type seriesMeasures struct {
 	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
 	FractionNegative       *float64  `json:"fraction_negative"`
 	CannotCompute          string    `json:"cannot_compute,omitempty"`
+	// PhantomADC is the central-region ADC of a phantom series and
+	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
+	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
+	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
 }
 
 func measuresJSON(r *SeriesReport) json.RawMessage {
@@ -474,6 +478,8 @@ func measuresJSON(r *SeriesReport) json.RawMessage {
 		FractionAboveFreeWater: fin(m.FractionAboveFreeWater),
 		FractionNegative:       fin(m.FractionNegative),
 		CannotCompute:          r.CannotCompute,
+		PhantomADC:             fin(r.PhantomADC),
+		PhantomExpectedADC:     fin(r.PhantomExpectedADC),
 	})
 	if err != nil {
 		return nil

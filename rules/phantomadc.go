@@ -61,6 +61,25 @@ func (phantomADCBias) Check(st *Study, cfg *Config) []Finding {
 	return out
 }
 
+// PhantomCentralADC is the ADC a phantom series' judgement rests on:
+// the median ADC over the mask voxels within
+// thresholds.phantom_adc_bias.roi_radius_mm of the phantom's centre
+// (mm²/s) and how many voxels that is. It is NaN, 0 for a series that
+// matched no phantom profile, was not computed, or has fewer voxels than
+// the rule needs. Reports and drift metrics use it for every phantom
+// series, inside tolerance or not.
+func PhantomCentralADC(sa *SeriesAudit, cfg *Config) (float64, int) {
+	if sa == nil || sa.Phantom == nil || !sa.Computed() || sa.Result.ADC == nil {
+		return math.NaN(), 0
+	}
+	th := cfg.Thresholds.PhantomADC
+	adcCentre, n, _ := centralADC(sa, th.ROIRadiusMM)
+	if n < th.MinVoxels || math.IsNaN(adcCentre) {
+		return math.NaN(), 0
+	}
+	return adcCentre, n
+}
+
 // centralADC is the median ADC of the mask voxels within radius mm of
 // the mask's centroid, their number, and the region they span.
 func centralADC(sa *SeriesAudit, radius float64) (float64, int, *Region) {
