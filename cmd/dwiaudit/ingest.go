@@ -26,6 +26,17 @@ type auditNotifier interface {
 	Notify(seriesUID, studyUID string, at time.Time)
 }
 
+// seriesLooker reads a stored series (its Station Name, for the metrics'
+// scanner label of a peer without a configured one).
+type seriesLooker interface {
+	Series(uid string) (store.Series, error)
+}
+
+// instanceObserver is told about each instance stored (metrics.Metrics).
+type instanceObserver interface {
+	InstanceStored(scanner string, bytes int64, took time.Duration)
+}
+
 // ingest is the acceptor's StoreHandler: it streams each C-STORE data set
 // into the store, which returns only once the instance is durable, so a
 // success status is never sent for something the node does not have.
@@ -35,29 +46,47 @@ type auditNotifier interface {
 type ingest struct {
 	store     instancePutter
 	peers     *peerTable
-	instances instanceLooker // with audit
-	audit     auditNotifier  // nil: no audit
+	instances instanceLooker   // with audit or metrics
+	audit     auditNotifier    // nil: no audit
+	series    seriesLooker     // with metrics
+	metrics   instanceObserver // nil: no metrics
 }
 
 // HandleStore implements scp.StoreHandler.
 func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
+	start := time.Now()
+	label := h.peers.scanner(req.CallingAETitle)
 	ref, err := h.store.Put(ctx, store.PutRequest{
 		SOPClassUID:       req.SOPClassUID,
 		SOPInstanceUID:    req.SOPInstanceUID,
 		TransferSyntaxUID: req.TransferSyntaxUID,
 		CallingAETitle:    req.CallingAETitle,
-		ScannerLabel:      h.peers.scanner(req.CallingAETitle),
+		ScannerLabel:      label,
 	}, req.Data)
-	if err == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
-		// The time is taken after the commit, so that an audit that
-		// listed the series' files before it cannot take the series
-		// off the pending list (store.ClearPending).
-		at := time.Now()
-		if in, lerr := h.instances.Instance(ref.SOPInstanceUID); lerr == nil {
-			h.audit.Notify(in.SeriesInstanceUID, in.StudyInstanceUID, at)
-		}
+	if err != nil || (h.audit == nil && h.metrics == nil) {
+		return storeStatus(err)
 	}
-	return storeStatus(err)
+	// The time is taken after the commit, so that an audit that listed
+	// the series' files before it cannot take the series off the
+	// pending list (store.ClearPending).
+	at := time.Now()
+	in, lerr := h.instances.Instance(ref.SOPInstanceUID)
+	if lerr == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
+		h.audit.Notify(in.SeriesInstanceUID, in.StudyInstanceUID, at)
+	}
+	if h.metrics != nil {
+		var size int64
+		if lerr == nil {
+			size = in.Size - in.DataSetOffset
+			if label == "" && h.series != nil {
+				if se, serr := h.series.Series(in.SeriesInstanceUID); serr == nil {
+					label = se.StationName // metrics.Labels sanitises and bounds it
+				}
+			}
+		}
+		h.metrics.InstanceStored(label, size, at.Sub(start))
+	}
+	return nil
 }
 
 // storeStatus is the one place where a store error becomes the DIMSE
