@@ -48,8 +48,9 @@ type PipelineStore interface {
 // not block.
 type Observer interface {
 	// AuditSaved is called for each series audit saved, with the record
-	// as stored.
-	AuditSaved(rec store.AuditRecord)
+	// as stored and its study as the store knows it (whose patient
+	// identifiers the observer must keep out of anything it exposes).
+	AuditSaved(rec store.AuditRecord, study store.Study)
 	// StudyAudited is called once per study audit that finished: ok is
 	// false when the audit stopped (error, panic, timeout) or one of its
 	// series audits could not be saved.
@@ -369,7 +370,7 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) bool {
 			ok = false
 			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", uid, "err", err)
 		} else if p.Observer != nil {
-			p.Observer.AuditSaved(rec)
+			p.Observer.AuditSaved(rec, st)
 		}
 	}
 	if ok {
@@ -408,7 +409,7 @@ func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
 			ok = false
 			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", se.SeriesInstanceUID, "err", err)
 		} else if p.Observer != nil {
-			p.Observer.AuditSaved(rec)
+			p.Observer.AuditSaved(rec, st)
 		}
 	}
 	if ok {

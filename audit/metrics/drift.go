@@ -96,11 +96,12 @@ func (d *drift) set(g *prometheus.GaugeVec, scanner, name string, at time.Time, 
 	g.WithLabelValues(scanner, name).Set(*v * scale)
 }
 
-// AuditSaved takes one saved series audit (audit.Observer): its
+// AuditSaved takes one saved series audit of study (audit.Observer): its
 // findings are counted, and unless it is of a test patient its measures
-// move the drift gauges.
-func (m *Metrics) AuditSaved(rec store.AuditRecord) {
-	scanner := m.labels.Scanner(rec.Scanner)
+// move the drift gauges. The study's identifiers are only used to keep
+// them out of the scanner label (Labels.Scanner).
+func (m *Metrics) AuditSaved(rec store.AuditRecord, study store.Study) {
+	scanner := m.labels.Scanner(rec.Scanner, identifiers(rec, study)...)
 	var fs []storedFinding
 	if len(rec.Findings) > 0 {
 		if err := json.Unmarshal(rec.Findings, &fs); err != nil {
@@ -116,11 +117,25 @@ func (m *Metrics) AuditSaved(rec store.AuditRecord) {
 // Seed sets the drift gauges from stored audits (the newest of each
 // series), so that a restart does not blank a dashboard. Counters are
 // not touched; test patients are left out; the order of recs does not
-// matter.
-func (m *Metrics) Seed(recs []store.AuditRecord) {
+// matter. study, when set, gives each audit's study, whose identifiers
+// are kept out of the scanner label as in AuditSaved.
+func (m *Metrics) Seed(recs []store.AuditRecord, study func(uid string) (store.Study, error)) {
+	studies := map[string]store.Study{}
 	for _, rec := range recs {
-		m.observeDrift(m.labels.Scanner(rec.Scanner), rec)
+		st, ok := studies[rec.StudyInstanceUID]
+		if !ok && study != nil {
+			st, _ = study(rec.StudyInstanceUID) // a study gone since: its UIDs still excluded
+			studies[rec.StudyInstanceUID] = st
+		}
+		m.observeDrift(m.labels.Scanner(rec.Scanner, identifiers(rec, st)...), rec)
 	}
+}
+
+// identifiers are what must never be part of a label: the audit's and
+// its study's UIDs, accession and patient.
+func identifiers(rec store.AuditRecord, st store.Study) []string {
+	return []string{rec.StudyInstanceUID, rec.SeriesUID, rec.AccessionNumber,
+		st.StudyInstanceUID, st.AccessionNumber, st.PatientID, st.PatientName}
 }
 
 func (m *Metrics) observeDrift(scanner string, rec store.AuditRecord) {

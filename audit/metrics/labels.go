@@ -69,9 +69,13 @@ func NewLabels(scanners, protocols, phantoms, ruleIDs []string) *Labels {
 // Scanner is the label of a scanner: a configured label as it is,
 // anything else (a Station Name) sanitised to lower-case [a-z0-9._-] of
 // at most 32 characters, "unknown" when nothing is left, "other" once
-// MaxFallbackScanners such values exist or when the value has the shape
-// of a UID (digits and dots), which a Station Name should never be.
-func (l *Labels) Scanner(s string) string {
+// MaxFallbackScanners such values exist. A Station Name is set by
+// whoever installed the scanner and should name a device; should it hold
+// anything else, it becomes "other" when it holds a UID-like run of
+// numbers (three dotted components; PS3.5 9.1) or contains one of never,
+// the identifiers of the event's study (patient ID and name and each
+// part of the name, accession, UIDs).
+func (l *Labels) Scanner(s string, never ...string) string {
 	if l.scanners[s] {
 		return s
 	}
@@ -81,7 +85,7 @@ func (l *Labels) Scanner(s string) string {
 		return LabelUnknown
 	case l.scanners[v]:
 		return v
-	case uidShaped(v):
+	case uidLike(v), holdsAny(v, never):
 		return LabelOther
 	}
 	l.mu.Lock()
@@ -163,8 +167,58 @@ func sanitise(s string) string {
 	return strings.Trim(v, "_")
 }
 
-// uidShaped reports whether s looks like a DICOM UID: digits and at
-// least one dot, nothing else (PS3.5 9.1).
-func uidShaped(s string) bool {
-	return strings.Contains(s, ".") && strings.Trim(s, "0123456789.") == ""
+// minIdentifierLen is the shortest identifier (or part of a patient
+// name) holdsAny looks for: shorter ones ("MR", "1") would match
+// ordinary device names by chance.
+const minIdentifierLen = 3
+
+// holdsAny reports whether the sanitised label v contains any of the
+// identifiers, sanitised the same way, or any part of one split at the
+// PN component separator '^' (PS3.5 6.2).
+func holdsAny(v string, identifiers []string) bool {
+	for _, id := range identifiers {
+		parts := append(strings.Split(id, "^"), id)
+		for _, p := range parts {
+			if sp := sanitise(p); len(sp) >= minIdentifierLen && strings.Contains(v, sp) {
+				return true
+			}
+		}
+	}
+	return false
 }
+
+// uidLike reports whether s holds a run like the start of a DICOM UID:
+// three numeric components separated by dots (PS3.5 9.1), as in
+// "1.2.840". A device name such as "mr_1.5t" does not.
+func uidLike(s string) bool {
+	for i := 0; i < len(s); {
+		if !isDigit(s[i]) {
+			i++
+			continue
+		}
+		comps, j := 0, i
+		for j < len(s) {
+			k := j
+			for k < len(s) && isDigit(s[k]) {
+				k++
+			}
+			if k == j {
+				break
+			}
+			comps++
+			if comps >= 3 {
+				return true
+			}
+			if k < len(s) && s[k] == '.' {
+				j = k + 1
+				continue
+			}
+			j = k
+			break
+		}
+		i = max(j, i+1)
+	}
+	return false
+}
+
+func isDigit(b byte) bool { return b >= '0' && b <= '9' }

@@ -202,9 +202,10 @@ func (m *Metrics) Association(result string, storeResponses map[string]int) {
 
 // InstanceStored counts one instance stored durably: its scanner (a
 // configured label or a Station Name), its data-set bytes, and the time
-// from its first byte to the commit.
-func (m *Metrics) InstanceStored(scanner string, bytes int64, took time.Duration) {
-	s := m.labels.Scanner(scanner)
+// from its first byte to the commit. never are the identifiers of its
+// study, kept out of the scanner label (Labels.Scanner).
+func (m *Metrics) InstanceStored(scanner string, bytes int64, took time.Duration, never ...string) {
+	s := m.labels.Scanner(scanner, never...)
 	m.instances.WithLabelValues(s).Inc()
 	if bytes > 0 {
 		m.bytes.WithLabelValues(s).Add(float64(bytes))

@@ -26,15 +26,16 @@ type auditNotifier interface {
 	Notify(seriesUID, studyUID string, at time.Time)
 }
 
-// seriesLooker reads a stored series (its Station Name, for the metrics'
-// scanner label of a peer without a configured one).
-type seriesLooker interface {
-	Series(uid string) (store.Series, error)
+// studyLooker reads a stored study: the Station Name of a series, for
+// the metrics' scanner label of a peer without a configured one, and the
+// study's identifiers that label must never hold.
+type studyLooker interface {
+	Study(uid string) (store.Study, error)
 }
 
 // instanceObserver is told about each instance stored (metrics.Metrics).
 type instanceObserver interface {
-	InstanceStored(scanner string, bytes int64, took time.Duration)
+	InstanceStored(scanner string, bytes int64, took time.Duration, never ...string)
 }
 
 // ingest is the acceptor's StoreHandler: it streams each C-STORE data set
@@ -48,7 +49,7 @@ type ingest struct {
 	peers     *peerTable
 	instances instanceLooker   // with audit or metrics
 	audit     auditNotifier    // nil: no audit
-	series    seriesLooker     // with metrics
+	studies   studyLooker      // with metrics
 	metrics   instanceObserver // nil: no metrics
 }
 
@@ -76,15 +77,22 @@ func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
 	}
 	if h.metrics != nil {
 		var size int64
+		var never []string
 		if lerr == nil {
 			size = in.Size - in.DataSetOffset
-			if label == "" && h.series != nil {
-				if se, serr := h.series.Series(in.SeriesInstanceUID); serr == nil {
-					label = se.StationName // metrics.Labels sanitises and bounds it
+			never = []string{in.StudyInstanceUID, in.SeriesInstanceUID, in.SOPInstanceUID}
+			if label == "" && h.studies != nil {
+				if st, serr := h.studies.Study(in.StudyInstanceUID); serr == nil {
+					never = append(never, st.PatientID, st.PatientName, st.AccessionNumber)
+					for _, se := range st.Series {
+						if se.SeriesInstanceUID == in.SeriesInstanceUID {
+							label = se.StationName // metrics.Labels sanitises and bounds it
+						}
+					}
 				}
 			}
 		}
-		h.metrics.InstanceStored(label, size, at.Sub(start))
+		h.metrics.InstanceStored(label, size, at.Sub(start), never...)
 	}
 	return nil
 }

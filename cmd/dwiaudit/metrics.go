@@ -85,9 +85,11 @@ func associationMetrics(m *metrics.Metrics) func(scp.AssociationSummary) {
 	}
 }
 
-// auditsByDay lists the current audits of a day (store.Store.Findings).
+// auditsByDay lists the current audits of a day (store.Store.Findings)
+// and reads their studies.
 type auditsByDay interface {
 	Findings(day string) ([]store.AuditRecord, error)
+	Study(uid string) (store.Study, error)
 }
 
 // seedDriftMetrics sets the drift gauges from the audits of the last
@@ -102,7 +104,7 @@ func seedDriftMetrics(m *metrics.Metrics, st auditsByDay, now time.Time, log *sl
 			log.Warn("seeding the drift metrics: reading stored audits failed", "day", day, "err", err)
 			return
 		}
-		m.Seed(recs)
+		m.Seed(recs, st.Study)
 		n += len(recs)
 	}
 	if n > 0 {

@@ -224,7 +224,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
 		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
 		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
-		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe, series: st, metrics: met},
+		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met},
 		OnAssociation:          associationMetrics(met),
 		Logger:                 log.With("component", "scp"),
 	}
