@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/scp/part10"
 	"dwiaudit/scp/scptest"
 )
 
@@ -43,14 +44,29 @@ func writeNodeConfig(t *testing.T, aeTitle, scanner string) string {
 }
 
 // cleanBrainStudy writes a small clean synthetic brain study (the
-// invented Harbourview General Hospital's HGH-MR1).
-func cleanBrainStudy(t *testing.T) string {
+// invented Harbourview General Hospital's HGH-MR1) and returns its
+// folder and the data-set bytes of its files (each file less its
+// preamble and file meta, PS3.10 7.1).
+func cleanBrainStudy(t *testing.T) (string, int64) {
 	t.Helper()
 	dir := t.TempDir()
-	if _, err := phantom.Write(dir, phantom.Options{Matrix: 32, Slices: 4, Seed: 11}); err != nil {
+	st, err := phantom.Write(dir, phantom.Options{Matrix: 32, Slices: 4, Seed: 11})
+	if err != nil {
 		t.Fatal(err)
 	}
-	return dir
+	var dataSet int64
+	for _, f := range st.Files {
+		_, offset, err := part10.ReadMetaFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		fi, err := os.Stat(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		dataSet += fi.Size() - offset
+	}
+	return dir, dataSet
 }
 
 // scrapeNode GETs the node's /metrics.
@@ -182,7 +198,7 @@ func resultValue(t *testing.T, r promResult) float64 {
 
 func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	prom := scptest.NeedTool(t, "prometheus", "prometheus")
-	src := cleanBrainStudy(t)
+	src, _ := cleanBrainStudy(t)
 	n := startNode(t, t.TempDir(), "--config", writeNodeConfig(t, "HGH_MR1", "hgh-mr1-1.5t"), "--settle", "1s")
 	promAddr := startPrometheus(t, prom, strings.TrimPrefix(n.httpURL, "http://"))
 	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "HGH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
@@ -223,7 +239,7 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 }
 
 func TestARestartedNodeShowsTheLastDriftValuesBeforeAnyNewAudit(t *testing.T) {
-	src := cleanBrainStudy(t)
+	src, dataSetBytes := cleanBrainStudy(t)
 	data := t.TempDir()
 	// No peers: the scanner label comes from the Station Name, HGH-MR1
 	// (audit/phantom Scanners), sanitised.
@@ -235,7 +251,9 @@ func TestARestartedNodeShowsTheLastDriftValuesBeforeAnyNewAudit(t *testing.T) {
 	before := awaitMetricLine(t, n, line, metricsWait)
 	body := scrapeNode(t, n)
 	for _, want := range []string{
-		`dwiaudit_received_instances_total{scanner="hgh-mr1"} `,
+		"dwiaudit_received_instances_total{scanner=\"hgh-mr1\"} 20\n", // b0 and three b1000 directions and the trace, on 4 slices
+		fmt.Sprintf("dwiaudit_received_bytes_total{scanner=\"hgh-mr1\"} %d\n", dataSetBytes),
+		"dwiaudit_cstore_responses_total{status_class=\"success\"} 20\n",
 		`dwiaudit_audits_total{result="ok"} 1`,
 		`dwiaudit_associations_total{result="released"} 1`,
 		`dwiaudit_store_put_duration_seconds_count `,
