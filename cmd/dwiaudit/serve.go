@@ -179,6 +179,11 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
+	prev, err := newPreviews(st, cfg.Audit, log.With("component", "preview"))
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitFailure
+	}
 	pipe := &audit.Pipeline{
 		Engine:  eng,
 		Store:   st,
@@ -238,7 +243,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	}()
 
 	hs := &http.Server{
-		Handler:           withMetrics(newAPI(st, loc, dicomUp.Load, log.With("component", "http")), met),
+		Handler:           withMetrics(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes), met),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
