@@ -157,6 +157,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Location:  loc,
 		Logger:    log,
 		Describe:  describeInstance,
+		Now:       env.now,
 	})
 	if errors.Is(err, store.ErrLocked) {
 		fmt.Fprintf(env.stderr, "dwiaudit serve: data folder %s is held by another dwiaudit process (a running serve, or a studies report still reading)\n", dataDir)
@@ -187,6 +188,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Logger:  log.With("component", "audit"),
 
 		TestPatientIDs: cfg.Audit.TestPatientIDs,
+		Now:            env.now,
 	}
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
