@@ -54,7 +54,7 @@ func TestTheDailyListHasOneRowPerFindingErrorsFirstThenByAuditTime(t *testing.T)
 	}
 	want := []key{
 		{"missing-b0", "error", sts[0].UID},
-		{"low-snr", "warning", sts[2].UID},        // 07:15
+		{"low-snr", "warning", sts[2].UID},         // 07:15
 		{"b0-only-hotspot", "warning", sts[0].UID}, // 10:05
 	}
 	if fmt.Sprint(got) != fmt.Sprint(want) {

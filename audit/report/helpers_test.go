@@ -39,7 +39,7 @@ type clock struct {
 	t  time.Time
 }
 
-func (c *clock) Now() time.Time { c.mu.Lock(); defer c.mu.Unlock(); return c.t }
+func (c *clock) Now() time.Time  { c.mu.Lock(); defer c.mu.Unlock(); return c.t }
 func (c *clock) Set(t time.Time) { c.mu.Lock(); c.t = t; c.mu.Unlock() }
 
 // describe is the node's Options.Describe (cmd/dwiaudit/describe.go):
@@ -188,4 +188,3 @@ func newStudy(i int) study {
 		Accession: fmt.Sprintf("ACC%05d", 300+i),
 	}
 }
-
