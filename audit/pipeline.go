@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"cmp"
 	"context"
 	"encoding/json"
 	"errors"
@@ -329,9 +330,21 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
 		}
 	}
 	slices.Sort(order)
+	// The store knows the scanner label the series came in under (the
+	// peer's, from the configuration); the files know only the Station
+	// Name, which is what the report holds.
+	labels := map[string]string{}
+	for _, se := range st.Series {
+		labels[se.SeriesInstanceUID] = se.ScannerLabel
+	}
 	ok := true
 	for _, uid := range order {
 		fs := append(slices.Clone(bySeries[uid]), studyWide...)
+		if l := labels[uid]; l != "" {
+			for i := range fs {
+				fs[i].Scanner = l
+			}
+		}
 		rec := store.AuditRecord{
 			AuditTime:        at,
 			StudyInstanceUID: st.StudyInstanceUID,
@@ -341,7 +354,7 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
 			Findings:         findingsJSON(fs),
 		}
 		if r := reports[uid]; r != nil {
-			rec.Scanner = r.Scanner
+			rec.Scanner = cmp.Or(labels[uid], r.Scanner)
 			rec.Measures = measuresJSON(r)
 		} else if len(fs) > 0 {
 			rec.Scanner = fs[0].Scanner

@@ -25,9 +25,16 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
+	"dwiaudit/store"
 )
+
+// accessionOf is the Accession Number phantom.Write gives a study of
+// seed (audit/phantom/phantom.go), for the reader to find the study in
+// the daily list.
+func accessionOf(seed int64) string { return fmt.Sprintf("HGHSYN%06d", uint64(seed)%1000000) }
 
 // Settings of the demo node.
 const (
@@ -43,8 +50,6 @@ const (
 	// studies audit in a few seconds on two cores; a minute means the
 	// node is stuck.
 	demoAuditTimeout = 2 * time.Minute
-	// demoMessageWidth is where the daily list wraps a finding's message.
-	demoMessageWidth = 96
 )
 
 // demoScanner is one of the invented hospital's scanners as a peer of
@@ -391,7 +396,7 @@ func (d *demo) runDay(ctx context.Context, client *findingsClient, day int) erro
 		for _, se := range st.Series {
 			d.series[se.UID] = i
 		}
-		fmt.Fprintf(w, "  sent  %-13s %s  %-24s study %s\n", sc.label, at.Format("15:04"), s.name(), st.StudyUID)
+		fmt.Fprintf(w, "  sent  %-13s %s  %-22s accession %s  study %s\n", sc.label, at.Format("15:04"), s.name(), accessionOf(opt.Seed), st.StudyUID)
 	}
 
 	sendStart := time.Now()
@@ -418,86 +423,73 @@ func (d *demo) runDay(ctx context.Context, client *findingsClient, day int) erro
 	fmt.Fprintf(w, "  %d studies, %d files sent with C-STORE in %v; audited %v after the last file (settle %v)\n",
 		len(uids), files, sent.Round(10*time.Millisecond), time.Since(sendStart.Add(sent)).Round(10*time.Millisecond), demoSettle)
 	fmt.Fprintln(w)
-	d.printDailyList(w, dayName, audits)
-	return nil
+	return d.printDailyList(ctx, w, client, dayName)
 }
 
-// printDailyList prints the day's discrepancy list from the audits the
-// API gave: every finding of warning or above, with the scanner, the
-// study's planted defect and the message. (A stand-in until
-// audit/report's renderer is merged.)
-func (d *demo) printDailyList(w io.Writer, day string, audits []auditView) {
-	fmt.Fprintf(w, "  Daily discrepancy list, %s (audit day; warnings and errors)\n", day)
-	type row struct {
-		at                                     time.Time
-		scanner, planted, series, rule, sev    string
-		message                                string
-		sortScanner, sortStudy, sortSeriesRule string
+// printDailyList prints the day's discrepancy list as audit/report
+// builds and renders it, reading the node's audits over its HTTP API
+// (the node holds its data folder, so the demo asks it like any client).
+func (d *demo) printDailyList(ctx context.Context, w io.Writer, client *findingsClient, day string) error {
+	b := &report.Builder{
+		Source:   &apiReportSource{ctx: ctx, client: client},
+		BaseURL:  "http://" + d.httpAddr,
+		Location: d.loc,
+		Now:      d.clock.Now,
 	}
-	var rows []row
-	clean := 0
+	list, err := b.Daily(day)
+	if err != nil {
+		return err
+	}
+	return list.WriteText(w)
+}
+
+// apiReportSource is report.Source over a node's HTTP API:
+// /api/v1/findings for the audits of a day and /api/v1/studies for the
+// studies' index records (which the API gives without patient IDs).
+type apiReportSource struct {
+	ctx     context.Context
+	client  *findingsClient
+	studies map[string]store.Study // filled on the first Study call
+}
+
+func (s *apiReportSource) Findings(day string) ([]store.AuditRecord, error) {
+	_, audits, err := s.client.day(s.ctx, day)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]store.AuditRecord, 0, len(audits))
 	for _, a := range audits {
-		if sev, any := a.worst(); !any || sev < rules.SeverityWarning {
-			clean++
+		measures := a.Measures
+		if string(measures) == "null" {
+			measures = nil
 		}
-		for _, f := range a.findings {
-			if f.Severity < rules.SeverityWarning {
-				continue
-			}
-			planted := "?"
-			if i, ok := d.studies[a.StudyUID]; ok {
-				planted = d.scenario[i].name()
-			}
-			rows = append(rows, row{
-				at: a.AuditTime, scanner: a.Scanner, planted: planted,
-				series: fmt.Sprintf("%d %s", f.SeriesNumber, f.SeriesDescription), rule: f.Rule, sev: f.Severity.String(),
-				message:     f.Message,
-				sortScanner: a.Scanner, sortStudy: a.StudyUID, sortSeriesRule: fmt.Sprintf("%04d %s", f.SeriesNumber, f.Rule),
-			})
-		}
+		out = append(out, store.AuditRecord{
+			AuditTime: a.AuditTime, StudyInstanceUID: a.StudyUID, SeriesUID: a.SeriesUID,
+			Scanner: a.Scanner, AccessionNumber: a.AccessionNumber, Findings: a.Findings, Measures: measures,
+		})
 	}
-	slices.SortFunc(rows, func(a, b row) int {
-		return strings.Compare(a.sortScanner+"|"+a.sortStudy+"|"+a.sortSeriesRule, b.sortScanner+"|"+b.sortStudy+"|"+b.sortSeriesRule)
-	})
-	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "  scanner\tplanted\tseries\trule\tseverity\t")
-	for _, r := range rows {
-		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t\n", r.scanner, r.planted, r.series, r.rule, r.sev)
-	}
-	tw.Flush()
-	if len(rows) == 0 {
-		fmt.Fprintln(w, "  (no warning or error)")
-	}
-	fmt.Fprintf(w, "  %d series audited, %d without a warning or error\n", len(audits), clean)
-	if len(rows) > 0 {
-		fmt.Fprintln(w, "  Why:")
-	}
-	for _, r := range rows {
-		fmt.Fprintf(w, "  - %s on %s (%s):\n", r.rule, r.planted, r.scanner)
-		for _, line := range wrap(r.message, demoMessageWidth) {
-			fmt.Fprintf(w, "      %s\n", line)
-		}
-	}
+	return out, nil
 }
 
-// wrap breaks s into lines of at most width characters at spaces.
-func wrap(s string, width int) []string {
-	var lines []string
-	line := ""
-	for _, word := range strings.Fields(s) {
-		if line != "" && len(line)+1+len(word) > width {
-			lines = append(lines, line)
-			line = ""
+func (s *apiReportSource) Study(uid string) (store.Study, error) {
+	if s.studies == nil {
+		var body StudiesResponse
+		if err := s.client.get(s.ctx, "/api/v1/studies", &body); err != nil {
+			return store.Study{}, err
 		}
-		if line != "" {
-			line += " "
+		s.studies = map[string]store.Study{}
+		for _, st := range body.Studies {
+			s.studies[st.StudyInstanceUID] = store.Study{
+				StudyInstanceUID: st.StudyInstanceUID, StudyDate: st.StudyDate, StudyTime: st.StudyTime,
+				AccessionNumber: st.AccessionNumber, FirstReceived: st.FirstReceived, LastReceived: st.LastReceived,
+			}
 		}
-		line += word
 	}
-	if line != "" {
-		lines = append(lines, line)
+	st, ok := s.studies[uid]
+	if !ok {
+		return store.Study{}, store.ErrNotFound
 	}
-	return lines
+	return st, nil
 }
 
 // studyResult is what the audits of one scenario study show.
@@ -586,8 +578,8 @@ func (d *demo) printSummary(w io.Writer) bool {
 		if r.fired[rules.IDPhantomADCBias] {
 			verdict = "phantom-adc-bias"
 		}
-		fmt.Fprintf(w, "  %s  central ADC %.4g mm²/s, expected %.4g (%+.1f%%)  %s\n",
-			d.days[s.day], *r.phantom, *r.expected, 100*(*r.phantom / *r.expected - 1), verdict)
+		fmt.Fprintf(w, "  %s  central ADC %.3fe-3 mm²/s, expected %.2fe-3 (%+.1f%%)  %s\n",
+			d.days[s.day], 1e3**r.phantom, 1e3**r.expected, 100*(*r.phantom / *r.expected - 1), verdict)
 	}
 
 	fmt.Fprintln(w, "\n== Scenario check: what each study planted against what the node found")

@@ -212,30 +212,39 @@ func newFindingsClient(base string) *findingsClient {
 	return &findingsClient{base: strings.TrimRight(base, "/"), hc: &http.Client{Timeout: httpTimeout}}
 }
 
-// day returns the audits of day (YYYY-MM-DD; "" for the node's today)
-// and the day the node answered for.
-func (c *findingsClient) day(ctx context.Context, day string) (string, []auditView, error) {
-	url := c.base + "/api/v1/findings"
-	if day != "" {
-		url += "?day=" + day
-	}
+// get GETs path from the node and decodes its JSON answer into v.
+func (c *findingsClient) get(ctx context.Context, path string, v any) error {
+	url := c.base + path
 	req, err := http.NewRequestWithContext(ctx, http.MethodGet, url, nil)
 	if err != nil {
-		return "", nil, err
+		return err
 	}
 	res, err := c.hc.Do(req)
 	if err != nil {
-		return "", nil, err
+		return err
 	}
 	defer res.Body.Close()
 	if res.StatusCode != http.StatusOK {
 		var eb errorBody
 		json.NewDecoder(res.Body).Decode(&eb)
-		return "", nil, fmt.Errorf("GET %s: %s %s", url, res.Status, eb.Error)
+		return fmt.Errorf("GET %s: %s %s", url, res.Status, eb.Error)
+	}
+	if err := json.NewDecoder(res.Body).Decode(v); err != nil {
+		return fmt.Errorf("GET %s: %w", url, err)
+	}
+	return nil
+}
+
+// day returns the audits of day (YYYY-MM-DD; "" for the node's today)
+// and the day the node answered for.
+func (c *findingsClient) day(ctx context.Context, day string) (string, []auditView, error) {
+	path := "/api/v1/findings"
+	if day != "" {
+		path += "?day=" + day
 	}
 	var body FindingsResponse
-	if err := json.NewDecoder(res.Body).Decode(&body); err != nil {
-		return "", nil, fmt.Errorf("GET %s: %w", url, err)
+	if err := c.get(ctx, path, &body); err != nil {
+		return "", nil, err
 	}
 	out := make([]auditView, 0, len(body.Audits))
 	for _, a := range body.Audits {
