@@ -171,3 +171,15 @@ func TestDemoRefusesAFolderThatHoldsData(t *testing.T) {
 		t.Errorf("demo with an argument exited %d, want 2", r.code)
 	}
 }
+
+// BenchmarkDemo measures the whole `dwiaudit demo --exit`: writing the
+// 24 studies, sending them over C-STORE, the settle times and the audits
+// (target: well under 60 s on two cores).
+func BenchmarkDemo(b *testing.B) {
+	for b.Loop() {
+		r := runCLI(b, "demo", "--exit", "--data", b.TempDir())
+		if r.code != exitOK {
+			b.Fatalf("demo exited %d", r.code)
+		}
+	}
+}

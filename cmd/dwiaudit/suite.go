@@ -167,9 +167,18 @@ func claimTransferSyntax(path, ts string) error {
 // sendStudies sends the folders with C-STORE and fails unless every file
 // was stored.
 func sendStudies(ctx context.Context, d *scp.Dialer, addr string, dirs []string) (scp.SendSummary, error) {
-	sum, err := scp.SendFiles(ctx, scp.SendOptions{Dialer: d, Addr: addr, Parallel: 2}, dirs)
+	var firstErr error // guarded by SendFiles: Progress calls are serialized
+	progress := func(r scp.SendResult) {
+		if firstErr == nil && r.Err != nil {
+			firstErr = r.Err
+		}
+	}
+	sum, err := scp.SendFiles(ctx, scp.SendOptions{Dialer: d, Addr: addr, Parallel: 2, Progress: progress}, dirs)
 	if err != nil {
 		return sum, err
+	}
+	if firstErr != nil {
+		return sum, fmt.Errorf("%d of %d files not stored: %w", sum.Failures, sum.Files, firstErr)
 	}
 	if sum.Failures > 0 || sum.Sent+sum.Warnings != sum.Files {
 		var codes []string
