@@ -41,6 +41,16 @@ type cliEnv struct {
 	now func() time.Time
 }
 
+// clock is the node's clock: env.now, or time.Now when unset. Whatever
+// in serve takes a clock (archives, schedulers, metrics seeding) should
+// take this one, so that the demo's days reach it.
+func (e *cliEnv) clock() func() time.Time {
+	if e.now != nil {
+		return e.now
+	}
+	return time.Now
+}
+
 func commands() []command {
 	return []command{
 		{"echo", "check that a DICOM node answers C-ECHO", runEcho},

@@ -157,7 +157,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Location:  loc,
 		Logger:    log,
 		Describe:  describeInstance,
-		Now:       env.now,
+		Now:       env.clock(),
 	})
 	if errors.Is(err, store.ErrLocked) {
 		fmt.Fprintf(env.stderr, "dwiaudit serve: data folder %s is held by another dwiaudit process (a running serve, or a studies report still reading)\n", dataDir)
@@ -186,9 +186,9 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Settle:  time.Duration(cfg.Audit.Settle),
 		Workers: cfg.Audit.Workers,
 		Logger:  log.With("component", "audit"),
+		Now:     env.clock(),
 
 		TestPatientIDs: cfg.Audit.TestPatientIDs,
-		Now:            env.now,
 	}
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
