@@ -44,6 +44,7 @@ func commands() []command {
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
+		{"report", "the daily discrepancy list and the protocol compliance report", runReport},
 	}
 }
 
