@@ -11,6 +11,7 @@ package main
 import (
 	"bufio"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -28,7 +29,6 @@ import (
 	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
-	"dwiaudit/store"
 )
 
 // accessionOf is the Accession Number phantom.Write gives a study of
@@ -426,70 +426,19 @@ func (d *demo) runDay(ctx context.Context, client *findingsClient, day int) erro
 	return d.printDailyList(ctx, w, client, dayName)
 }
 
-// printDailyList prints the day's discrepancy list as audit/report
-// builds and renders it, reading the node's audits over its HTTP API
-// (the node holds its data folder, so the demo asks it like any client).
+// printDailyList prints the day's discrepancy list as the node serves
+// it (GET /api/v1/reports/daily/<day>.json, built by audit/report),
+// rendered with audit/report's text renderer.
 func (d *demo) printDailyList(ctx context.Context, w io.Writer, client *findingsClient, day string) error {
-	b := &report.Builder{
-		Source:   &apiReportSource{ctx: ctx, client: client},
-		BaseURL:  "http://" + d.httpAddr,
-		Location: d.loc,
-		Now:      d.clock.Now,
+	var raw json.RawMessage
+	if err := client.get(ctx, "/api/v1/reports/daily/"+day+".json", &raw); err != nil {
+		return err
 	}
-	list, err := b.Daily(day)
+	list, err := report.ParseDailyList(raw)
 	if err != nil {
 		return err
 	}
 	return list.WriteText(w)
-}
-
-// apiReportSource is report.Source over a node's HTTP API:
-// /api/v1/findings for the audits of a day and /api/v1/studies for the
-// studies' index records (which the API gives without patient IDs).
-type apiReportSource struct {
-	ctx     context.Context
-	client  *findingsClient
-	studies map[string]store.Study // filled on the first Study call
-}
-
-func (s *apiReportSource) Findings(day string) ([]store.AuditRecord, error) {
-	_, audits, err := s.client.day(s.ctx, day)
-	if err != nil {
-		return nil, err
-	}
-	out := make([]store.AuditRecord, 0, len(audits))
-	for _, a := range audits {
-		measures := a.Measures
-		if string(measures) == "null" {
-			measures = nil
-		}
-		out = append(out, store.AuditRecord{
-			AuditTime: a.AuditTime, StudyInstanceUID: a.StudyUID, SeriesUID: a.SeriesUID,
-			Scanner: a.Scanner, AccessionNumber: a.AccessionNumber, Findings: a.Findings, Measures: measures,
-		})
-	}
-	return out, nil
-}
-
-func (s *apiReportSource) Study(uid string) (store.Study, error) {
-	if s.studies == nil {
-		var body StudiesResponse
-		if err := s.client.get(s.ctx, "/api/v1/studies", &body); err != nil {
-			return store.Study{}, err
-		}
-		s.studies = map[string]store.Study{}
-		for _, st := range body.Studies {
-			s.studies[st.StudyInstanceUID] = store.Study{
-				StudyInstanceUID: st.StudyInstanceUID, StudyDate: st.StudyDate, StudyTime: st.StudyTime,
-				AccessionNumber: st.AccessionNumber, FirstReceived: st.FirstReceived, LastReceived: st.LastReceived,
-			}
-		}
-	}
-	st, ok := s.studies[uid]
-	if !ok {
-		return store.Study{}, store.ErrNotFound
-	}
-	return st, nil
 }
 
 // studyResult is what the audits of one scenario study show.
@@ -649,6 +598,7 @@ func (d *demo) printSummary(w io.Writer) bool {
 	}
 	fmt.Fprintf(w, "  the drifting scanner  %s/scanners/%s\n", base, label)
 	fmt.Fprintf(w, "  Prometheus metrics    %s/metrics\n", base)
+	fmt.Fprintf(w, "  printable daily list  %s/api/v1/reports/daily/%s.html\n", base, last)
 	fmt.Fprintf(w, "  findings as JSON      %s/api/v1/findings?day=%s\n", base, last)
 	return allOK
 }

@@ -41,6 +41,10 @@ func TestDemoExitShowsEveryRuleOnItsPlantedStudyAndNothingOnTheCleanOnes(t *test
 		if !strings.Contains(out, cautionLine) {
 			t.Error("the output lacks the caution line")
 		}
+		// One list per day, as the node's report endpoint serves it.
+		if n := strings.Count(out, "Daily discrepancy list "); n != 4 {
+			t.Errorf("%d daily lists in the output, want 4", n)
+		}
 		for _, path := range []string{"/days/", "/studies/", "/scanners/hgh-mr1-1.5t", "/metrics"} {
 			if !strings.Contains(out, path) {
 				t.Errorf("the output gives no %s URL", path)

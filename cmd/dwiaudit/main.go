@@ -59,6 +59,7 @@ func commands() []command {
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
+		{"report", "the daily discrepancy list and the protocol compliance report", runReport},
 		{"demo", "run a node on a synthetic hospital's studies over several days and show what it finds", runDemo},
 		{"selftest", "prove an installed node audits: send it a planted-defect suite and compare", runSelftest},
 	}

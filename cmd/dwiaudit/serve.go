@@ -235,8 +235,9 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		dicomDone <- err
 	}()
 
+	archive := newReportArchive(cfg.Reports, st, loc, env.clock())
 	hs := &http.Server{
-		Handler:           newAPI(st, loc, dicomUp.Load, log.With("component", "http")),
+		Handler:           withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http")), archive, log.With("component", "http")),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
@@ -255,6 +256,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
 	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
+	daily := &dailyScheduler{archive: archive, lists: st, loc: loc, now: env.clock(), after: time.After, log: log.With("component", "reports")}
+	pruning.Go(func() { daily.run(pruneCtx) })
 
 	select {
 	case <-ctx.Done():
