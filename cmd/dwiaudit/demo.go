@@ -444,6 +444,7 @@ func (d *demo) printDailyList(ctx context.Context, w io.Writer, client *findings
 // studyResult is what the audits of one scenario study show.
 type studyResult struct {
 	fired    map[string]bool // rules with a finding of warning or above
+	count    map[string]int  // findings of warning or above per rule
 	any      map[string]bool // rules with any finding
 	worst    rules.Severity
 	hasWorst bool
@@ -463,13 +464,14 @@ func (d *demo) results() map[int]*studyResult {
 			}
 			r := out[i]
 			if r == nil {
-				r = &studyResult{fired: map[string]bool{}, any: map[string]bool{}, studyUID: a.StudyUID}
+				r = &studyResult{fired: map[string]bool{}, count: map[string]int{}, any: map[string]bool{}, studyUID: a.StudyUID}
 				out[i] = r
 			}
 			for _, f := range a.findings {
 				r.any[f.Rule] = true
 				if f.Severity >= rules.SeverityWarning {
 					r.fired[f.Rule] = true
+					r.count[f.Rule]++
 				}
 				if !r.hasWorst || f.Severity > r.worst {
 					r.worst, r.hasWorst = f.Severity, true
@@ -498,15 +500,17 @@ func (d *demo) printSummary(w io.Writer) bool {
 
 	fmt.Fprintf(w, "\n== Findings per rule over the %d days (warning or above)\n", demoDays)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "  rule\tstudies\ton the planted studies\t")
+	fmt.Fprintln(tw, "  rule\tfindings\tstudies\ton the planted studies\t")
 	for _, id := range ruleIDs() {
 		var on []string
+		n := 0
 		for i := range d.scenario {
 			if r := res[i]; r != nil && r.fired[id] {
 				on = append(on, where(i))
+				n += r.count[id]
 			}
 		}
-		fmt.Fprintf(tw, "  %s\t%d\t%s\t\n", id, len(on), strings.Join(on, "; "))
+		fmt.Fprintf(tw, "  %s\t%d\t%d\t%s\t\n", id, n, len(on), strings.Join(on, "; "))
 	}
 	tw.Flush()
 
