@@ -183,8 +183,12 @@ func TestALateSeriesReopensTheStudyAndTheNewAuditReplacesTheOld(t *testing.T) {
 	if got := rulesOf(t, first); !slices.Contains(got, rules.IDMissingB0) {
 		t.Fatalf("first audit found %v, want missing-b0 (no b0 received yet)", got)
 	}
-	if first.Scanner == "" || first.AccessionNumber != "HGH0001" || first.StudyInstanceUID != st.StudyUID || len(first.Measures) == 0 {
-		t.Errorf("first audit %+v lacks scanner, accession number, study UID or measures", first)
+	if first.Scanner != "hgh-mr1" || first.AccessionNumber != "HGH0001" || first.StudyInstanceUID != st.StudyUID || len(first.Measures) == 0 {
+		t.Errorf("first audit %+v lacks the store's scanner label, accession number, study UID or measures", first)
+	}
+	var fs []rules.Finding
+	if err := json.Unmarshal(first.Findings, &fs); err != nil || len(fs) == 0 || fs[0].Scanner != "hgh-mr1" {
+		t.Errorf("first audit's findings %s do not carry the store's scanner label hgh-mr1 (err %v)", first.Findings, err)
 	}
 
 	m.receive(b0.UID, b0.Files)

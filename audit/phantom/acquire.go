@@ -177,6 +177,9 @@ func plan(o Options) *acquisition {
 	case CaseBValueHeaderWrong:
 		applied[last] *= headerWrongFactor
 	}
+	for i := range applied {
+		applied[i] *= o.AppliedBScale
+	}
 	b0Role := RoleDWI
 	if o.B0Series || o.Case == CaseSlicePositions {
 		b0Role = RoleB0

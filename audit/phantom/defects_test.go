@@ -347,3 +347,37 @@ func checkIceWater(t *testing.T, st *Study, imgs []image, celsius float64) {
 		t.Fatalf("water ADC from the pixels %v, want %v (Holz 2000 at %g C)", got, WaterADC(celsius), celsius)
 	}
 }
+
+func TestPhantomAppliedBScaleBiasesTheMeasuredADC(t *testing.T) {
+	zero := [3]float64{}
+	cases := []struct {
+		name  string
+		c     Case
+		scale float64
+		label uint8
+		truth float64 // the tissue's true ADC, mm²/s
+	}{
+		{"ice water on a scanner applying 3% more weighting reads 3% high", CaseIceWater0C, 1.03, LabelWater, WaterADC(IceWaterC)},
+		{"white matter on a scanner applying 5% less weighting reads 5% low", CaseClean, 0.95, LabelWM, ADCWhiteMatter},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			st := write(t, Options{Case: c.c, AppliedBScale: c.scale, SNR: math.Inf(1), Seed: 5})
+			tr := st.Truth
+			if !slices.Equal(tr.HeaderB, []float64{0, 1000}) || !slices.Equal(tr.AppliedB, []float64{0, 1000 * c.scale}) {
+				t.Fatalf("header b %v, applied b %v", tr.HeaderB, tr.AppliedB)
+			}
+			imgs := readStudy(t, st)
+			b0, trace := volumeOf(t, tr, imgs, volB0, 0, zero), volumeOf(t, tr, imgs, volTrace, 1000, zero)
+			// Read with the header's b = 1000 the pixels give the true ADC
+			// times the scale: ln(S0/Sb) = applied b x ADC (DOMAIN.md's
+			// two-point formula); 0.5% covers rounding to stored pixels.
+			if got, want := medianADC(tr, b0, trace, 1000, c.label), c.truth*c.scale; !within(got, want, 0.005) {
+				t.Fatalf("ADC read with the header b %v, want %v", got, want)
+			}
+			if len(tr.Planted) != 0 {
+				t.Fatalf("a calibration drift is no planted defect: %+v", tr.Planted)
+			}
+		})
+	}
+}

@@ -56,6 +56,12 @@ const (
 	maxAliasK = 6
 	// maxSH is the length of an SH value (PS3.5 6.2): Station Name.
 	maxSH = 16
+	// minBScale and maxBScale bound Options.AppliedBScale: a gradient
+	// calibration off by more than about 20% in amplitude (b off by a
+	// factor 0.64 to 1.44) would fail the scanner's own acceptance
+	// tests (common practice); the bounds leave room past that.
+	minBScale = 0.5
+	maxBScale = 1.5
 )
 
 // The defect sizes of the cases, each with its reason.
@@ -144,6 +150,15 @@ type Options struct {
 	// isotropic ADC, so that each direction differs and only the trace
 	// (geometric mean) gives the ADC.
 	Anisotropic bool
+	// AppliedBScale is the diffusion weighting the scanner actually
+	// applies relative to the b-values it writes in the header, as on a
+	// scanner whose gradient amplitude calibration is off: b grows with
+	// the square of the gradient amplitude (Stejskal-Tanner; common
+	// practice), so an amplitude 1% high applies b x 1.0201. A phantom
+	// then measures its ADC times this factor (ln(S0/Sb) = applied b x
+	// ADC, read with the header's b). Zero means 1 (exact calibration);
+	// it multiplies whatever a case applies (bvalue-header-wrong's 0.7).
+	AppliedBScale float64
 
 	Protocol       string         // Protocol Name (0018,1030); derived from the b-values when empty
 	Scanner        ScannerProfile // Scanners()[0] when zero
@@ -196,6 +211,9 @@ func (o Options) withDefaults() (Options, error) {
 	if o.TransferSyntax == "" {
 		o.TransferSyntax = ExplicitVRLittleEndian
 	}
+	if o.AppliedBScale == 0 {
+		o.AppliedBScale = 1
+	}
 	if o.Protocol == "" {
 		o.Protocol = defaultProtocol(o.Case, o.BValues)
 	}
@@ -231,6 +249,9 @@ func (o Options) withDefaults() (Options, error) {
 		bad("B0ArtifactK %v for %s, want 1 < k <= %d (signal added)", k, o.Case, maxAliasK)
 	case o.Case == CaseB0ArtifactDropout && !(k > 0 && k < 1):
 		bad("B0ArtifactK %v for %s, want 0 < k < 1 (signal lost)", k, o.Case)
+	}
+	if !(o.AppliedBScale >= minBScale && o.AppliedBScale <= maxBScale) { // NaN too
+		bad("AppliedBScale %v, want %g..%g", o.AppliedBScale, minBScale, maxBScale)
 	}
 	if o.Directions != 1 && o.Directions != 3 && o.Directions != 6 {
 		bad("Directions %d, want 1, 3 or 6", o.Directions)

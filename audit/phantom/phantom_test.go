@@ -114,6 +114,7 @@ func TestPhantomOptionsAreChecked(t *testing.T) {
 		{"an artifact strength on a case without a b0 artifact", Options{Case: CaseClean, B0ArtifactK: 1.2}, []string{"B0ArtifactK 1.2 applies only"}},
 		{"aliasing that would remove signal", Options{Case: CaseB0ArtifactAliasing, B0ArtifactK: 0.9}, []string{"B0ArtifactK 0.9"}},
 		{"aliasing strong enough to clip the stored bits", Options{Case: CaseB0ArtifactAliasing, B0ArtifactK: 7}, []string{"B0ArtifactK 7"}},
+		{"a b-value scale outside 0.5..1.5", Options{AppliedBScale: 2}, []string{"AppliedBScale 2"}},
 		{"dropout that would add signal", Options{Case: CaseB0ArtifactDropout, B0ArtifactK: 1.1}, []string{"B0ArtifactK 1.1"}},
 	}
 	for _, c := range cases {

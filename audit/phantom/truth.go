@@ -29,7 +29,7 @@ type Truth struct {
 	// AppliedB and HeaderB are the b-values of the images, ascending, in
 	// pairs: the diffusion weighting actually applied to the pixels and
 	// the b-value written in the header. They differ only in the
-	// bvalue-header-wrong case.
+	// bvalue-header-wrong case and when Options.AppliedBScale is not 1.
 	AppliedB, HeaderB []float64
 	Directions        [][3]float64 // gradient directions of every non-zero b-value, patient axes
 

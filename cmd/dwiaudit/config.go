@@ -90,6 +90,7 @@ type Config struct {
 	Retention RetentionConfig `yaml:"retention"`
 	Log       LogConfig       `yaml:"log"`
 	Audit     AuditConfig     `yaml:"audit"`
+	Reports   ReportsConfig   `yaml:"reports"`
 }
 
 // NodeConfig is who and where the node is.
@@ -160,8 +161,9 @@ func DefaultConfig() Config {
 			InstanceFiles: Duration(defaultRetention),
 			PruneInterval: Duration(defaultPruneInterval),
 		},
-		Log:   LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
-		Audit: DefaultAuditConfig(),
+		Log:     LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
+		Audit:   DefaultAuditConfig(),
+		Reports: defaultReportsConfig(),
 	}
 }
 
@@ -243,6 +245,7 @@ func (c Config) Validate() error {
 	p.atLeast("retention.instance_files", c.Retention.InstanceFiles, minRetention)
 	p.atLeast("retention.prune_interval", c.Retention.PruneInterval, minPruneInterval)
 	c.Audit.validate(&p)
+	c.Reports.validate(&p)
 	return p.err("")
 }
 

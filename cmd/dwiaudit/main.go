@@ -12,6 +12,7 @@ import (
 	"os"
 	"os/signal"
 	"syscall"
+	"time"
 )
 
 // exit codes
@@ -34,6 +35,20 @@ type cliEnv struct {
 	// isTerminal reports whether stderr is an interactive terminal (for
 	// progress bars).
 	isTerminal bool
+	// now, when set, is the node's clock (receive and audit times, so
+	// the receive and audit days); nil means time.Now. `dwiaudit demo`
+	// sets it to walk the node through several days.
+	now func() time.Time
+}
+
+// clock is the node's clock: env.now, or time.Now when unset. Whatever
+// in serve takes a clock (archives, schedulers, metrics seeding) should
+// take this one, so that the demo's days reach it.
+func (e *cliEnv) clock() func() time.Time {
+	if e.now != nil {
+		return e.now
+	}
+	return time.Now
 }
 
 func commands() []command {
@@ -44,6 +59,9 @@ func commands() []command {
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
+		{"report", "the daily discrepancy list and the protocol compliance report", runReport},
+		{"demo", "run a node on a synthetic hospital's studies over several days and show what it finds", runDemo},
+		{"selftest", "prove an installed node audits: send it a planted-defect suite and compare", runSelftest},
 	}
 }
 

@@ -157,6 +157,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Location:  loc,
 		Logger:    log,
 		Describe:  describeInstance,
+		Now:       env.clock(),
 	})
 	if errors.Is(err, store.ErrLocked) {
 		fmt.Fprintf(env.stderr, "dwiaudit serve: data folder %s is held by another dwiaudit process (a running serve, or a studies report still reading)\n", dataDir)
@@ -190,12 +191,13 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		Settle:  time.Duration(cfg.Audit.Settle),
 		Workers: cfg.Audit.Workers,
 		Logger:  log.With("component", "audit"),
+		Now:     env.clock(),
 
 		TestPatientIDs: cfg.Audit.TestPatientIDs,
 	}
 	met := newNodeMetrics(cfg, st.FreeBytes, pipe.Backlog, log.With("component", "metrics"))
 	pipe.Observer = met
-	seedDriftMetrics(met, st, time.Now().In(loc), log.With("component", "metrics"))
+	seedDriftMetrics(met, st, env.clock()().In(loc), log.With("component", "metrics"))
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitFailure
@@ -242,8 +244,10 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		dicomDone <- err
 	}()
 
+	archive := newReportArchive(cfg.Reports, st, loc, env.clock())
 	hs := &http.Server{
-		Handler:           withMetrics(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes), met),
+		Handler: withMetrics(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes),
+			archive, log.With("component", "http")), met),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
@@ -262,6 +266,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
 	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
+	daily := &dailyScheduler{archive: archive, lists: st, loc: loc, now: env.clock(), after: time.After, log: log.With("component", "reports")}
+	pruning.Go(func() { daily.run(pruneCtx) })
 
 	select {
 	case <-ctx.Done():
