@@ -43,6 +43,20 @@ type PipelineStore interface {
 	Dir() string
 }
 
+// Observer is told what the pipeline did, for metrics (audit/metrics
+// implements it). Its methods are called from the audit workers and must
+// not block.
+type Observer interface {
+	// AuditSaved is called for each series audit saved, with the record
+	// as stored and its study as the store knows it (whose patient
+	// identifiers the observer must keep out of anything it exposes).
+	AuditSaved(rec store.AuditRecord, study store.Study)
+	// StudyAudited is called once per study audit that finished: ok is
+	// false when the audit stopped (error, panic, timeout) or one of its
+	// series audits could not be saved.
+	StudyAudited(ok bool, took time.Duration)
+}
+
 // Pipeline audits what the node receives: a study is audited once none
 // of its series received an instance for Settle; a later instance opens
 // it again, and the new audit replaces the findings of the old one (the
@@ -70,6 +84,9 @@ type Pipeline struct {
 	// Logger gets UIDs, counts and errors, never patient data. Nil
 	// discards.
 	Logger *slog.Logger
+	// Observer, when set, is told of every saved audit and finished
+	// study audit.
+	Observer Observer
 
 	mu      sync.Mutex
 	started bool
@@ -266,6 +283,7 @@ func (p *Pipeline) auditStudy(study string) {
 		if r := recover(); r != nil {
 			log.Error("audit panicked", "panic", fmt.Sprint(r), "stack", string(debug.Stack()))
 			p.saveFailed(st, fmt.Sprintf("the audit stopped on an internal error: %v", r), started)
+			p.observe(false, started)
 		}
 	}()
 
@@ -295,15 +313,17 @@ func (p *Pipeline) auditStudy(study string) {
 	case err != nil:
 		log.Warn("audit failed", "err", err)
 		p.saveFailed(st, "the audit did not finish: "+err.Error(), started)
+		p.observe(false, started)
 		return
 	}
-	p.save(st, rep, started)
+	p.observe(p.save(st, rep, started), started)
 	log.Info("study audited", "series", len(rep.Series), "findings", len(rep.Findings), "took", p.now().Sub(started).Round(time.Millisecond).String())
 }
 
 // save stores an audit per series of the report (and per series only a
-// finding names), then takes the study's series off the pending list.
-func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
+// finding names), then takes the study's series off the pending list. It
+// reports whether every audit was saved.
+func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) bool {
 	at := p.now()
 	bySeries := map[string][]rules.Finding{}
 	var studyWide []rules.Finding
@@ -349,11 +369,14 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) {
 		if err := p.Store.SaveAudit(rec); err != nil {
 			ok = false
 			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", uid, "err", err)
+		} else if p.Observer != nil {
+			p.Observer.AuditSaved(rec, st)
 		}
 	}
 	if ok {
 		p.clear(st, started)
 	}
+	return ok
 }
 
 // saveFailed stores an audit-failed audit for every series of the study.
@@ -373,7 +396,7 @@ func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
 				fs = rules.Apply(p.Engine.Config, fs)
 			}
 		}
-		err := p.Store.SaveAudit(store.AuditRecord{
+		rec := store.AuditRecord{
 			AuditTime:        at,
 			StudyInstanceUID: st.StudyInstanceUID,
 			SeriesUID:        se.SeriesInstanceUID,
@@ -381,15 +404,32 @@ func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
 			AccessionNumber:  st.AccessionNumber,
 			TestPatient:      p.testPatient(st),
 			Findings:         findingsJSON(fs),
-		})
-		if err != nil {
+		}
+		if err := p.Store.SaveAudit(rec); err != nil {
 			ok = false
 			p.log().Error("saving an audit failed", "study", st.StudyInstanceUID, "series", se.SeriesInstanceUID, "err", err)
+		} else if p.Observer != nil {
+			p.Observer.AuditSaved(rec, st)
 		}
 	}
 	if ok {
 		p.clear(st, started)
 	}
+}
+
+// observe tells the Observer, if any, that a study audit finished.
+func (p *Pipeline) observe(ok bool, started time.Time) {
+	if p.Observer != nil {
+		p.Observer.StudyAudited(ok, p.now().Sub(started))
+	}
+}
+
+// Backlog is how many studies were received and not yet audited: those
+// settling, queued for a worker or being audited.
+func (p *Pipeline) Backlog() int {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return len(p.studies)
 }
 
 // clear takes the study's series off the pending list unless an

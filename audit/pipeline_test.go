@@ -26,6 +26,7 @@ type memStore struct {
 	audits    []store.AuditRecord
 	saved     chan store.AuditRecord
 	failStudy bool
+	patientID string // of the study
 }
 
 func newMemStore(dir, study string) *memStore {
@@ -84,7 +85,7 @@ func (m *memStore) Study(uid string) (store.Study, error) {
 	if uid != m.study {
 		return store.Study{}, store.ErrNotFound
 	}
-	st := store.Study{StudyInstanceUID: uid, AccessionNumber: "HGH0001"}
+	st := store.Study{StudyInstanceUID: uid, AccessionNumber: "HGH0001", PatientID: m.patientID}
 	for s := range m.series {
 		st.Series = append(st.Series, store.Series{SeriesInstanceUID: s, StudyInstanceUID: uid, ScannerLabel: "hgh-mr1"})
 	}

@@ -26,6 +26,18 @@ type auditNotifier interface {
 	Notify(seriesUID, studyUID string, at time.Time)
 }
 
+// studyLooker reads a stored study: the Station Name of a series, for
+// the metrics' scanner label of a peer without a configured one, and the
+// study's identifiers that label must never hold.
+type studyLooker interface {
+	Study(uid string) (store.Study, error)
+}
+
+// instanceObserver is told about each instance stored (metrics.Metrics).
+type instanceObserver interface {
+	InstanceStored(scanner string, bytes int64, took time.Duration, never ...string)
+}
+
 // ingest is the acceptor's StoreHandler: it streams each C-STORE data set
 // into the store, which returns only once the instance is durable, so a
 // success status is never sent for something the node does not have.
@@ -35,29 +47,54 @@ type auditNotifier interface {
 type ingest struct {
 	store     instancePutter
 	peers     *peerTable
-	instances instanceLooker // with audit
-	audit     auditNotifier  // nil: no audit
+	instances instanceLooker   // with audit or metrics
+	audit     auditNotifier    // nil: no audit
+	studies   studyLooker      // with metrics
+	metrics   instanceObserver // nil: no metrics
 }
 
 // HandleStore implements scp.StoreHandler.
 func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
+	start := time.Now()
+	label := h.peers.scanner(req.CallingAETitle)
 	ref, err := h.store.Put(ctx, store.PutRequest{
 		SOPClassUID:       req.SOPClassUID,
 		SOPInstanceUID:    req.SOPInstanceUID,
 		TransferSyntaxUID: req.TransferSyntaxUID,
 		CallingAETitle:    req.CallingAETitle,
-		ScannerLabel:      h.peers.scanner(req.CallingAETitle),
+		ScannerLabel:      label,
 	}, req.Data)
-	if err == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
-		// The time is taken after the commit, so that an audit that
-		// listed the series' files before it cannot take the series
-		// off the pending list (store.ClearPending).
-		at := time.Now()
-		if in, lerr := h.instances.Instance(ref.SOPInstanceUID); lerr == nil {
-			h.audit.Notify(in.SeriesInstanceUID, in.StudyInstanceUID, at)
-		}
+	if err != nil || (h.audit == nil && h.metrics == nil) {
+		return storeStatus(err)
 	}
-	return storeStatus(err)
+	// The time is taken after the commit, so that an audit that listed
+	// the series' files before it cannot take the series off the
+	// pending list (store.ClearPending).
+	at := time.Now()
+	in, lerr := h.instances.Instance(ref.SOPInstanceUID)
+	if lerr == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
+		h.audit.Notify(in.SeriesInstanceUID, in.StudyInstanceUID, at)
+	}
+	if h.metrics != nil {
+		var size int64
+		var never []string
+		if lerr == nil {
+			size = in.Size - in.DataSetOffset
+			never = []string{in.StudyInstanceUID, in.SeriesInstanceUID, in.SOPInstanceUID}
+			if label == "" && h.studies != nil {
+				if st, serr := h.studies.Study(in.StudyInstanceUID); serr == nil {
+					never = append(never, st.PatientID, st.PatientName, st.AccessionNumber)
+					for _, se := range st.Series {
+						if se.SeriesInstanceUID == in.SeriesInstanceUID {
+							label = se.StationName // metrics.Labels sanitises and bounds it
+						}
+					}
+				}
+			}
+		}
+		h.metrics.InstanceStored(label, size, at.Sub(start), never...)
+	}
+	return nil
 }
 
 // storeStatus is the one place where a store error becomes the DIMSE

@@ -188,6 +188,9 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 
 		TestPatientIDs: cfg.Audit.TestPatientIDs,
 	}
+	met := newNodeMetrics(cfg, st.FreeBytes, pipe.Backlog, log.With("component", "metrics"))
+	pipe.Observer = met
+	seedDriftMetrics(met, st, time.Now().In(loc), log.With("component", "metrics"))
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitFailure
@@ -221,7 +224,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
 		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
 		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
-		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe},
+		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met},
+		OnAssociation:          associationMetrics(met),
 		Logger:                 log.With("component", "scp"),
 	}
 	var dicomUp atomic.Bool
@@ -234,7 +238,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	}()
 
 	hs := &http.Server{
-		Handler:           newAPI(st, loc, dicomUp.Load, log.With("component", "http")),
+		Handler:           withMetrics(newAPI(st, loc, dicomUp.Load, log.With("component", "http")), met),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
