@@ -349,9 +349,26 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) bool {
 		}
 	}
 	slices.Sort(order)
+	// The engine reads files and knows only their Station Name; the
+	// store knows the label of the peer that sent each series, which
+	// metrics and reports use (SeriesReport.Scanner).
+	labels := map[string]string{}
+	for _, se := range st.Series {
+		if se.ScannerLabel != "" {
+			labels[se.SeriesInstanceUID] = se.ScannerLabel
+		}
+	}
 	ok := true
 	for _, uid := range order {
 		fs := append(slices.Clone(bySeries[uid]), studyWide...)
+		if l := labels[uid]; l != "" {
+			for i := range fs {
+				fs[i].Scanner = l
+			}
+			if r := reports[uid]; r != nil {
+				r.Scanner = l
+			}
+		}
 		rec := store.AuditRecord{
 			AuditTime:        at,
 			StudyInstanceUID: st.StudyInstanceUID,

@@ -99,7 +99,7 @@ func New(o Options) *Metrics {
 	}, []string{"result"})
 	m.responses = prometheus.NewCounterVec(prometheus.CounterOpts{
 		Name: name("cstore_responses_total"),
-		Help: "C-STORE responses sent, by status class (PS3.7 Annex C).",
+		Help: "C-STORE responses sent, by status class (PS3.7 Annex C), counted as each association ends.",
 	}, []string{"status_class"})
 	m.instances = prometheus.NewCounterVec(prometheus.CounterOpts{
 		Name: name("received_instances_total"),

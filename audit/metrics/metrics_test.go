@@ -10,6 +10,7 @@ import (
 	"net/http/httptest"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -191,7 +192,7 @@ dwiaudit_audits_total{result="ok"} 1
 # HELP dwiaudit_build_info Always 1; the labels say which dwiaudit build runs and with which Go.
 # TYPE dwiaudit_build_info gauge
 dwiaudit_build_info{goversion="go1.26.8",version="v1.2.3"} 1
-# HELP dwiaudit_cstore_responses_total C-STORE responses sent, by status class (PS3.7 Annex C).
+# HELP dwiaudit_cstore_responses_total C-STORE responses sent, by status class (PS3.7 Annex C), counted as each association ends.
 # TYPE dwiaudit_cstore_responses_total counter
 dwiaudit_cstore_responses_total{status_class="failure"} 2
 dwiaudit_cstore_responses_total{status_class="success"} 3
@@ -500,4 +501,59 @@ func TestAFailingFreeSpaceReadLeavesOnlyThatGaugeOut(t *testing.T) {
 	if !strings.Contains(text, `promhttp_metric_handler_errors_total{cause="gathering"} 1`) {
 		t.Errorf("the gathering error is not counted:\n%s", text)
 	}
+}
+
+func TestEventsFromManyGoroutinesWhileScrapedAreAllCounted(t *testing.T) {
+	m := newTestMetrics(func() (uint64, error) { return 1, nil }, func() int { return 0 })
+	const workers, each = 8, 50
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Go(func() {
+			for i := range each {
+				station := fmt.Sprintf("STATION%02d", (w*each+i)%24) // past the fallback cap
+				m.InstanceStored(station, 100, time.Millisecond)
+				audited(m, record(t, station, time.Unix(int64(1e9+i), 0), false,
+					&measures{Protocol: "brain-dwi", TissueADCMedian: num(0.0008)}, finding{Rule: "low-snr", Severity: "warning"}))
+			}
+		})
+	}
+	wg.Go(func() {
+		for range 20 {
+			if _, err := m.Registry().Gather(); err != nil {
+				t.Error(err)
+			}
+		}
+	})
+	wg.Wait()
+	var instances, findings float64
+	for _, v := range gatheredValues(t, m, "dwiaudit_received_instances_total") {
+		instances += v
+	}
+	for _, v := range gatheredValues(t, m, "dwiaudit_findings_total") {
+		findings += v
+	}
+	if instances != workers*each || findings != workers*each {
+		t.Errorf("%v instances and %v findings counted, want %d each", instances, findings, workers*each)
+	}
+	if n := len(gatheredValues(t, m, "dwiaudit_received_instances_total")); n != metrics.MaxFallbackScanners+1 {
+		t.Errorf("%d scanner labels, want %d stations and other", n, metrics.MaxFallbackScanners)
+	}
+}
+
+// gatheredValues lists the counter values of the named family.
+func gatheredValues(t *testing.T, m *metrics.Metrics, name string) []float64 {
+	t.Helper()
+	mfs, err := m.Registry().Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out []float64
+	for _, mf := range mfs {
+		if mf.GetName() == name {
+			for _, s := range mf.Metric {
+				out = append(out, s.GetCounter().GetValue())
+			}
+		}
+	}
+	return out
 }

@@ -23,9 +23,9 @@ import (
 	"dwiaudit/rules"
 )
 
-// metricsWait bounds the wait for the audits to reach /metrics: two
+// deployMetricsWait bounds the wait for the audits to reach /metrics: two
 // small studies settle in 1 s and audit in well under a second each.
-const metricsWait = 30 * time.Second
+const deployMetricsWait = 30 * time.Second
 
 // scrapedSample is one sample line of the Prometheus text format.
 type scrapedSample struct {
@@ -232,7 +232,7 @@ func TestEveryMetricTheDeployFilesUseIsExported(t *testing.T) {
 			phantomSeries = s.UID
 		}
 	}
-	awaitFinding(t, n, phantomSeries, rules.IDPhantomADCBias, metricsWait)
+	awaitFinding(t, n, phantomSeries, rules.IDPhantomADCBias, deployMetricsWait)
 
 	// What the alerts and panels filter and group by must be there too.
 	want := []struct {
@@ -257,7 +257,7 @@ func TestEveryMetricTheDeployFilesUseIsExported(t *testing.T) {
 	// them is there.
 	var body string
 	var s scrape
-	deadline := time.Now().Add(metricsWait)
+	deadline := time.Now().Add(deployMetricsWait)
 	for {
 		body, s = fetchMetrics(t, n)
 		missing := 0

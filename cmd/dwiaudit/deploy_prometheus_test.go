@@ -26,11 +26,11 @@ import (
 
 // Limits of the Prometheus harness.
 const (
-	// promWait bounds each wait on Prometheus: it starts in about a
+	// deployPromWait bounds each wait on Prometheus: it starts in about a
 	// second and scrapes and evaluates every second here.
-	promWait = 30 * time.Second
-	// promStopTimeout bounds the wait for Prometheus to exit on SIGTERM.
-	promStopTimeout = 15 * time.Second
+	deployPromWait = 30 * time.Second
+	// deployPromStopTimeout bounds the wait for Prometheus to exit on SIGTERM.
+	deployPromStopTimeout = 15 * time.Second
 )
 
 // needPrometheus returns the prometheus binary's path. Without it the
@@ -107,8 +107,8 @@ func promConfig(t *testing.T, dir, target string) string {
 	return path
 }
 
-// startPrometheus runs prometheus on config and returns its base URL.
-func startPrometheus(t *testing.T, bin, config string) string {
+// startShippedPrometheus runs prometheus on config and returns its base URL.
+func startShippedPrometheus(t *testing.T, bin, config string) string {
 	t.Helper()
 	addr := freeLoopbackAddr(t)
 	stderr := &syncBuffer{}
@@ -127,7 +127,7 @@ func startPrometheus(t *testing.T, bin, config string) string {
 		cmd.Process.Signal(syscall.SIGTERM)
 		select {
 		case <-exited:
-		case <-time.After(promStopTimeout):
+		case <-time.After(deployPromStopTimeout):
 			cmd.Process.Kill()
 			<-exited
 		}
@@ -136,7 +136,7 @@ func startPrometheus(t *testing.T, bin, config string) string {
 		}
 	})
 	base := "http://" + addr
-	deadline := time.Now().Add(promWait)
+	deadline := time.Now().Add(deployPromWait)
 	for {
 		select {
 		case err := <-exited:
@@ -150,14 +150,14 @@ func startPrometheus(t *testing.T, bin, config string) string {
 			}
 		}
 		if time.Now().After(deadline) {
-			t.Fatalf("prometheus not ready in %v:\n%s", promWait, stderr.String())
+			t.Fatalf("prometheus not ready in %v:\n%s", deployPromWait, stderr.String())
 		}
 		time.Sleep(100 * time.Millisecond)
 	}
 }
 
-// promAPI GETs a Prometheus HTTP API path and decodes its data field.
-func promAPI(t *testing.T, base, path string, data any) {
+// shippedPromAPI GETs a Prometheus HTTP API path and decodes its data field.
+func shippedPromAPI(t *testing.T, base, path string, data any) {
 	t.Helper()
 	res, err := http.Get(base + path)
 	if err != nil {
@@ -180,16 +180,16 @@ func promAPI(t *testing.T, base, path string, data any) {
 	}
 }
 
-// promQuery runs an instant query and returns the label sets of the
+// shippedPromQuery runs an instant query and returns the label sets of the
 // result.
-func promQuery(t *testing.T, base, q string) []map[string]string {
+func shippedPromQuery(t *testing.T, base, q string) []map[string]string {
 	t.Helper()
 	var data struct {
 		Result []struct {
 			Metric map[string]string `json:"metric"`
 		} `json:"result"`
 	}
-	promAPI(t, base, "/api/v1/query?query="+url.QueryEscape(q), &data)
+	shippedPromAPI(t, base, "/api/v1/query?query="+url.QueryEscape(q), &data)
 	var out []map[string]string
 	for _, r := range data.Result {
 		out = append(out, r.Metric)
@@ -208,17 +208,17 @@ func promAlerts(t *testing.T, base string) []promAlert {
 	var data struct {
 		Alerts []promAlert `json:"alerts"`
 	}
-	promAPI(t, base, "/api/v1/alerts", &data)
+	shippedPromAPI(t, base, "/api/v1/alerts", &data)
 	return data.Alerts
 }
 
-// waitFor polls cond until it holds or promWait passes.
+// waitFor polls cond until it holds or deployPromWait passes.
 func waitFor(t *testing.T, what string, cond func() bool) {
 	t.Helper()
-	deadline := time.Now().Add(promWait)
+	deadline := time.Now().Add(deployPromWait)
 	for !cond() {
 		if time.Now().After(deadline) {
-			t.Fatalf("%s: not within %v", what, promWait)
+			t.Fatalf("%s: not within %v", what, deployPromWait)
 		}
 		time.Sleep(200 * time.Millisecond)
 	}
@@ -236,13 +236,13 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 	}
 	n := startNode(t, t.TempDir(), "--config", cfg)
 	target := strings.TrimPrefix(n.httpURL, "http://")
-	base := startPrometheus(t, bin, promConfig(t, t.TempDir(), target))
+	base := startShippedPrometheus(t, bin, promConfig(t, t.TempDir(), target))
 
 	t.Run("the shipped scrape job reaches the node's /metrics", func(t *testing.T) {
 		waitFor(t, "up == 1 for the node", func() bool {
-			return len(promQuery(t, base, fmt.Sprintf(`up{job="dwiaudit", instance=%q} == 1`, target))) == 1
+			return len(shippedPromQuery(t, base, fmt.Sprintf(`up{job="dwiaudit", instance=%q} == 1`, target))) == 1
 		})
-		got := promQuery(t, base, `dwiaudit_build_info`)
+		got := shippedPromQuery(t, base, `dwiaudit_build_info`)
 		if len(got) != 1 || got[0]["site"] != "harbourview-general" || got[0]["job"] != "dwiaudit" {
 			t.Errorf("dwiaudit_build_info in Prometheus: %v, want one series with job dwiaudit and the site label", got)
 		}
@@ -260,7 +260,7 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 	}
 	refused("2.25.302")
 	waitFor(t, "the first failure scraped", func() bool {
-		return len(promQuery(t, base, `dwiaudit_cstore_responses_total{status_class="failure"} >= 1`)) == 1
+		return len(shippedPromQuery(t, base, `dwiaudit_cstore_responses_total{status_class="failure"} >= 1`)) == 1
 	})
 	refused("2.25.303")
 
@@ -298,7 +298,7 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 					Rules []rule `json:"rules"`
 				} `json:"groups"`
 			}
-			promAPI(t, base, "/api/v1/rules?type=alert", &data)
+			shippedPromAPI(t, base, "/api/v1/rules?type=alert", &data)
 			rules = rules[:0]
 			done := true
 			for _, g := range data.Groups {
