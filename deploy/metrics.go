@@ -22,9 +22,10 @@ const (
 	DashboardFile = "grafana-dashboard.json"
 )
 
-// metricName matches the node's metric names in PromQL: the dwiaudit_
-// prefix (a job label value "dwiaudit" has no underscore after it).
-var metricName = regexp.MustCompile(`\bdwiaudit_[a-zA-Z0-9_]+`)
+// metricNamePattern matches the node's metric names in PromQL: the
+// dwiaudit_ prefix (a job label value "dwiaudit" has no underscore after
+// it).
+const metricNamePattern = `\bdwiaudit_[a-zA-Z0-9_]+`
 
 // MetricUse is one metric named in a query of a deploy file.
 type MetricUse struct {
@@ -116,6 +117,7 @@ type dashboardPanel struct {
 // MetricUses lists every node metric the alert rules and the dashboard
 // name, ordered by name, file and place.
 func MetricUses() ([]MetricUse, error) {
+	metricName := regexp.MustCompile(metricNamePattern)
 	rules, err := ReadAlertRules()
 	if err != nil {
 		return nil, err
