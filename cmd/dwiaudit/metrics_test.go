@@ -120,8 +120,9 @@ func freePort(t *testing.T) string {
 }
 
 // startPrometheus runs a real Prometheus server scraping target every
-// second and returns its address. It is killed when the test ends.
-func startPrometheus(t *testing.T, bin, target string) string {
+// second and returns its address and a channel closed if it exits. It
+// is killed when the test ends.
+func startPrometheus(t *testing.T, bin, target string) (string, <-chan struct{}) {
 	t.Helper()
 	dir := t.TempDir()
 	cfg := filepath.Join(dir, "prometheus.yml")
@@ -155,7 +156,7 @@ scrape_configs:
 			t.Logf("prometheus output:\n%s", stderr.String())
 		}
 	})
-	return addr
+	return addr, done
 }
 
 // promResult is one series of an instant query answer (Prometheus HTTP
@@ -200,7 +201,7 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	prom := scptest.NeedTool(t, "prometheus", "prometheus")
 	src, _ := cleanBrainStudy(t)
 	n := startNode(t, t.TempDir(), "--config", writeNodeConfig(t, "HGH_MR1", "hgh-mr1-1.5t"), "--settle", "1s")
-	promAddr := startPrometheus(t, prom, strings.TrimPrefix(n.httpURL, "http://"))
+	promAddr, promExited := startPrometheus(t, prom, strings.TrimPrefix(n.httpURL, "http://"))
 	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "HGH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
 		t.Fatalf("send exited %d", r.code)
 	}
@@ -211,6 +212,11 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 		got = promQuery(t, promAddr, parenchymaGauge)
 		if len(got) > 0 || time.Now().After(deadline) {
 			break
+		}
+		select {
+		case <-promExited:
+			t.Fatal("prometheus exited (its output follows)")
+		default:
 		}
 		time.Sleep(250 * time.Millisecond)
 	}
