@@ -160,34 +160,52 @@ func (s *Store) ClearPending(seriesUID string, auditedAt time.Time) error {
 // audit (the one Findings lists) if it is the newest; older audits stay
 // in the series' history (SeriesAudits).
 func (s *Store) SaveAudit(rec AuditRecord) error {
-	if rec.SeriesUID == "" {
-		return fmt.Errorf("store: SaveAudit: empty series UID")
+	return s.SaveAudits([]AuditRecord{rec})
+}
+
+// SaveAudits stores several audits in one transaction, each as
+// SaveAudit would (for imports and for the fixtures of benchmarks): all
+// or none are saved.
+func (s *Store) SaveAudits(recs []AuditRecord) error {
+	for _, rec := range recs {
+		if rec.SeriesUID == "" {
+			return fmt.Errorf("store: SaveAudit: empty series UID")
+		}
 	}
+	return s.auditUpdate(func(tx *bolt.Tx) error {
+		for _, rec := range recs {
+			if err := saveAudit(tx, rec); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+func saveAudit(tx *bolt.Tx, rec AuditRecord) error {
 	rec.AuditTime = rec.AuditTime.UTC()
 	if len(rec.Findings) == 0 {
 		rec.Findings = json.RawMessage("[]")
 	}
-	return s.auditUpdate(func(tx *bolt.Tx) error {
-		key := auditKey(rec.SeriesUID, rec.AuditTime)
-		if err := putJSON(tx.Bucket(bucketAudits), key, rec); err != nil {
+	key := auditKey(rec.SeriesUID, rec.AuditTime)
+	if err := putJSON(tx.Bucket(bucketAudits), key, rec); err != nil {
+		return err
+	}
+	cur := tx.Bucket(bucketAuditCurrent)
+	times := tx.Bucket(bucketAuditTimes)
+	if prev := cur.Get([]byte(rec.SeriesUID)); prev != nil {
+		prevAt := prev[len(prev)-8:]
+		if bytes.Compare(prevAt, key[len(key)-8:]) > 0 {
+			return nil // a newer audit stands
+		}
+		if err := times.Delete(append(bytes.Clone(prevAt), rec.SeriesUID...)); err != nil {
 			return err
 		}
-		cur := tx.Bucket(bucketAuditCurrent)
-		times := tx.Bucket(bucketAuditTimes)
-		if prev := cur.Get([]byte(rec.SeriesUID)); prev != nil {
-			prevAt := prev[len(prev)-8:]
-			if bytes.Compare(prevAt, key[len(key)-8:]) > 0 {
-				return nil // a newer audit stands
-			}
-			if err := times.Delete(append(bytes.Clone(prevAt), rec.SeriesUID...)); err != nil {
-				return err
-			}
-		}
-		if err := cur.Put([]byte(rec.SeriesUID), key); err != nil {
-			return err
-		}
-		return times.Put(auditTimeKey(rec.AuditTime, rec.SeriesUID), key)
-	})
+	}
+	if err := cur.Put([]byte(rec.SeriesUID), key); err != nil {
+		return err
+	}
+	return times.Put(auditTimeKey(rec.AuditTime, rec.SeriesUID), key)
 }
 
 // Findings lists the current audit of every series audited on day

@@ -54,4 +54,8 @@ var (
 	// ErrMissingFile means the instance is indexed but its file is gone
 	// for another reason (removed by hand, lost with a disk).
 	ErrMissingFile = errors.New("store: instance file missing")
+
+	// ErrDailyListExists means a day already has a frozen daily list;
+	// it is kept, never replaced.
+	ErrDailyListExists = errors.New("store: daily list already kept")
 )
