@@ -31,6 +31,7 @@ type command struct {
 // can run subcommands in-process.
 type cliEnv struct {
 	stdout, stderr io.Writer
+	stdin          io.Reader // os.Stdin when nil
 	// isTerminal reports whether stderr is an interactive terminal (for
 	// progress bars).
 	isTerminal bool
@@ -44,6 +45,7 @@ func commands() []command {
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
+		{"hash-password", "print the bcrypt hash of a password read from standard input, for http_auth.users", runHashPassword},
 	}
 }
 

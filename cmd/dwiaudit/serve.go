@@ -179,6 +179,11 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
+	pages, err := newWebPages(cfg, st, loc, log.With("component", "web"))
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
 	pipe := &audit.Pipeline{
 		Engine:  eng,
 		Store:   st,
@@ -234,7 +239,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	}()
 
 	hs := &http.Server{
-		Handler:           newAPI(st, loc, dicomUp.Load, log.With("component", "http")),
+		Handler:           pages.handler(newAPI(st, loc, dicomUp.Load, log.With("component", "http"))),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
