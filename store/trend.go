@@ -28,8 +28,11 @@ type TrendAudit struct {
 
 // ScannerAudits lists the current audits of the series of scanner label
 // whose audit time lies in [from, to), oldest audit first, with their
-// study's date and time. Audits of test patients are included, marked
-// by TestPatient: a trend leaves them out, a list may show them.
+// study's date and time. A series belongs to the label it was received
+// under (Series.ScannerLabel, the peer's); the audit's own Scanner
+// counts only for a series the index no longer has, or one received
+// without a label. Audits of test patients are included, marked by
+// TestPatient: a trend leaves them out, a list may show them.
 func (s *Store) ScannerAudits(label string, from, to time.Time) ([]TrendAudit, error) {
 	if !to.After(from) {
 		return nil, nil
@@ -48,7 +51,18 @@ func (s *Store) ScannerAudits(label string, from, to time.Time) ([]TrendAudit, e
 			if err != nil {
 				return err
 			}
-			if rec == nil || rec.Scanner != label {
+			if rec == nil {
+				continue
+			}
+			scanner := rec.Scanner
+			se, err := getSeries(tx, rec.SeriesUID)
+			if err != nil {
+				return err
+			}
+			if se != nil && se.ScannerLabel != "" {
+				scanner = se.ScannerLabel
+			}
+			if scanner != label {
 				continue
 			}
 			st, seen := studies[rec.StudyInstanceUID]

@@ -10,6 +10,7 @@ import (
 func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(t *testing.T) {
 	s, opts := newTestStore(t)
 	mustPut(t, s, testInstance{SOP: "2.25.1001.1.1", Study: "2.25.1001", Payload: 16})
+	mustPut(t, s, testInstance{SOP: "2.25.6001.1.1", Study: "2.25.6001", Payload: 16})
 	t0 := time.Date(2025, 3, 4, 10, 0, 0, 0, time.UTC)
 	audits := []AuditRecord{
 		{AuditTime: t0, StudyInstanceUID: "2.25.1001", SeriesUID: "2.25.1001.1", Scanner: "harbourview-mr1", Measures: json.RawMessage(`{"tissue_adc_median":0.00079}`)},
@@ -19,6 +20,9 @@ func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(
 		// Re-audited later: only its newest audit is current.
 		{AuditTime: t0.Add(-time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "harbourview-mr1"},
 		{AuditTime: t0.Add(3 * time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "harbourview-mr1"},
+		// The audit names the Station Name; the series was received
+		// under the peer's label, which counts.
+		{AuditTime: t0.Add(4 * time.Hour), StudyInstanceUID: "2.25.6001", SeriesUID: "2.25.6001.1", Scanner: "HV-MR1"},
 	}
 	for _, a := range audits {
 		if err := s.SaveAudit(a); err != nil {
@@ -35,9 +39,12 @@ func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(
 	for _, a := range got {
 		series = append(series, a.SeriesUID)
 	}
-	want := []string{"2.25.1001.1", "2.25.3001.1", "2.25.5001.1"}
+	want := []string{"2.25.1001.1", "2.25.3001.1", "2.25.5001.1", "2.25.6001.1"}
 	if !slices.Equal(series, want) {
-		t.Fatalf("series %v, want %v (other scanner, outside the range, and replaced audits left out)", series, want)
+		t.Fatalf("series %v, want %v (other scanner, outside the range, and replaced audits left out; a series received under the label in)", series, want)
+	}
+	if other, err := s.ScannerAudits("HV-MR1", t0.Add(-2*time.Hour), t0.Add(24*time.Hour)); err != nil || len(other) != 0 {
+		t.Errorf("the Station Name of a labelled series lists %v, %v; want nothing", other, err)
 	}
 	if got[0].StudyDate != "20250304" || string(got[0].Measures) != `{"tissue_adc_median":0.00079}` {
 		t.Errorf("first audit %+v: want the stored study's date 20250304 and its measures", got[0])
