@@ -176,7 +176,7 @@ func (b *Builder) Daily(day string) (*DailyList, error) {
 				AuditTime:         rec.AuditTime.In(loc).Truncate(time.Second),
 				AccessionNumber:   rec.AccessionNumber,
 				Test:              rec.TestPatient,
-				Scanner:           firstNonEmpty(f.Scanner, rec.Scanner),
+				Scanner:           firstNonEmpty(rec.Scanner, f.Scanner),
 				SeriesNumber:      f.SeriesNumber,
 				SeriesDescription: f.SeriesDescription,
 				Rule:              f.Rule,

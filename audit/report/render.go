@@ -158,8 +158,8 @@ func (l *DailyList) WriteText(w io.Writer) error {
 	if l.FrozenAt != nil {
 		state = "kept since " + l.FrozenAt.Format(time.RFC3339)
 	}
-	fmt.Fprintf(ew, "%d studies audited, %d with findings, %d findings; patient IDs %s; %s.\n",
-		l.StudiesAudited, l.StudiesWithFindings, len(l.Rows), l.PatientID, state)
+	fmt.Fprintf(ew, "%s audited, %d with findings, %s; patient IDs %s; %s.\n",
+		plural(l.StudiesAudited, "study", "studies"), l.StudiesWithFindings, plural(len(l.Rows), "finding", "findings"), l.PatientID, state)
 	if len(l.Rows) == 0 {
 		fmt.Fprintln(ew, "No findings.")
 		return ew.err
@@ -242,9 +242,9 @@ func (c *Compliance) WriteCSV(w io.Writer) error {
 // WriteText writes a terminal table of the groups.
 func (c *Compliance) WriteText(w io.Writer) error {
 	ew := &errWriter{w: w}
-	fmt.Fprintf(ew, "Protocol compliance %s to %s (%d days, %s), against %s to %s\n", c.From, c.To, c.Days, c.TimeZone, c.PreviousFrom, c.PreviousTo)
+	fmt.Fprintf(ew, "Protocol compliance %s to %s (%s, %s), against %s to %s\n", c.From, c.To, plural(c.Days, "day", "days"), c.TimeZone, c.PreviousFrom, c.PreviousTo)
 	fmt.Fprintf(ew, "%s\n", c.Caution)
-	fmt.Fprintf(ew, "Compliant: a study without a finding of severity warning or error. %d test studies left out.\n\n", c.TestStudiesExcluded)
+	fmt.Fprintf(ew, "Compliant: a study without a finding of severity warning or error. %s left out.\n\n", plural(c.TestStudiesExcluded, "test study", "test studies"))
 	tw := tabwriter.NewWriter(ew, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "PROTOCOL\tSCANNER\tSTUDIES\tCOMPLIANT\tBEFORE\tCHANGE\tMOST FREQUENT RULES")
 	for _, g := range append([]ComplianceGroup{c.Overall}, c.Groups...) {
@@ -288,6 +288,13 @@ func topRules(rs []RuleCount) string {
 		parts[i] = fmt.Sprintf("%s (%d)", r.Rule, r.Studies)
 	}
 	return strings.Join(parts, ", ")
+}
+
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return strconv.Itoa(n) + " " + many
 }
 
 func dash(s string) string {

@@ -91,6 +91,7 @@ type Config struct {
 	Log       LogConfig       `yaml:"log"`
 	Audit     AuditConfig     `yaml:"audit"`
 	HTTPAuth  HTTPAuthConfig  `yaml:"http_auth"`
+	Reports   ReportsConfig   `yaml:"reports"`
 }
 
 // NodeConfig is who and where the node is.
@@ -161,8 +162,9 @@ func DefaultConfig() Config {
 			InstanceFiles: Duration(defaultRetention),
 			PruneInterval: Duration(defaultPruneInterval),
 		},
-		Log:   LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
-		Audit: DefaultAuditConfig(),
+		Log:     LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
+		Audit:   DefaultAuditConfig(),
+		Reports: defaultReportsConfig(),
 	}
 }
 
@@ -245,6 +247,7 @@ func (c Config) Validate() error {
 	p.atLeast("retention.prune_interval", c.Retention.PruneInterval, minPruneInterval)
 	c.Audit.validate(&p)
 	c.HTTPAuth.validate(&p, n.HTTPListen)
+	c.Reports.validate(&p)
 	return p.err("")
 }
 

@@ -46,6 +46,7 @@ func commands() []command {
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
 		{"hash-password", "print the bcrypt hash of a password read from standard input, for http_auth.users", runHashPassword},
+		{"report", "the daily discrepancy list and the protocol compliance report", runReport},
 	}
 }
 

@@ -238,8 +238,9 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		dicomDone <- err
 	}()
 
+	archive := newReportArchive(cfg.Reports, st, loc, time.Now)
 	hs := &http.Server{
-		Handler:           pages.handler(newAPI(st, loc, dicomUp.Load, log.With("component", "http"))),
+		Handler:           pages.handler(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http")), archive, log.With("component", "http"))),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
@@ -258,6 +259,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
 	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
+	daily := &dailyScheduler{archive: archive, lists: st, loc: loc, now: time.Now, after: time.After, log: log.With("component", "reports")}
+	pruning.Go(func() { daily.run(pruneCtx) })
 
 	select {
 	case <-ctx.Done():

@@ -201,6 +201,9 @@ func newWebPages(cfg Config, st *store.Store, loc *time.Location, log *slog.Logg
 		Logger:           log,
 		Scanners:         scanners,
 		PhantomTolerance: func(profile string) float64 { return tolerances[profile] },
+		// The same lists as /api/v1/reports/daily: frozen days read as
+		// kept, patient IDs as reports.patient_id says.
+		Daily: newReportArchive(cfg.Reports, st, loc, time.Now),
 	})
 	if err != nil {
 		return nil, err
