@@ -40,7 +40,9 @@ type api struct {
 	log      *slog.Logger
 }
 
-func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger) http.Handler {
+// newAPI builds the API's handler; each of more registers further
+// routes on its mux (previews.routes).
+func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger, more ...func(*http.ServeMux)) http.Handler {
 	a := &api{store: st, loc: loc, dicomUp: dicomUp, log: log}
 	a.findings, _ = st.(findingsLister)
 	mux := http.NewServeMux()
@@ -50,6 +52,9 @@ func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.L
 	mux.HandleFunc("/readyz", getOnly(a.readyz))
 	mux.HandleFunc("/api/v1/studies", getOnly(a.studies))
 	mux.HandleFunc("/api/v1/findings", getOnly(a.findingsOfDay))
+	for _, m := range more {
+		m(mux)
+	}
 	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusNotFound, fmt.Sprintf("no such endpoint %q", r.URL.Path))
 	})

@@ -184,6 +184,11 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
+	prev, err := newPreviews(st, cfg.Audit, log.With("component", "preview"))
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitFailure
+	}
 	pipe := &audit.Pipeline{
 		Engine:  eng,
 		Store:   st,
@@ -240,7 +245,7 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 
 	archive := newReportArchive(cfg.Reports, st, loc, time.Now)
 	hs := &http.Server{
-		Handler:           pages.handler(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http")), archive, log.With("component", "http"))),
+		Handler:           pages.handler(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes), archive, log.With("component", "http"))),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,

@@ -1,0 +1,265 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"image"
+	"image/png"
+	"io"
+	"net/http"
+	"slices"
+	"strconv"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"testing"
+
+	"dwiaudit/audit"
+	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/preview"
+	"dwiaudit/rules"
+)
+
+func TestStudyCacheComputesEachStudyOnce(t *testing.T) {
+	var computed sync.Map // study -> *atomic.Int32
+	count := func(study string) int {
+		n, _ := computed.LoadOrStore(study, new(atomic.Int32))
+		return int(n.(*atomic.Int32).Load())
+	}
+	release := make(chan struct{})
+	compute := func(study string, gate chan struct{}) func(context.Context) (*audit.Report, error) {
+		return func(context.Context) (*audit.Report, error) {
+			n, _ := computed.LoadOrStore(study, new(atomic.Int32))
+			n.(*atomic.Int32).Add(1)
+			if gate != nil {
+				<-gate
+			}
+			return &audit.Report{Files: len(study)}, nil
+		}
+	}
+
+	t.Run("eight concurrent requests for one study compute it once and share the result", func(t *testing.T) {
+		c := newStudyCache(2)
+		var wg sync.WaitGroup
+		reps := make([]*audit.Report, 8)
+		for i := range reps {
+			wg.Go(func() {
+				rep, err := c.get(t.Context(), "A", "v1", compute("A", release))
+				if err != nil {
+					t.Error(err)
+				}
+				reps[i] = rep
+			})
+		}
+		close(release)
+		wg.Wait()
+		if n := count("A"); n != 1 {
+			t.Errorf("study computed %d times, want once", n)
+		}
+		for i, r := range reps {
+			if r == nil || r != reps[0] {
+				t.Errorf("request %d got report %p, want the shared %p", i, r, reps[0])
+			}
+		}
+	})
+
+	t.Run("the least recently used study goes when a third arrives", func(t *testing.T) {
+		c := newStudyCache(2)
+		ctx := t.Context()
+		for _, s := range []string{"B", "C", "B", "D", "B", "C"} {
+			if _, err := c.get(ctx, s, "v1", compute(s, nil)); err != nil {
+				t.Fatal(err)
+			}
+		}
+		// B, C cached; B used; D evicts C; B used; C computed again.
+		if got := []int{count("B"), count("C"), count("D")}; !slices.Equal(got, []int{1, 2, 1}) {
+			t.Errorf("computations of B, C, D: %v, want [1 2 1]", got)
+		}
+	})
+
+	t.Run("a study that received instances since is computed again", func(t *testing.T) {
+		c := newStudyCache(2)
+		for _, v := range []string{"v1", "v1", "v2"} {
+			if _, err := c.get(t.Context(), "E", v, compute("E", nil)); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if n := count("E"); n != 2 {
+			t.Errorf("computed %d times, want 2 (v1 once, v2 once)", n)
+		}
+	})
+
+	t.Run("a failed computation is not kept", func(t *testing.T) {
+		c := newStudyCache(2)
+		calls := 0
+		fail := func(context.Context) (*audit.Report, error) { calls++; return nil, errors.New("disk gone") }
+		for range 2 {
+			if _, err := c.get(t.Context(), "F", "v1", fail); err == nil || err.Error() != "disk gone" {
+				t.Errorf("get = %v, want the computation's error", err)
+			}
+		}
+		if calls != 2 {
+			t.Errorf("computed %d times, want 2 (the failure was not cached)", calls)
+		}
+	})
+}
+
+// getPreview fetches a preview; the body is the PNG on 200, else the
+// JSON error.
+func getPreview(t *testing.T, url string) (*http.Response, image.Image, errorBody) {
+	t.Helper()
+	res, err := http.Get(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer res.Body.Close()
+	var eb errorBody
+	if res.StatusCode != http.StatusOK {
+		if err := json.NewDecoder(res.Body).Decode(&eb); err != nil {
+			t.Fatalf("GET %s: %d with a body that is not JSON: %v", url, res.StatusCode, err)
+		}
+		return res, nil, eb
+	}
+	img, err := png.Decode(res.Body)
+	if err != nil {
+		t.Fatalf("GET %s: 200 but not a PNG: %v", url, err)
+	}
+	io.Copy(io.Discard, res.Body)
+	return res, img, eb
+}
+
+// outlined counts the pixels in the preview's outline colour.
+func outlined(img image.Image) int {
+	n := 0
+	b := img.Bounds()
+	want := preview.OutlineColor
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			r, g, bl, _ := img.At(x, y).RGBA()
+			if uint8(r>>8) == want.R && uint8(g>>8) == want.G && uint8(bl>>8) == want.B {
+				n++
+			}
+		}
+	}
+	return n
+}
+
+func TestPreviewEndpointOfANodeThatAuditedAPhantom(t *testing.T) {
+	src := t.TempDir()
+	hot, err := phantom.Write(src+"/hot", phantom.Options{Case: phantom.CaseB0ArtifactAliasing, Matrix: 64, Slices: 12, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	noB0, err := phantom.Write(src+"/nob0", phantom.Options{Case: phantom.CaseNoB0, Matrix: 32, Slices: 4, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := startNode(t, t.TempDir(), "--settle", "1s")
+	if r := runCLI(t, "send", "--to", n.dicomAddr, "--called-ae", testAE, "--quiet", src); r.code != exitOK {
+		t.Fatalf("send exited %d", r.code)
+	}
+	var dwiUID string
+	for _, s := range hot.Series {
+		if s.Number == 2 { // the DWI series (audit/phantom: series numbers by role)
+			dwiUID = s.UID
+		}
+	}
+	a := awaitFinding(t, n, dwiUID, rules.HotspotID, findingsWait)
+	var fs []rules.Finding
+	if err := json.Unmarshal(a.Findings, &fs); err != nil {
+		t.Fatal(err)
+	}
+	var region *rules.Region
+	for _, f := range fs {
+		if f.Rule == rules.HotspotID {
+			region = f.Region
+		}
+	}
+	if region == nil || len(region.Slices) == 0 {
+		t.Fatalf("the stored %s finding has no region: %+v", rules.HotspotID, fs)
+	}
+	base := n.httpURL + "/api/v1/series/" + dwiUID + "/preview.png"
+
+	t.Run("without a slice the first slice of the finding's region is drawn, outlined", func(t *testing.T) {
+		res, img, eb := getPreview(t, base)
+		if res.StatusCode != http.StatusOK {
+			t.Fatalf("GET: %d %+v, want 200", res.StatusCode, eb)
+		}
+		if ct := res.Header.Get("Content-Type"); ct != "image/png" {
+			t.Errorf("Content-Type %q, want image/png", ct)
+		}
+		if cc := res.Header.Get("Cache-Control"); cc != "private, max-age=60" {
+			t.Errorf("Cache-Control %q, want private, max-age=60", cc)
+		}
+		if got := res.Header.Get("X-Preview-Slice"); got != strconv.Itoa(region.Slices[0]) {
+			t.Errorf("slice drawn %s, want the region's first %d", got, region.Slices[0])
+		}
+		// Four 64-voxel panels at 4 pixels per voxel side by side.
+		if w := img.Bounds().Dx(); w < 4*64*4 {
+			t.Errorf("picture %d pixels wide, want at least four 256-pixel panels", w)
+		}
+		// At least the four outlines' inner rings (one per panel).
+		box := region.BoxPixels
+		perimeter := 2 * ((box[2]-box[0]+1)*4 + (box[3]-box[1]+1)*4)
+		if got := outlined(img); got < 4*perimeter {
+			t.Errorf("%d outline pixels, want at least %d (the region's box on four panels)", got, 4*perimeter)
+		}
+	})
+
+	outside := -1
+	for z := range 12 {
+		if !slices.Contains(region.Slices, z) {
+			outside = z
+			break
+		}
+	}
+	t.Run("a slice outside the region has no outline", func(t *testing.T) {
+		res, img, eb := getPreview(t, base+"?slice="+strconv.Itoa(outside))
+		if res.StatusCode != http.StatusOK {
+			t.Fatalf("GET slice %d: %d %+v", outside, res.StatusCode, eb)
+		}
+		if got := outlined(img); got != 0 {
+			t.Errorf("slice %d (region on %v): %d outline pixels, want 0", outside, region.Slices, got)
+		}
+	})
+
+	var noB0UID string
+	for _, s := range noB0.Series {
+		if s.Number == 2 { // the DWI series, without its b0
+			noB0UID = s.UID
+		}
+	}
+	for _, tc := range []struct {
+		name, url string
+		status    int
+		says      string
+	}{
+		{"an unknown series is 404", n.httpURL + "/api/v1/series/1.2.826.0.1.3680043.10.999.1/preview.png", http.StatusNotFound, "no series"},
+		{"a slice past the last is 400 with the valid range", base + "?slice=12", http.StatusBadRequest, "0..11"},
+		{"a slice that is not a number is 400", base + "?slice=middle", http.StatusBadRequest, "not a slice index"},
+		{"a negative slice is 400", base + "?slice=-1", http.StatusBadRequest, "not a slice index"},
+		{"a series without b0 is 422 with the reason", n.httpURL + "/api/v1/series/" + noB0UID + "/preview.png", http.StatusUnprocessableEntity, "could not be computed"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			res, _, eb := getPreview(t, tc.url)
+			if res.StatusCode != tc.status || eb.Status != tc.status || !strings.Contains(eb.Error, tc.says) {
+				t.Errorf("GET %s: %d %+v, want %d saying %q", tc.url, res.StatusCode, eb, tc.status, tc.says)
+			}
+			if ct := res.Header.Get("Content-Type"); !strings.HasPrefix(ct, "application/json") {
+				t.Errorf("error Content-Type %q, want JSON", ct)
+			}
+		})
+	}
+
+	t.Run("a POST is refused with 405", func(t *testing.T) {
+		res, err := http.Post(base, "text/plain", strings.NewReader(""))
+		if err != nil {
+			t.Fatal(err)
+		}
+		res.Body.Close()
+		if res.StatusCode != http.StatusMethodNotAllowed {
+			t.Errorf("POST: %d, want 405", res.StatusCode)
+		}
+	})
+}
