@@ -3,6 +3,7 @@ module dwiaudit
 go 1.26.8
 
 require (
+	github.com/chromedp/chromedp v0.23.0
 	github.com/grailbio/go-dicom v0.0.0-20211105193521-b0e216a1c5cd
 	github.com/schollz/progressbar/v3 v3.19.1
 	github.com/suyashkumar/dicom v1.1.0
@@ -14,6 +15,8 @@ require (
 )
 
 require (
+	github.com/chromedp/cdproto v0.159.0 // indirect
+	github.com/go-json-experiment/json v0.0.0-20260213210345-44df1a37e875 // indirect
 	github.com/mitchellh/colorstring v0.0.0-20190213212951-d06e56a500db // indirect
 	github.com/rivo/uniseg v0.4.7 // indirect
 	golang.org/x/exp v0.0.0-20240525044651-4c93da0ed11d // indirect
