@@ -253,7 +253,7 @@ func timeTicks(t0, t1 time.Time, loc *time.Location) []timeTick {
 		start = time.Date(a.Year(), a.Month(), a.Day(), a.Hour()-a.Hour()%h, 0, 0, 0, loc)
 	}
 	var out []timeTick
-	prevDay := ""
+	prevDay, prevYear := "", 0
 	for i := 0; i < 1000; i++ {
 		var t time.Time
 		if step >= day {
@@ -268,6 +268,11 @@ func timeTicks(t0, t1 time.Time, loc *time.Location) []timeTick {
 			continue
 		}
 		label := t.Format("2 Jan")
+		if t.Year() != prevYear && step < 91*day {
+			// The year on the first tick and where it changes.
+			label = t.Format("2 Jan 2006")
+			prevYear = t.Year()
+		}
 		if step >= 91*day {
 			label = t.Format("Jan 2006")
 		} else if step < day {

@@ -143,9 +143,13 @@ func (h *Handler) scanner(w http.ResponseWriter, r *http.Request) {
 			p.Points = append(p.Points, plotPoint{T: at, V: *val * 1e3, Label: fmt.Sprintf("%s: %.3f ×10⁻³ mm²/s", label, *val*1e3), Href: row.Link, Out: out})
 			any = true
 		}
-		add(&tissue, m.TissueADCMedian, false)
-		add(&csf, m.CSFADC, false)
-		if m.PhantomExpectedADC != nil {
+		if m.PhantomExpectedADC == nil {
+			// A phantom has no parenchyma or CSF: its mask medians are
+			// water, and would hide a brain drift in the same plot.
+			add(&tissue, m.TissueADCMedian, false)
+			add(&csf, m.CSFADC, false)
+		} else {
+			row.TissueADC, row.CSFADC = "—", "—"
 			tol := h.tolerance(m.Protocol)
 			tolerances[tol] = true
 			exp := *m.PhantomExpectedADC * 1e3
