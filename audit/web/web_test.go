@@ -159,8 +159,8 @@ func TestScannerPages(t *testing.T) {
 	brain(mk(phantom.CaseClean, 2, 12, "hgh-mr1-1.5t"), 0.00081, false)
 	brain(mk(phantom.CaseClean, 3, 14, "hgh-mr1-1.5t"), 0.00150, true) // a test patient: left out
 	water(mk(phantom.CaseIceWater0C, 4, 11, "hgh-mr1-1.5t"), 0.00110)
-	water(mk(phantom.CaseIceWaterWarm, 5, 13, "hgh-mr1-1.5t"), 0.00126)   // +14.5%: outside ±3.6%
-	brain(mk(phantom.CaseClean, 6, 12, "hgh-mr2-3t"), 0.00070, false)     // another scanner
+	water(mk(phantom.CaseIceWaterWarm, 5, 13, "hgh-mr1-1.5t"), 0.00126) // +14.5%: outside ±3.6%
+	brain(mk(phantom.CaseClean, 6, 12, "hgh-mr2-3t"), 0.00070, false)   // another scanner
 	h := newPages(t, st, func(o *Options) { o.PhantomTolerance = func(string) float64 { return 0 } })
 
 	code, body := getPage(t, h, "/scanners/hgh-mr1-1.5t")
