@@ -119,7 +119,7 @@ func saveAudit(t *testing.T, st *store.Store, rec store.AuditRecord, findings []
 }
 
 // newPages is the pages' handler over st on a mux, as the node mounts it.
-func newPages(t *testing.T, st Store, mod func(*Options)) http.Handler {
+func newPages(t testing.TB, st Store, mod func(*Options)) http.Handler {
 	t.Helper()
 	opt := Options{Store: st, Location: hgh, Now: func() time.Time { return testNow }, Scanners: []string{"hgh-mr1-1.5t", "hgh-mr3-3t"}}
 	if mod != nil {
