@@ -245,3 +245,49 @@ func TestHashPasswordPrintsAHashTheConfigurationAccepts(t *testing.T) {
 		}
 	})
 }
+
+func TestServeWithATokenAsksForItEverywhereButTheHealthChecks(t *testing.T) {
+	cfg := filepath.Join(t.TempDir(), "node.yaml")
+	conf := "http_auth:\n  bearer_token_file: " + tokenFile(t, testToken+"\n") + "\n"
+	if err := os.WriteFile(cfg, []byte(conf), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	n := startNode(t, t.TempDir(), "--config", cfg)
+	for _, tt := range []struct {
+		path, token string
+		want        int
+	}{
+		{"/", "", http.StatusUnauthorized},
+		{"/scanners", "", http.StatusUnauthorized},
+		{"/api/v1/studies", "", http.StatusUnauthorized},
+		{"/", testToken, http.StatusOK},
+		{"/api/v1/studies", testToken, http.StatusOK},
+		{"/healthz", "", http.StatusOK},
+		{"/readyz", "", http.StatusOK},
+	} {
+		req, err := http.NewRequest("GET", n.httpURL+tt.path, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if tt.token != "" {
+			req.Header.Set("Authorization", "Bearer "+tt.token)
+		}
+		res, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res.Body.Close()
+		if res.StatusCode != tt.want {
+			t.Errorf("GET %s with token %v: %d, want %d", tt.path, tt.token != "", res.StatusCode, tt.want)
+		}
+	}
+	if !n.waitForLog(`auth="bearer token"`, time.Second) {
+		t.Errorf("the start-up log does not say how the listener is protected")
+	}
+	if strings.Contains(n.stderr.String(), testToken) {
+		t.Errorf("the log shows the token")
+	}
+	if code := n.stop(); code != exitOK {
+		t.Errorf("exit %d", code)
+	}
+}
