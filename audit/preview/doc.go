@@ -34,9 +34,12 @@
 //
 // Small matrices are enlarged by an integer factor (nearest neighbour,
 // no smoothing: one voxel stays one square) until a panel is at least
-// MinPanelPixels wide. The picture carries the series number, the slice
-// index and position, a millimetre scale bar (from Pixel Spacing) and a
-// line saying that the audit checks acquisitions and does not diagnose.
+// MinPanelPixels wide. Voxels are drawn square: with unequal row and
+// column spacing the picture is stretched along one axis, and the scale
+// bar, drawn along a row, measures with the column spacing. The picture
+// carries the series number, the slice index and position, a
+// millimetre scale bar (from Pixel Spacing) and a line saying that the
+// audit checks acquisitions and does not diagnose.
 // It never carries patient identifiers: the series description, patient
 // name and UIDs are not drawn.
 package preview

@@ -349,10 +349,10 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 // artifact on a few slices does not move the window; without
 // parenchyma the tissue serves, without tissue every voxel.
 func window(v *adc.Volume3, mask, parenchyma []bool) (lo, hi float32) {
-	// A regular sample of at most windowSample voxels: percentiles of
+	// A regular sample of about windowSample voxels: percentiles of
 	// it are as good for display, and a 256x256x60 volume is not copied
 	// for every picture.
-	const windowSample = 1 << 18
+	const windowSample = 1 << 16
 	stride := max(1, len(v.Data)/windowSample)
 	var buf []float32
 	pick := func(m []bool) []float32 {

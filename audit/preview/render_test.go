@@ -141,14 +141,16 @@ func hotspotOf(t *testing.T, a audited) rules.Finding {
 func TestPreviewOutlinesTheFindingRegionOnEveryPanel(t *testing.T) {
 	r := newTestRenderer(t)
 	for _, tc := range []struct {
-		name string
-		c    phantom.Case
+		name  string
+		c     phantom.Case
+		multi bool
 	}{
-		{"a b0 aliasing artifact is outlined where the rule found it", phantom.CaseB0ArtifactAliasing},
-		{"a b0 signal dropout is outlined where the rule found it", phantom.CaseB0ArtifactDropout},
+		{"a b0 aliasing artifact is outlined where the rule found it", phantom.CaseB0ArtifactAliasing, false},
+		{"a b0 signal dropout is outlined where the rule found it", phantom.CaseB0ArtifactDropout, false},
+		{"a b0 aliasing artifact in Enhanced MR files is outlined too", phantom.CaseB0ArtifactAliasing, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			a := auditPhantom(t, phantom.Options{Case: tc.c, Matrix: 64, Slices: 12, Seed: 1})
+			a := auditPhantom(t, phantom.Options{Case: tc.c, Matrix: 64, Slices: 12, Seed: 1, MultiFrame: tc.multi})
 			f := hotspotOf(t, a)
 			z := DefaultSlice(a.series.Result, a.findings)
 			if z != f.Region.Slices[0] {
@@ -209,7 +211,7 @@ func TestPreviewOutlinesTheFindingRegionOnEveryPanel(t *testing.T) {
 					break
 				}
 			}
-			if dir := os.Getenv("DWIAUDIT_ARTIFACTS"); dir != "" {
+			if dir := os.Getenv("DWIAUDIT_ARTIFACTS"); dir != "" && !tc.multi {
 				saveArtifact(t, dir, "preview-"+string(tc.c)+".png", pic)
 			}
 		})

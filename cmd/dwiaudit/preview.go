@@ -109,7 +109,7 @@ func (p *previews) serve(w http.ResponseWriter, r *http.Request) {
 			writeError(w, http.StatusServiceUnavailable, "the node is stopping")
 			return
 		}
-		p.log.Warn("preview: computing the study failed", "study", se.StudyInstanceUID, "err", err)
+		p.log.Warn("preview: computing a study failed", "err", err)
 		writeError(w, http.StatusInternalServerError, "computing the study failed: "+err.Error())
 		return
 	}

@@ -263,3 +263,53 @@ func TestPreviewEndpointOfANodeThatAuditedAPhantom(t *testing.T) {
 		}
 	})
 }
+
+// BenchmarkPreviewEndpoint measures GET preview.png on a `dwiaudit
+// serve` process holding three 256x256x20 aliasing phantoms (b0, three
+// directions and trace: 100 classic files each): "cached" asks one
+// study over and over (the cache holds it), "computed" cycles through
+// the three studies, which the two-study cache cannot hold, so every
+// request audits a study's files again.
+func BenchmarkPreviewEndpoint(b *testing.B) {
+	src := b.TempDir()
+	var uids []string
+	for seed := range int64(3) {
+		st, err := phantom.Write(src+"/"+strconv.FormatInt(seed, 10), phantom.Options{Case: phantom.CaseB0ArtifactAliasing, Matrix: 256, Slices: 20, Seed: seed + 1})
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, s := range st.Series {
+			if s.Number == 2 {
+				uids = append(uids, s.UID)
+			}
+		}
+	}
+	n := startNode(b, b.TempDir(), "--settle", "1h") // no pipeline audit while measuring
+	if r := runCLI(b, "send", "--to", n.dicomAddr, "--called-ae", testAE, "--quiet", src); r.code != exitOK {
+		b.Fatalf("send exited %d", r.code)
+	}
+	get := func(uid string) {
+		res, err := http.Get(n.httpURL + "/api/v1/series/" + uid + "/preview.png?slice=10")
+		if err != nil {
+			b.Fatal(err)
+		}
+		io.Copy(io.Discard, res.Body)
+		res.Body.Close()
+		if res.StatusCode != http.StatusOK {
+			b.Fatalf("GET: %d", res.StatusCode)
+		}
+	}
+	b.Run("cached", func(b *testing.B) {
+		get(uids[0])
+		for b.Loop() {
+			get(uids[0])
+		}
+	})
+	b.Run("computed", func(b *testing.B) {
+		i := 0
+		for b.Loop() {
+			get(uids[i%len(uids)])
+			i++
+		}
+	})
+}
