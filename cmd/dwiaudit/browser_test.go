@@ -217,6 +217,19 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 		}
 	})
 
+	t.Run("a row's series link opens the study page at that series", func(t *testing.T) {
+		series := hotspot.dwi(t).UID
+		link := fmt.Sprintf(`table.daylist a[href="/studies/%s#series-%s"]`, hotspot.study.StudyUID, series)
+		if err := chromedp.Do(bctx, chromedp.Click(chromedp.CSS(link)), chromedp.WaitVisible(chromedp.CSS("section.series"))); err != nil {
+			t.Fatalf("following the row's link: %v", err)
+		}
+		// :target is the series the link named (the page styles it).
+		target := browserEval[string](t, bctx, `(document.querySelector("section.series:target") || {id: ""}).id`)
+		if target != "series-"+series {
+			t.Errorf("the link's target is %q, want series-%s", target, series)
+		}
+	})
+
 	t.Run("the study page shows its series, measures, findings and previews", func(t *testing.T) {
 		series := hotspot.dwi(t).UID
 		body := load(t, "/studies/"+hotspot.study.StudyUID+"#series-"+series, "section.series")
