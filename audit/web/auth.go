@@ -40,6 +40,8 @@ type Auth struct {
 	Users map[string][]byte
 	// Open are exact paths served without authentication.
 	Open []string
+	// Hint is added to the 401 answer's error text: how to authenticate.
+	Hint string
 
 	mu       sync.Mutex
 	verified map[[32]byte]bool // guarded by mu: sha256(name 0x00 password) of Basic credentials bcrypt accepted
@@ -75,7 +77,11 @@ func (a *Auth) Wrap(h http.Handler) http.Handler {
 		w.Header().Set("Content-Type", "application/json; charset=utf-8")
 		w.Header().Set("Cache-Control", "no-store")
 		w.WriteHeader(http.StatusUnauthorized)
-		json.NewEncoder(w).Encode(map[string]any{"error": "authentication required", "status": http.StatusUnauthorized})
+		msg := "authentication required"
+		if a.Hint != "" {
+			msg += ": " + a.Hint
+		}
+		json.NewEncoder(w).Encode(map[string]any{"error": msg, "status": http.StatusUnauthorized})
 	})
 }
 

@@ -137,7 +137,8 @@ func readToken(path string) (string, error) {
 
 // auth builds the access control of the listener.
 func (a HTTPAuthConfig) auth() (*web.Auth, error) {
-	out := &web.Auth{Open: []string{"/healthz", "/readyz"}}
+	out := &web.Auth{Open: []string{"/healthz", "/readyz"},
+		Hint: "send Authorization: Bearer TOKEN (dwiaudit studies and report: set " + tokenFileEnv + " to the token file) or sign in as a configured user"}
 	if a.BearerTokenFile != "" {
 		tok, err := readToken(a.BearerTokenFile)
 		if err != nil {
@@ -171,6 +172,27 @@ func (a HTTPAuthConfig) describe(listen string) string {
 		return "none (loopback only)"
 	}
 	return "none (allow_unauthenticated)"
+}
+
+// tokenFileEnv names the environment variable from which the
+// command-line clients of a node (studies --server, report --server)
+// take the file holding the bearer token, so that the token shows
+// neither in the process list nor in shell history.
+const tokenFileEnv = "DWIAUDIT_TOKEN_FILE"
+
+// clientAuth adds the bearer token of $DWIAUDIT_TOKEN_FILE to a request
+// to a node, when the variable is set.
+func clientAuth(req *http.Request) error {
+	path := os.Getenv(tokenFileEnv)
+	if path == "" {
+		return nil
+	}
+	tok, err := readToken(path)
+	if err != nil {
+		return fmt.Errorf("%s: %w", tokenFileEnv, err)
+	}
+	req.Header.Set("Authorization", "Bearer "+tok)
+	return nil
 }
 
 // webPages is the HTTP listener's handler beside the API: the pages and

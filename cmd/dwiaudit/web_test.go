@@ -281,6 +281,19 @@ func TestServeWithATokenAsksForItEverywhereButTheHealthChecks(t *testing.T) {
 			t.Errorf("GET %s with token %v: %d, want %d", tt.path, tt.token != "", res.StatusCode, tt.want)
 		}
 	}
+	t.Run("dwiaudit studies --server needs the token file, and works with it", func(t *testing.T) {
+		r := runCLI(t, "studies", "--server", n.httpURL)
+		if r.code != exitFailure || !strings.Contains(r.stderr, "401") || !strings.Contains(r.stderr, tokenFileEnv) {
+			t.Errorf("without the token: exit %d, stderr %q; want 1 naming 401 and %s", r.code, r.stderr, tokenFileEnv)
+		}
+		t.Setenv(tokenFileEnv, tokenFile(t, testToken))
+		if r := runCLI(t, "studies", "--server", n.httpURL); r.code != exitOK {
+			t.Errorf("with the token: exit %d, stderr %q", r.code, r.stderr)
+		}
+		if r := runCLI(t, "report", "daily", "--server", n.httpURL); r.code != exitOK {
+			t.Errorf("report daily with the token: exit %d, stderr %q", r.code, r.stderr)
+		}
+	})
 	if !n.waitForLog(`auth="bearer token"`, time.Second) {
 		t.Errorf("the start-up log does not say how the listener is protected")
 	}
