@@ -33,8 +33,8 @@
 //     outside the region's box, so the voxels in it stay visible.
 //
 // Small matrices are enlarged by an integer factor (nearest neighbour,
-// no smoothing: one voxel stays one square) until a panel is at least
-// MinPanelPixels wide. Voxels are drawn square: with unequal row and
+// no smoothing: one voxel stays one square) until a panel's longer side
+// is at least MinPanelPixels. Voxels are drawn square: with unequal row and
 // column spacing the picture is stretched along one axis, and the scale
 // bar, drawn along a row, measures with the column spacing. The picture
 // carries the series number, the slice index and position, a

@@ -201,6 +201,8 @@ func checkMaps(res *analysis.Result) error {
 		return fmt.Errorf("%w: %s", ErrNoMaps, res.CannotCompute)
 	case res.B0 == nil || res.ADC == nil || res.EADC == nil || len(res.HighB) == 0 || res.HighB[len(res.HighB)-1].Trace == nil:
 		return fmt.Errorf("%w: the computation left no b0, DWI, eADC and ADC", ErrNoMaps)
+	case res.B0.Rows < 1 || res.B0.Cols < 1 || res.B0.Slices < 1:
+		return fmt.Errorf("%w: the maps are empty", ErrNoMaps)
 	}
 	n := len(res.B0.Data)
 	for _, v := range []*adc.Volume3{res.ADC, res.EADC, res.HighB[len(res.HighB)-1].Trace} {
@@ -234,7 +236,11 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 
 	scale := max(1, min(MaxScale, (MinPanelPixels+max(rows, cols)-1)/max(rows, cols)))
 	pw, ph := cols*scale, rows*scale
-	width := 2*margin + int(numPanels)*pw + (int(numPanels)-1)*gap
+	// Each panel sits at the left of a slot at least MinPanelPixels
+	// wide, so that a narrow matrix (fewer columns than rows) still
+	// leaves room for the titles and keys.
+	slot := max(pw, MinPanelPixels)
+	width := 2*margin + int(numPanels)*slot + (int(numPanels)-1)*gap
 	height := margin + headerH + titleH + ph + keysH + footerH + margin
 	img := image.NewRGBA(image.Rect(0, 0, width, height))
 	draw.Draw(img, img.Bounds(), image.NewUniform(backgroundColor), image.Point{}, draw.Src)
@@ -251,7 +257,7 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 		titles[PanelB0] = "b0"
 	}
 	for k := range numPanels {
-		x := margin + int(k)*(pw+gap)
+		x := margin + int(k)*(slot+gap)
 		pic.Panels = append(pic.Panels, Panel{Kind: k, Title: titles[k], Rect: image.Rect(x, top, x+pw, top+ph), Scale: scale})
 	}
 
@@ -495,14 +501,28 @@ func (w *writer) text(x, y int, s string, c color.Color) {
 
 // ticks labels a colour bar: tick marks under rect at each value of at
 // (in label units; the bar spans 0..full) with its label centred under
-// it, kept inside the bar's width.
+// it, kept inside the bar's width. On a narrow bar a label that would
+// touch one already drawn is left out; the ends are drawn first.
 func (w *writer) ticks(rect image.Rectangle, at []float64, full float64, format string) {
-	for _, v := range at {
+	order := make([]int, 0, len(at))
+	if len(at) > 0 {
+		order = append(order, len(at)-1)
+	}
+	for i := range len(at) - 1 {
+		order = append(order, i)
+	}
+	var drawn [][2]int
+	for _, i := range order {
+		v := at[i]
 		x := rect.Min.X + int(math.Round(v/full*float64(rect.Dx()-1)))
 		draw.Draw(w.img, image.Rect(x, rect.Max.Y, x+1, rect.Max.Y+4), image.NewUniform(textColor), image.Point{}, draw.Src)
 		label := fmt.Sprintf(format, v)
 		lw := font.MeasureString(w.face, label).Round()
 		lx := min(max(x-lw/2, rect.Min.X), rect.Max.X-lw)
+		if slices.ContainsFunc(drawn, func(d [2]int) bool { return lx < d[1]+4 && d[0] < lx+lw+4 }) {
+			continue
+		}
+		drawn = append(drawn, [2]int{lx, lx + lw})
 		w.text(lx, rect.Max.Y+4+fontSize, label, textColor)
 	}
 }

@@ -402,6 +402,21 @@ func TestVoxelColoursFollowTheDocumentedScales(t *testing.T) {
 			}
 		})
 	}
+	t.Run("a matrix with fewer columns than rows keeps its panels apart and its keys readable", func(t *testing.T) {
+		pic, err := r.Render(syntheticResult(128, 48, 1), 0, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if w := pic.Image.Bounds().Dx(); w < 4*MinPanelPixels {
+			t.Errorf("picture %d pixels wide, want at least four %d-pixel slots", w, MinPanelPixels)
+		}
+		for i := 1; i < len(pic.Panels); i++ {
+			a, b := pic.Panels[i-1].Rect, pic.Panels[i].Rect
+			if b.Min.X-a.Max.X < MinPanelPixels-a.Dx() {
+				t.Errorf("panels %v and %v: %d pixels apart, want the rest of a %d-pixel slot", a, b, b.Min.X-a.Max.X, MinPanelPixels)
+			}
+		}
+	})
 	for _, tc := range []struct {
 		matrix, scale int
 	}{{16, 16}, {32, 8}, {64, 4}, {100, 3}, {128, 2}, {256, 1}, {512, 1}} {
@@ -433,6 +448,13 @@ func TestRenderRefusesWhatItCannotDraw(t *testing.T) {
 		_, err := r.Render(&analysis.Result{CannotCompute: "no b0 image"}, 0, nil)
 		if !errors.Is(err, ErrNoMaps) || !bytes.Contains([]byte(err.Error()), []byte("no b0 image")) {
 			t.Errorf("Render = %v, want ErrNoMaps with the reason", err)
+		}
+	})
+	t.Run("an empty computation is refused", func(t *testing.T) {
+		empty := adc.NewVolume3(0, 0, 1)
+		res := &analysis.Result{B0: empty, ADC: empty, EADC: empty, HighB: []analysis.BImage{{B: 1000, Trace: empty}}}
+		if _, err := r.Render(res, 0, nil); !errors.Is(err, ErrNoMaps) {
+			t.Errorf("Render(0x0) = %v, want ErrNoMaps", err)
 		}
 	})
 	t.Run("a missing result is refused", func(t *testing.T) {
