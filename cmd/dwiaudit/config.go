@@ -90,6 +90,7 @@ type Config struct {
 	Retention RetentionConfig `yaml:"retention"`
 	Log       LogConfig       `yaml:"log"`
 	Audit     AuditConfig     `yaml:"audit"`
+	HTTPAuth  HTTPAuthConfig  `yaml:"http_auth"`
 	Reports   ReportsConfig   `yaml:"reports"`
 }
 
@@ -245,6 +246,7 @@ func (c Config) Validate() error {
 	p.atLeast("retention.instance_files", c.Retention.InstanceFiles, minRetention)
 	p.atLeast("retention.prune_interval", c.Retention.PruneInterval, minPruneInterval)
 	c.Audit.validate(&p)
+	c.HTTPAuth.validate(&p, n.HTTPListen)
 	c.Reports.validate(&p)
 	return p.err("")
 }

@@ -32,6 +32,7 @@ type command struct {
 // can run subcommands in-process.
 type cliEnv struct {
 	stdout, stderr io.Writer
+	stdin          io.Reader // os.Stdin when nil
 	// isTerminal reports whether stderr is an interactive terminal (for
 	// progress bars).
 	isTerminal bool
@@ -59,6 +60,7 @@ func commands() []command {
 		{"serve", "run the node: receive and store studies, serve the HTTP API", runServe},
 		{"studies", "list the studies stored by a node", runStudies},
 		{"check", "audit diffusion series in DICOM files on disk, without a server", runCheck},
+		{"hash-password", "print the bcrypt hash of a password read from standard input, for http_auth.users", runHashPassword},
 		{"report", "the daily discrepancy list and the protocol compliance report", runReport},
 		{"demo", "run a node on a synthetic hospital's studies over several days and show what it finds", runDemo},
 		{"selftest", "prove an installed node audits: send it a planted-defect suite and compare", runSelftest},

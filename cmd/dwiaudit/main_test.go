@@ -51,7 +51,7 @@ func TestHelpExitsZeroAndPrintsUsage(t *testing.T) {
 		{"help prints the usage", []string{"help"}, exitOK, []string{"Usage: dwiaudit <command> [flags]"}},
 	}
 	// A flag each command's usage must list.
-	someFlag := map[string]string{"echo": "-calling-ae", "send": "-calling-ae", "serve": "-config", "studies": "-server", "phantom": "-case", "check": "-fail-on", "report": "-format", "demo": "-exit", "selftest": "-server"}
+	someFlag := map[string]string{"echo": "-calling-ae", "send": "-calling-ae", "serve": "-config", "studies": "-server", "phantom": "-case", "check": "-fail-on", "report": "-format", "demo": "-exit", "selftest": "-server", "hash-password": "-cost"}
 	for _, c := range commands() {
 		if someFlag[c.name] == "" {
 			t.Errorf("command %q has no entry in someFlag", c.name)

@@ -242,6 +242,9 @@ func askServer(ctx context.Context, server string, path []string, q url.Values) 
 		return nil, err
 	}
 	req.Header.Set("Accept", "application/json")
+	if err := clientAuth(req); err != nil {
+		return nil, err
+	}
 	res, err := http.DefaultClient.Do(req)
 	if err != nil {
 		return nil, fmt.Errorf("asking the server: %w", err)

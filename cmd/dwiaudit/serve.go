@@ -180,6 +180,11 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
+	pages, err := newWebPages(cfg, st, loc, log.With("component", "web"))
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
 	prev, err := newPreviews(st, cfg.Audit, log.With("component", "preview"))
 	if err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
@@ -246,8 +251,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 
 	archive := newReportArchive(cfg.Reports, st, loc, env.clock())
 	hs := &http.Server{
-		Handler: withMetrics(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes),
-			archive, log.With("component", "http")), met),
+		Handler: pages.handler(withMetrics(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes),
+			archive, log.With("component", "http")), met)),
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,

@@ -136,6 +136,9 @@ func studiesFromServer(ctx context.Context, server, day string) (StudiesResponse
 		return StudiesResponse{}, err
 	}
 	req.Header.Set("Accept", "application/json")
+	if err := clientAuth(req); err != nil {
+		return StudiesResponse{}, err
+	}
 	res, err := http.DefaultClient.Do(req)
 	if err != nil {
 		return StudiesResponse{}, fmt.Errorf("asking the server: %w", err)

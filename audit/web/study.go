@@ -1,0 +1,249 @@
+package web
+
+// The study page: every series of a study with its current audit.
+
+import (
+	"encoding/json"
+	"fmt"
+	"net/http"
+	"net/url"
+	"strconv"
+	"strings"
+
+	"dwiaudit/audit/report"
+	"dwiaudit/rules"
+)
+
+// Measures is how the audit stores a series' measures (audit/pipeline.go
+// seriesMeasures): ADC in mm²/s, null where undefined.
+type Measures struct {
+	SeriesNumber           int       `json:"series_number"`
+	SeriesDescription      string    `json:"series_description"`
+	Protocol               string    `json:"protocol"`
+	BValues                []float64 `json:"bvalues"`
+	TissueADCMedian        *float64  `json:"tissue_adc_median"`
+	CSFADC                 *float64  `json:"csf_adc"`
+	B0SNR                  *float64  `json:"b0_snr"`
+	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
+	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
+	FractionNegative       *float64  `json:"fraction_negative"`
+	CannotCompute          string    `json:"cannot_compute"`
+	PhantomADC             *float64  `json:"phantom_adc"`
+	PhantomExpectedADC     *float64  `json:"phantom_expected_adc"`
+}
+
+// storedFinding is the part of a stored rules.Finding the page shows;
+// values stay JSON for report.Value, and a severity this version does
+// not know still shows.
+type storedFinding struct {
+	Rule     string          `json:"rule"`
+	Severity string          `json:"severity"`
+	Message  string          `json:"message"`
+	Measured json.RawMessage `json:"measured"`
+	Expected json.RawMessage `json:"expected"`
+	Region   *rules.Region   `json:"region"`
+}
+
+// severityRank orders severities for the series' headline.
+func severityRank(s string) int {
+	switch s {
+	case "error":
+		return 3
+	case "warning":
+		return 2
+	case "info":
+		return 1
+	}
+	return 0
+}
+
+// measureView is one measure as a row of the series' table.
+type measureView struct {
+	Name, Value string
+}
+
+// findingView is one finding on the study page.
+type findingView struct {
+	Rule, Severity, Message, Measured, Expected string
+	Slices                                      string // the region's slices, "" without a region
+}
+
+// seriesView is one series on the study page.
+type seriesView struct {
+	UID         string
+	Anchor      string
+	Number      int
+	Description string
+	Scanner     string
+	Instances   int
+	Protocol    string
+	BValues     string
+	Audited     bool
+	AuditTime   string
+	Audits      int // how many audits the series has had
+	Test        bool
+	Measures    []measureView
+	Findings    []findingView
+	Worst       string // the highest severity among the findings, "" for none
+	Preview     string // the preview's URL, "" when there is none to show
+	PreviewNote string // why there is no preview, or what the preview shows
+	NotComputed string // the reason the series could not be computed
+	ScannerLink string
+}
+
+// studyView is the body of the study page.
+type studyView struct {
+	UID       string
+	StudyDate string
+	StudyTime string
+	Accession string
+	PatientID string // masked
+	Series    []seriesView
+	Findings  int
+}
+
+func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
+	uid := r.PathValue("uid")
+	st, err := h.opt.Store.Study(uid)
+	if err != nil {
+		h.storeFailed(w, "study", err)
+		return
+	}
+	v := studyView{
+		UID:       st.StudyInstanceUID,
+		StudyDate: formatStudyDate(st.StudyDate),
+		StudyTime: formatStudyTime(st.StudyTime),
+		Accession: st.AccessionNumber,
+		PatientID: maskPatientID(st.PatientID),
+	}
+	for _, se := range st.Series {
+		sv := seriesView{
+			UID:         se.SeriesInstanceUID,
+			Anchor:      "series-" + se.SeriesInstanceUID,
+			Number:      se.SeriesNumber,
+			Description: se.SeriesDescription,
+			Scanner:     se.ScannerLabel,
+			Instances:   se.Instances,
+		}
+		if se.ScannerLabel != "" {
+			sv.ScannerLink = "/scanners/" + url.PathEscape(se.ScannerLabel)
+		}
+		audits, err := h.opt.Store.SeriesAudits(se.SeriesInstanceUID)
+		if err != nil {
+			h.storeFailed(w, "study", err)
+			return
+		}
+		if len(audits) > 0 {
+			cur := audits[len(audits)-1]
+			sv.Audited, sv.Audits, sv.Test = true, len(audits), cur.TestPatient
+			sv.AuditTime = cur.AuditTime.In(h.opt.Location).Format("2006-01-02 15:04")
+			if err := h.fillSeries(&sv, cur.Findings, cur.Measures); err != nil {
+				h.storeFailed(w, "study", err)
+				return
+			}
+			v.Findings += len(sv.Findings)
+		}
+		v.Series = append(v.Series, sv)
+	}
+	h.render(w, http.StatusOK, "study", "Study of "+v.StudyDate, "", v)
+}
+
+// fillSeries adds an audit's measures, findings and preview to sv.
+func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.RawMessage) error {
+	var fs []storedFinding
+	if len(findingsJSON) > 0 {
+		if err := json.Unmarshal(findingsJSON, &fs); err != nil {
+			return fmt.Errorf("web: findings of a series: %w", err)
+		}
+	}
+	var m *Measures
+	if len(measuresJSON) > 0 && string(measuresJSON) != "null" {
+		m = &Measures{}
+		if err := json.Unmarshal(measuresJSON, m); err != nil {
+			return fmt.Errorf("web: measures of a series: %w", err)
+		}
+	}
+	previewSlice := -1
+	worst := 0
+	for _, f := range fs {
+		fv := findingView{
+			Rule: f.Rule, Severity: f.Severity, Message: f.Message,
+			Measured: displayValue(report.Value(f.Rule, f.Measured, f.Expected, true)),
+			Expected: displayValue(report.Value(f.Rule, f.Measured, f.Expected, false)),
+		}
+		if f.Region != nil && len(f.Region.Slices) > 0 {
+			fv.Slices = sliceList(f.Region.Slices)
+			if previewSlice < 0 {
+				previewSlice = f.Region.Slices[0]
+			}
+		}
+		if r := severityRank(f.Severity); r > worst {
+			worst, sv.Worst = r, f.Severity
+		}
+		sv.Findings = append(sv.Findings, fv)
+	}
+	if m == nil {
+		sv.PreviewNote = "No preview: this series has no computed maps."
+		return nil
+	}
+	sv.Protocol = m.Protocol
+	if len(m.BValues) > 0 {
+		bs := make([]string, len(m.BValues))
+		for i, b := range m.BValues {
+			bs[i] = strconv.FormatFloat(b, 'f', -1, 64)
+		}
+		sv.BValues = strings.Join(bs, ", ") + " s/mm²"
+	}
+	sv.Measures = []measureView{
+		{"Parenchyma median ADC", formatADC(m.TissueADCMedian)},
+		{"CSF ADC", formatADC(m.CSFADC)},
+		{"b0 SNR", formatNumber(m.B0SNR, 1)},
+		{"High-b tissue SNR", formatNumber(m.HighBTissueSNR, 1)},
+	}
+	if m.PhantomADC != nil || m.PhantomExpectedADC != nil {
+		sv.Measures = append(sv.Measures,
+			measureView{"Phantom central ADC", formatADC(m.PhantomADC)},
+			measureView{"Phantom expected ADC", formatADC(m.PhantomExpectedADC)})
+	}
+	if m.CannotCompute != "" {
+		sv.NotComputed = m.CannotCompute
+		sv.PreviewNote = "No preview: the maps could not be computed."
+		return nil
+	}
+	sv.Preview = "/api/v1/series/" + url.PathEscape(sv.UID) + "/preview.png"
+	if previewSlice >= 0 {
+		sv.Preview += "?slice=" + strconv.Itoa(previewSlice)
+		sv.PreviewNote = fmt.Sprintf("Slice %d, the first slice of the first finding's region (outlined).", previewSlice)
+	} else {
+		sv.PreviewNote = "The middle slice."
+	}
+	return nil
+}
+
+// sliceList writes slice indexes compactly: 3–7, 9.
+func sliceList(s []int) string {
+	var parts []string
+	for i := 0; i < len(s); {
+		j := i
+		for j+1 < len(s) && s[j+1] == s[j]+1 {
+			j++
+		}
+		if j > i {
+			parts = append(parts, fmt.Sprintf("%d–%d", s[i], s[j]))
+		} else {
+			parts = append(parts, strconv.Itoa(s[i]))
+		}
+		i = j + 1
+	}
+	return strings.Join(parts, ", ")
+}
+
+// formatStudyTime writes a TM (HHMMSS.FFFFFF) as HH:MM; as given when it
+// is not one.
+func formatStudyTime(tm string) string {
+	tm = strings.TrimSpace(tm)
+	if len(tm) < 4 {
+		return tm
+	}
+	return tm[0:2] + ":" + tm[2:4]
+}
