@@ -98,16 +98,14 @@ func (a *Archive) Daily(day string) (*DailyList, error) {
 	if err != nil {
 		return nil, err
 	}
-	if due {
-		l, _, err := a.freeze(day)
-		if err == nil {
-			return l.WithPatientID(a.Builder.PatientID), nil
-		}
-		if !errors.Is(err, store.ErrReadOnly) {
-			return nil, err
-		}
+	if !due {
+		return a.Builder.Daily(day)
 	}
-	return a.Builder.Daily(day)
+	l, _, err = a.freeze(day)
+	if err != nil && !errors.Is(err, store.ErrReadOnly) {
+		return nil, err
+	}
+	return l.WithPatientID(a.Builder.PatientID), nil // on ErrReadOnly: the list built live
 }
 
 // kept returns day's frozen list, nil if none.
@@ -135,7 +133,8 @@ func (a *Archive) Freeze(day string) (frozen bool, err error) {
 }
 
 // freeze builds day's list with patient IDs in full and keeps it; if
-// another call kept one first, that one is returned.
+// another call kept one first, that one is returned. A read-only store
+// gives the list built, not frozen, with store.ErrReadOnly.
 func (a *Archive) freeze(day string) (*DailyList, bool, error) {
 	b := *a.Builder
 	b.PatientID = PatientIDFull
@@ -150,6 +149,10 @@ func (a *Archive) freeze(day string) (*DailyList, bool, error) {
 		return nil, false, err
 	}
 	err = a.Lists.SaveDailyList(day, data)
+	if errors.Is(err, store.ErrReadOnly) {
+		l.FrozenAt = nil
+		return l, false, err
+	}
 	if errors.Is(err, store.ErrDailyListExists) {
 		data, _, err = a.Lists.DailyList(day)
 		if err != nil {

@@ -2,9 +2,7 @@ package report_test
 
 import (
 	"bytes"
-	"errors"
 	"slices"
-	"strings"
 	"testing"
 	"time"
 
@@ -207,27 +205,5 @@ func TestTheFreezeTimeFollowsTheWallClock(t *testing.T) {
 				t.Errorf("NextFreeze %v %s, want %v %s", at, day, c.nextAt, c.nextDay)
 			}
 		})
-	}
-}
-
-func TestTheStoreKeepsTheFirstListOfADay(t *testing.T) {
-	loc := harbourview(t)
-	s, _ := newStore(t, loc, nil)
-	if err := s.SaveDailyList("2026-12-01", []byte(`{"first":true}`)); err != nil {
-		t.Fatal(err)
-	}
-	err := s.SaveDailyList("2026-12-01", []byte(`{"second":true}`))
-	if !errors.Is(err, store.ErrDailyListExists) {
-		t.Errorf("second save: %v, want ErrDailyListExists", err)
-	}
-	got, ok, err := s.DailyList("2026-12-01")
-	if err != nil || !ok || string(got) != `{"first":true}` {
-		t.Errorf("kept %q %v %v", got, ok, err)
-	}
-	if _, ok, err := s.DailyList("2026-12-02"); ok || err != nil {
-		t.Errorf("a day never kept: %v %v", ok, err)
-	}
-	if err := s.SaveDailyList("2026-12-1", nil); err == nil || !strings.Contains(err.Error(), "YYYY-MM-DD") {
-		t.Errorf("bad day: %v", err)
 	}
 }

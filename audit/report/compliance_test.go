@@ -79,6 +79,9 @@ func TestComplianceCountsStudiesPerProtocolAndScannerWithTheTrend(t *testing.T) 
 	if c.PreviousFrom != "2026-12-01" || c.PreviousTo != "2026-12-07" || c.Days != 7 {
 		t.Errorf("previous period %s..%s (%d days), want 2026-12-01..2026-12-07 (7)", c.PreviousFrom, c.PreviousTo, c.Days)
 	}
+	if want := time.Date(2026, 12, 15, 9, 0, 0, 0, harbourview(t)); !c.GeneratedAt.Equal(want) {
+		t.Errorf("generated at %v, want the injected clock's %v", c.GeneratedAt, want)
+	}
 	if c.TestStudiesExcluded != 3 {
 		t.Errorf("test studies excluded %d, want 3", c.TestStudiesExcluded)
 	}

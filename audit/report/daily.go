@@ -142,7 +142,7 @@ func (b *Builder) Daily(day string) (*DailyList, error) {
 	}
 	l := &DailyList{
 		Day:         day,
-		TimeZone:    loc.String(),
+		TimeZone:    zoneName(loc, b.now()),
 		GeneratedAt: b.now().In(loc).Truncate(time.Second),
 		Caution:     Caution,
 		PatientID:   PatientIDFull,
@@ -273,4 +273,14 @@ func studyDate(da string) string {
 		return t.Format(dayLayout)
 	}
 	return da
+}
+
+// zoneName names the node's time zone: its IANA name, or for "Local"
+// the abbreviation in force at t too, so a reader knows which it was.
+func zoneName(loc *time.Location, t time.Time) string {
+	if name := loc.String(); name != "Local" {
+		return name
+	}
+	abbr, _ := t.In(loc).Zone()
+	return "Local (" + abbr + ")"
 }

@@ -291,3 +291,24 @@ func TestABadDayOrFormatIsRefused(t *testing.T) {
 		t.Error("format pdf accepted")
 	}
 }
+
+func TestTheTextTableKeepsOneLinePerFinding(t *testing.T) {
+	l := &report.DailyList{Day: "2026-12-01", Caution: report.Caution, Rows: []report.Row{
+		{Rule: "audit-failed", Severity: "error", SeriesDescription: "DWI\tb1000\nsecond line", Measured: "a\tb"},
+		{Rule: "low-snr", Severity: "warning", Test: true},
+	}}
+	var buf bytes.Buffer
+	if err := l.WriteText(&buf); err != nil {
+		t.Fatal(err)
+	}
+	table, _, _ := strings.Cut(buf.String(), "Explanations:")
+	var rows []string
+	for _, line := range strings.Split(table, "\n") {
+		if strings.HasPrefix(line, "error") || strings.HasPrefix(line, "warning") || strings.HasPrefix(line, "second") {
+			rows = append(rows, line)
+		}
+	}
+	if len(rows) != 2 || !strings.HasPrefix(rows[1], "warning (test)") {
+		t.Errorf("table rows %q, want one per finding with the test one marked", rows)
+	}
+}

@@ -172,9 +172,9 @@ func (l *DailyList) WriteText(w io.Writer) error {
 		if r.Test {
 			sev += " (test)"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", sev, r.Rule, r.AuditTime.Format("15:04:05"),
-			dash(r.StudyDate), dash(r.AccessionNumber), dash(r.PatientID), dash(r.Scanner),
-			seriesName(r.SeriesNumber, r.SeriesDescription), dash(r.Measured), dash(r.Expected))
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", sev, cell(r.Rule), r.AuditTime.Format("15:04:05"),
+			cell(r.StudyDate), cell(r.AccessionNumber), cell(r.PatientID), cell(r.Scanner),
+			cell(seriesName(r.SeriesNumber, r.SeriesDescription)), cell(r.Measured), cell(r.Expected))
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -248,7 +248,7 @@ func (c *Compliance) WriteText(w io.Writer) error {
 	tw := tabwriter.NewWriter(ew, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "PROTOCOL\tSCANNER\tSTUDIES\tCOMPLIANT\tBEFORE\tCHANGE\tMOST FREQUENT RULES")
 	for _, g := range append([]ComplianceGroup{c.Overall}, c.Groups...) {
-		fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%s\t%s\n", g.Protocol, g.Scanner, g.Studies,
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%s\t%s\n", cell(g.Protocol), cell(g.Scanner), g.Studies,
 			pct(g.SharePercent), pct(g.PreviousSharePercent), points(g.DeltaPoints), topRules(g.TopRules))
 	}
 	if err := tw.Flush(); err != nil {
@@ -295,6 +295,17 @@ func plural(n int, one, many string) string {
 		return "1 " + one
 	}
 	return strconv.Itoa(n) + " " + many
+}
+
+// cell is a value in a table column: a tab or line break inside it
+// would break the table, so they become spaces; empty is "-".
+func cell(s string) string {
+	return dash(strings.Map(func(r rune) rune {
+		if r == '\t' || r == '\n' || r == '\r' {
+			return ' '
+		}
+		return r
+	}, s))
 }
 
 func dash(s string) string {
