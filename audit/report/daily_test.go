@@ -312,3 +312,21 @@ func TestTheTextTableKeepsOneLinePerFinding(t *testing.T) {
 		t.Errorf("table rows %q, want one per finding with the test one marked", rows)
 	}
 }
+
+func TestTheTextTableCutsALongValueAndTheExplanationKeepsIt(t *testing.T) {
+	reason := "1 file(s) of the series cannot be read (2.25.3129.dcm: dwi: pixel data does not match the header)"
+	l := &report.DailyList{Day: "2026-12-01", Caution: report.Caution, Rows: []report.Row{
+		{Rule: "audit-failed", Severity: "warning", Measured: reason, Expected: "a series the audit can read", Explanation: "could not be audited: " + reason},
+	}}
+	var buf bytes.Buffer
+	if err := l.WriteText(&buf); err != nil {
+		t.Fatal(err)
+	}
+	table, expl, _ := strings.Cut(buf.String(), "Explanations:")
+	if strings.Contains(table, reason) || !strings.Contains(table, reason[:39]+"…") {
+		t.Errorf("table does not cut the value to 40 characters:\n%s", table)
+	}
+	if !strings.Contains(expl, reason) {
+		t.Errorf("explanation lost the whole value:\n%s", expl)
+	}
+}

@@ -174,7 +174,7 @@ func (l *DailyList) WriteText(w io.Writer) error {
 		}
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", sev, cell(r.Rule), r.AuditTime.Format("15:04:05"),
 			cell(r.StudyDate), cell(r.AccessionNumber), cell(r.PatientID), cell(r.Scanner),
-			cell(seriesName(r.SeriesNumber, r.SeriesDescription)), cell(r.Measured), cell(r.Expected))
+			cell(seriesName(r.SeriesNumber, r.SeriesDescription)), short(cell(r.Measured)), short(cell(r.Expected)))
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -306,6 +306,20 @@ func cell(s string) string {
 		}
 		return r
 	}, s))
+}
+
+// maxValueCell is the widest a measured or expected value is shown in
+// the text table; a longer one (an audit-failed reason) is cut with an
+// ellipsis, and the explanation under the table says it whole. 40
+// characters keep the table within a wide terminal.
+const maxValueCell = 40
+
+// short cuts s to maxValueCell characters.
+func short(s string) string {
+	if r := []rune(s); len(r) > maxValueCell {
+		return string(r[:maxValueCell-1]) + "…"
+	}
+	return s
 }
 
 func dash(s string) string {
