@@ -34,7 +34,6 @@ var ErrPipeline = errors.New("audit: invalid pipeline")
 // PipelineStore is what the pipeline needs of the store (*store.Store
 // has it): the pending list, the audits, and a study's files.
 type PipelineStore interface {
-	MarkPending(seriesUID, studyUID string, at time.Time) error
 	Pending() ([]store.PendingSeries, error)
 	ClearPending(seriesUID string, auditedAt time.Time) error
 	SaveAudit(rec store.AuditRecord) error
@@ -170,13 +169,11 @@ func (p *Pipeline) Start(ctx context.Context) error {
 }
 
 // Notify tells the pipeline that an instance of the series was committed
-// at at. The series is recorded as pending in the store before the
-// settle timer of its study is (re)started.
+// at at, and (re)starts the settle timer of its study. The store has
+// already recorded the series as pending, in the transaction that
+// committed the instance (store.Put), so a restart before the audit
+// loses nothing and the C-STORE waits for one index commit, not two.
 func (p *Pipeline) Notify(seriesUID, studyUID string, at time.Time) {
-	if err := p.Store.MarkPending(seriesUID, studyUID, at); err != nil {
-		// The audit still runs; only a restart before it would lose it.
-		p.log().Warn("recording a pending series failed", "series", seriesUID, "err", err)
-	}
 	p.schedule(studyUID, p.Settle)
 }
 
@@ -272,6 +269,9 @@ func (p *Pipeline) Close() {
 func (p *Pipeline) auditStudy(study string) {
 	log := p.log().With("study", study)
 	started := p.now()
+	// seen is, per series, the newest receive time among the instances
+	// the audit listed: what ClearPending compares with the pending mark.
+	seen := map[string]time.Time{}
 	st, err := p.Store.Study(study)
 	if err != nil {
 		if !errors.Is(err, store.ErrClosed) {
@@ -282,7 +282,7 @@ func (p *Pipeline) auditStudy(study string) {
 	defer func() {
 		if r := recover(); r != nil {
 			log.Error("audit panicked", "panic", fmt.Sprint(r), "stack", string(debug.Stack()))
-			p.saveFailed(st, fmt.Sprintf("the audit stopped on an internal error: %v", r), started)
+			p.saveFailed(st, fmt.Sprintf("the audit stopped on an internal error: %v", r), seen)
 			p.observe(false, started)
 		}
 	}()
@@ -295,6 +295,11 @@ func (p *Pipeline) auditStudy(study string) {
 			continue
 		}
 		for _, in := range ins {
+			// A pruned or missing instance counts as seen: the audit read
+			// the series as the store holds it.
+			if in.ReceivedAt.After(seen[se.SeriesInstanceUID]) {
+				seen[se.SeriesInstanceUID] = in.ReceivedAt
+			}
 			if !in.Pruned && !in.Missing {
 				paths = append(paths, filepath.Join(p.Store.Dir(), filepath.FromSlash(in.Path)))
 			}
@@ -312,18 +317,18 @@ func (p *Pipeline) auditStudy(study string) {
 		return // stopping: the series stay pending
 	case err != nil:
 		log.Warn("audit failed", "err", err)
-		p.saveFailed(st, "the audit did not finish: "+err.Error(), started)
+		p.saveFailed(st, "the audit did not finish: "+err.Error(), seen)
 		p.observe(false, started)
 		return
 	}
-	p.observe(p.save(st, rep, started), started)
+	p.observe(p.save(st, rep, seen), started)
 	log.Info("study audited", "series", len(rep.Series), "findings", len(rep.Findings), "took", p.now().Sub(started).Round(time.Millisecond).String())
 }
 
 // save stores an audit per series of the report (and per series only a
 // finding names), then takes the study's series off the pending list. It
 // reports whether every audit was saved.
-func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) bool {
+func (p *Pipeline) save(st store.Study, rep *Report, seen map[string]time.Time) bool {
 	at := p.now()
 	bySeries := map[string][]rules.Finding{}
 	var studyWide []rules.Finding
@@ -391,13 +396,13 @@ func (p *Pipeline) save(st store.Study, rep *Report, started time.Time) bool {
 		}
 	}
 	if ok {
-		p.clear(st, started)
+		p.clear(st, seen)
 	}
 	return ok
 }
 
 // saveFailed stores an audit-failed audit for every series of the study.
-func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
+func (p *Pipeline) saveFailed(st store.Study, msg string, seen map[string]time.Time) {
 	at := p.now()
 	ok := true
 	for _, se := range st.Series {
@@ -430,7 +435,7 @@ func (p *Pipeline) saveFailed(st store.Study, msg string, started time.Time) {
 		}
 	}
 	if ok {
-		p.clear(st, started)
+		p.clear(st, seen)
 	}
 }
 
@@ -450,10 +455,15 @@ func (p *Pipeline) Backlog() int {
 }
 
 // clear takes the study's series off the pending list unless an
-// instance arrived after the audit listed the files.
-func (p *Pipeline) clear(st store.Study, started time.Time) {
+// instance of it was committed after those the audit listed (seen). A
+// series whose instances the audit could not list stays pending.
+func (p *Pipeline) clear(st store.Study, seen map[string]time.Time) {
 	for _, se := range st.Series {
-		if err := p.Store.ClearPending(se.SeriesInstanceUID, started); err != nil {
+		upTo, ok := seen[se.SeriesInstanceUID]
+		if !ok {
+			continue
+		}
+		if err := p.Store.ClearPending(se.SeriesInstanceUID, upTo); err != nil {
 			p.log().Warn("clearing a pending series failed", "series", se.SeriesInstanceUID, "err", err)
 		}
 	}

@@ -23,6 +23,7 @@ type memStore struct {
 	study     string
 	series    map[string][]string // series UID -> paths relative to dir
 	pending   map[string]store.PendingSeries
+	received  map[string]time.Time // path -> receive time
 	audits    []store.AuditRecord
 	saved     chan store.AuditRecord
 	failStudy bool
@@ -30,17 +31,23 @@ type memStore struct {
 }
 
 func newMemStore(dir, study string) *memStore {
-	return &memStore{dir: dir, study: study, series: map[string][]string{}, pending: map[string]store.PendingSeries{},
+	return &memStore{dir: dir, study: study, series: map[string][]string{}, pending: map[string]store.PendingSeries{}, received: map[string]time.Time{},
 		saved: make(chan store.AuditRecord, 64)}
 }
 
+// receive stores files of a series as the real store's Put does: each
+// instance gets a receive time, and the series is marked pending in the
+// same step (store.linkVersion).
 func (m *memStore) receive(series string, paths []string) {
 	m.mu.Lock()
-	defer m.mu.Unlock()
+	at := time.Now()
 	for _, p := range paths {
 		rel, _ := filepath.Rel(m.dir, p)
 		m.series[series] = append(m.series[series], filepath.ToSlash(rel))
+		m.received[rel] = at
 	}
+	m.mu.Unlock()
+	m.MarkPending(series, m.study, at)
 }
 
 func (m *memStore) MarkPending(series, study string, at time.Time) error {
@@ -111,7 +118,7 @@ func (m *memStore) Instances(series string) ([]store.Instance, error) {
 	}
 	var out []store.Instance
 	for _, p := range m.series[series] {
-		out = append(out, store.Instance{SeriesInstanceUID: series, Path: p})
+		out = append(out, store.Instance{SeriesInstanceUID: series, Path: p, ReceivedAt: m.received[filepath.FromSlash(p)]})
 	}
 	return out, nil
 }
@@ -211,10 +218,7 @@ func TestAPipelineStartRequeuesWhatWasPending(t *testing.T) {
 	m := newMemStore(dir, st.StudyUID)
 	var dwiUID string
 	for _, s := range st.Series {
-		m.receive(s.UID, s.Files)
-		if err := m.MarkPending(s.UID, st.StudyUID, time.Now()); err != nil {
-			t.Fatal(err)
-		}
+		m.receive(s.UID, s.Files) // marks the series pending, as store.Put does
 		dwiUID = s.UID
 	}
 	startPipeline(t, m, 50*time.Millisecond)

@@ -94,24 +94,35 @@ func (s *Store) auditUpdate(fn func(tx *bolt.Tx) error) error {
 
 // MarkPending records that an instance of the series was committed at
 // at: the series waits for an audit. An older time than the one recorded
-// changes nothing.
+// changes nothing. Put and Reconcile mark the series of every instance
+// they index in the same transaction (linkVersion), so a caller needs
+// this only for series the store did not receive itself.
 func (s *Store) MarkPending(seriesUID, studyUID string, at time.Time) error {
 	return s.auditUpdate(func(tx *bolt.Tx) error {
-		b := tx.Bucket(bucketAuditPending)
-		var r pendingRecord
-		found, err := getJSON(b, []byte(seriesUID), &r)
-		if err != nil {
-			return err
-		}
-		if found && !at.After(r.Last) && r.Study == studyUID {
-			return nil
-		}
-		if !found || at.After(r.Last) {
-			r.Last = at.UTC()
-		}
-		r.Study = studyUID
-		return putJSON(b, []byte(seriesUID), r)
+		return markPending(tx, seriesUID, studyUID, at)
 	})
+}
+
+// markPending is MarkPending inside a write transaction, creating the
+// bucket when missing.
+func markPending(tx *bolt.Tx, seriesUID, studyUID string, at time.Time) error {
+	b, err := tx.CreateBucketIfNotExists(bucketAuditPending)
+	if err != nil {
+		return fmt.Errorf("store: creating bucket %s: %w", bucketAuditPending, err)
+	}
+	var r pendingRecord
+	found, err := getJSON(b, []byte(seriesUID), &r)
+	if err != nil {
+		return err
+	}
+	if found && !at.After(r.Last) && r.Study == studyUID {
+		return nil
+	}
+	if !found || at.After(r.Last) {
+		r.Last = at.UTC()
+	}
+	r.Study = studyUID
+	return putJSON(b, []byte(seriesUID), r)
 }
 
 // Pending lists the series waiting for an audit, oldest last instance
@@ -142,14 +153,17 @@ func (s *Store) Pending() ([]PendingSeries, error) {
 }
 
 // ClearPending takes the series off the pending list if no instance of
-// it was committed after auditedAt (when the audit listed its files); a
-// later instance keeps it pending, for another audit.
-func (s *Store) ClearPending(seriesUID string, auditedAt time.Time) error {
+// it was committed after seenUpTo: the newest Instance.ReceivedAt among
+// the instances the audit read. The pending mark carries the same
+// ReceivedAt (linkVersion), so an instance committed while the audit
+// listed the files, seen or not, is judged exactly: one the audit did not
+// see keeps the series pending, for another audit.
+func (s *Store) ClearPending(seriesUID string, seenUpTo time.Time) error {
 	return s.auditUpdate(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketAuditPending)
 		var r pendingRecord
 		found, err := getJSON(b, []byte(seriesUID), &r)
-		if err != nil || !found || r.Last.After(auditedAt) {
+		if err != nil || !found || r.Last.After(seenUpTo) {
 			return err
 		}
 		return b.Delete([]byte(seriesUID))

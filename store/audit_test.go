@@ -2,6 +2,8 @@ package store
 
 import (
 	"encoding/json"
+	"os"
+	"path/filepath"
 	"testing"
 	"time"
 )
@@ -78,5 +80,72 @@ func TestANewAuditReplacesTheCurrentFindingsAndKeepsTheHistory(t *testing.T) {
 	}
 	if _, err := s.Findings("2025-3-4"); err == nil {
 		t.Error("Findings accepted a day not in YYYY-MM-DD")
+	}
+}
+
+func TestPutMarksItsSeriesPendingInTheSameCommit(t *testing.T) {
+	clock := newTestClock(time.Date(2025, 3, 4, 9, 30, 0, 0, time.UTC))
+	s, opts := newTestStore(t, func(o *Options) { o.Now = clock.Now })
+	a := testInstance{SOP: uid(40, 1), Payload: 500}
+	mustPut(t, s, a)
+	in, err := s.Instance(a.SOP)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pend, err := s.Pending()
+	if err != nil || len(pend) != 1 || pend[0].SeriesInstanceUID != in.SeriesInstanceUID ||
+		pend[0].StudyInstanceUID != in.StudyInstanceUID || !pend[0].LastInstance.Equal(in.ReceivedAt) {
+		t.Fatalf("Pending after Put = %+v, %v; want the series at its instance's receive time %v", pend, err, in.ReceivedAt)
+	}
+
+	t.Run("an audit that saw an instance up to its receive time clears the series", func(t *testing.T) {
+		if err := s.ClearPending(in.SeriesInstanceUID, in.ReceivedAt); err != nil {
+			t.Fatal(err)
+		}
+		if pend, _ := s.Pending(); len(pend) != 0 {
+			t.Errorf("Pending = %+v, want none", pend)
+		}
+	})
+	t.Run("an identical duplicate changes nothing to audit", func(t *testing.T) {
+		clock.Advance(time.Minute)
+		if ref := mustPut(t, s, a); ref.Duplicate != DupIdentical {
+			t.Fatalf("Duplicate = %v, want identical", ref.Duplicate)
+		}
+		if pend, _ := s.Pending(); len(pend) != 0 {
+			t.Errorf("Pending = %+v after an identical duplicate, want none", pend)
+		}
+	})
+	t.Run("an instance committed after those an audit saw keeps the series pending", func(t *testing.T) {
+		clock.Advance(time.Minute)
+		mustPut(t, s, testInstance{SOP: uid(40, 2), Payload: 500})
+		if err := s.ClearPending(in.SeriesInstanceUID, in.ReceivedAt); err != nil {
+			t.Fatal(err)
+		}
+		if pend, _ := s.Pending(); len(pend) != 1 {
+			t.Errorf("Pending = %+v, want the series still pending", pend)
+		}
+	})
+	t.Run("the mark survives a reopen", func(t *testing.T) {
+		s = reopen(t, s, opts)
+		if pend, _ := s.Pending(); len(pend) != 1 || pend[0].SeriesInstanceUID != in.SeriesInstanceUID {
+			t.Errorf("Pending after reopen = %+v", pend)
+		}
+	})
+}
+
+func TestReconcileMarksTheSeriesOfAReindexedFilePending(t *testing.T) {
+	s, opts := newTestStore(t, func(o *Options) { o.Describe = describeAny })
+	ti := testInstance{SOP: uid(41, 1), Study: uid(41), Series: uid(41, 5), Payload: 800}
+	abs := filepath.Join(opts.Dir, "instances", ti.Study, ti.Series, ti.SOP+".dcm")
+	if err := os.MkdirAll(filepath.Dir(abs), 0o700); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(abs, handMadePart10(ti), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	s = reopen(t, s, opts)
+	pend, err := s.Pending()
+	if err != nil || len(pend) != 1 || pend[0].SeriesInstanceUID != ti.Series || pend[0].StudyInstanceUID != ti.Study {
+		t.Errorf("Pending = %+v, %v; want series %s of a file indexed at start, never audited", pend, err, ti.Series)
 	}
 }

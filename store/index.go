@@ -262,9 +262,14 @@ func checkSchema(tx *bolt.Tx) error {
 
 // linkVersion updates the series and study records and the link and time
 // indexes for nv, a version of sop that became current, replacing prev
-// (nil for a first version). It does no file I/O: it runs inside the
-// committer's write transaction.
+// (nil for a first version), and marks its series pending for an audit
+// as of nv.ReceivedAt (in the same transaction: no second commit per
+// instance on the C-STORE's path). It does no file I/O: it runs inside
+// the committer's write transaction.
 func linkVersion(tx *bolt.Tx, sop string, prev, nv *versionRecord, a Attributes) error {
+	if err := markPending(tx, nv.SeriesInstanceUID, nv.StudyInstanceUID, nv.ReceivedAt); err != nil {
+		return err
+	}
 	seriesB := tx.Bucket(bucketSeries)
 	links := tx.Bucket(bucketSeriesInstances)
 	moved := prev != nil && prev.SeriesInstanceUID != nv.SeriesInstanceUID

@@ -67,9 +67,8 @@ func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
 	if err != nil || (h.audit == nil && h.metrics == nil) {
 		return storeStatus(err)
 	}
-	// The time is taken after the commit, so that an audit that listed
-	// the series' files before it cannot take the series off the
-	// pending list (store.ClearPending).
+	// The store marked the series pending in the commit itself; the
+	// pipeline only (re)starts its study's settle timer.
 	at := time.Now()
 	in, lerr := h.instances.Instance(ref.SOPInstanceUID)
 	if lerr == nil && h.audit != nil && ref.Duplicate != store.DupIdentical {
