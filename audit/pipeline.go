@@ -7,13 +7,13 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
-	"math"
 	"path/filepath"
 	"runtime/debug"
 	"slices"
 	"sync"
 	"time"
 
+	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 )
@@ -505,35 +505,10 @@ func findingsJSON(fs []rules.Finding) json.RawMessage {
 	return b
 }
 
-// seriesMeasures is how a series' measures are stored: ADC in mm²/s,
-// null where undefined.
-type seriesMeasures struct {
-	SeriesNumber           int       `json:"series_number"`
-	SeriesDescription      string    `json:"series_description"`
-	Protocol               string    `json:"protocol"`
-	BValues                []float64 `json:"bvalues"`
-	TissueADCMedian        *float64  `json:"tissue_adc_median"`
-	CSFADC                 *float64  `json:"csf_adc"`
-	B0SNR                  *float64  `json:"b0_snr"`
-	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
-	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
-	FractionNegative       *float64  `json:"fraction_negative"`
-	CannotCompute          string    `json:"cannot_compute,omitempty"`
-	// PhantomADC is the central-region ADC of a phantom series and
-	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
-	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
-	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
-}
-
 func measuresJSON(r *SeriesReport) json.RawMessage {
-	fin := func(v float64) *float64 {
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil
-		}
-		return &v
-	}
+	fin := record.Finite
 	m := r.Measures
-	b, err := json.Marshal(seriesMeasures{
+	b, err := json.Marshal(record.Measures{
 		SeriesNumber:           r.SeriesNumber,
 		SeriesDescription:      r.SeriesDescription,
 		Protocol:               r.Protocol,

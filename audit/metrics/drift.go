@@ -7,6 +7,7 @@ import (
 
 	"github.com/prometheus/client_golang/prometheus"
 
+	"dwiaudit/audit/record"
 	"dwiaudit/store"
 )
 
@@ -19,19 +20,6 @@ const mm2PerSecond = 1e-6
 type storedFinding struct {
 	Rule     string `json:"rule"`
 	Severity string `json:"severity"`
-}
-
-// storedMeasures is the part of a series' stored measures
-// (audit/pipeline.go seriesMeasures; ADC in mm²/s, null where
-// undefined) the drift gauges read. Nothing here identifies a patient
-// or an instance.
-type storedMeasures struct {
-	Protocol           string   `json:"protocol"`
-	TissueADCMedian    *float64 `json:"tissue_adc_median"`
-	CSFADC             *float64 `json:"csf_adc"`
-	B0SNR              *float64 `json:"b0_snr"`
-	PhantomADC         *float64 `json:"phantom_adc"`
-	PhantomExpectedADC *float64 `json:"phantom_expected_adc"`
 }
 
 // drift holds the per-scanner gauges of the latest audited series. Each
@@ -142,8 +130,8 @@ func (m *Metrics) observeDrift(scanner string, rec store.AuditRecord) {
 	if rec.TestPatient || len(rec.Measures) == 0 {
 		return
 	}
-	var ms storedMeasures
-	if err := json.Unmarshal(rec.Measures, &ms); err != nil {
+	ms, _, err := record.DecodeMeasures(rec.Measures)
+	if err != nil {
 		m.log.Warn("metrics: the measures of an audit are not readable; gauges unchanged", "err", err)
 		return
 	}

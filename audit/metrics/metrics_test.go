@@ -18,6 +18,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/testutil"
 
 	"dwiaudit/audit/metrics"
+	stored "dwiaudit/audit/record"
 	"dwiaudit/store"
 )
 
@@ -57,18 +58,8 @@ type finding struct {
 }
 
 // measures is a series' stored measures as audit/pipeline.go writes
-// them (seriesMeasures), ADC in mm²/s.
-type measures struct {
-	SeriesNumber       int       `json:"series_number"`
-	SeriesDescription  string    `json:"series_description"`
-	Protocol           string    `json:"protocol"`
-	BValues            []float64 `json:"bvalues"`
-	TissueADCMedian    *float64  `json:"tissue_adc_median"`
-	CSFADC             *float64  `json:"csf_adc"`
-	B0SNR              *float64  `json:"b0_snr"`
-	PhantomADC         *float64  `json:"phantom_adc,omitempty"`
-	PhantomExpectedADC *float64  `json:"phantom_expected_adc,omitempty"`
-}
+// them, ADC in mm²/s.
+type measures = stored.Measures
 
 func num(v float64) *float64 { return &v }
 

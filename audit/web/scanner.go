@@ -4,13 +4,14 @@ package web
 // parenchyma ADC, CSF ADC and phantom central ADC over time.
 
 import (
-	"encoding/json"
 	"fmt"
 	"net/http"
 	"net/url"
 	"slices"
 	"strconv"
 	"time"
+
+	"dwiaudit/audit/record"
 )
 
 // scannerLink is one scanner on /scanners.
@@ -118,13 +119,13 @@ func (h *Handler) scanner(w http.ResponseWriter, r *http.Request) {
 			v.TestLeft++ // trends are of the department's studies
 			continue
 		}
-		if len(a.Measures) == 0 || string(a.Measures) == "null" {
-			continue
-		}
-		var m Measures
-		if err := json.Unmarshal(a.Measures, &m); err != nil {
+		m, ok, err := record.DecodeMeasures(a.Measures)
+		if err != nil {
 			h.storeFailed(w, "scanner", fmt.Errorf("web: measures of a series: %w", err))
 			return
+		}
+		if !ok {
+			continue
 		}
 		at, ok := studyDateTime(a.StudyDate, a.StudyTime, loc)
 		row := trendRow{FromAudit: !ok, Link: seriesLink(a.StudyInstanceUID, a.SeriesUID),

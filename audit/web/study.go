@@ -10,27 +10,10 @@ import (
 	"strconv"
 	"strings"
 
+	"dwiaudit/audit/record"
 	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 )
-
-// Measures is how the audit stores a series' measures (audit/pipeline.go
-// seriesMeasures): ADC in mm²/s, null where undefined.
-type Measures struct {
-	SeriesNumber           int       `json:"series_number"`
-	SeriesDescription      string    `json:"series_description"`
-	Protocol               string    `json:"protocol"`
-	BValues                []float64 `json:"bvalues"`
-	TissueADCMedian        *float64  `json:"tissue_adc_median"`
-	CSFADC                 *float64  `json:"csf_adc"`
-	B0SNR                  *float64  `json:"b0_snr"`
-	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
-	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
-	FractionNegative       *float64  `json:"fraction_negative"`
-	CannotCompute          string    `json:"cannot_compute"`
-	PhantomADC             *float64  `json:"phantom_adc"`
-	PhantomExpectedADC     *float64  `json:"phantom_expected_adc"`
-}
 
 // storedFinding is the part of a stored rules.Finding the page shows;
 // values stay JSON for report.Value, and a severity this version does
@@ -156,12 +139,12 @@ func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.Raw
 			return fmt.Errorf("web: findings of a series: %w", err)
 		}
 	}
-	var m *Measures
-	if len(measuresJSON) > 0 && string(measuresJSON) != "null" {
-		m = &Measures{}
-		if err := json.Unmarshal(measuresJSON, m); err != nil {
-			return fmt.Errorf("web: measures of a series: %w", err)
-		}
+	var m *record.Measures
+	switch ms, ok, err := record.DecodeMeasures(measuresJSON); {
+	case err != nil:
+		return fmt.Errorf("web: measures of a series: %w", err)
+	case ok:
+		m = &ms
 	}
 	previewSlice := -1
 	worst := 0

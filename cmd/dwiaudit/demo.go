@@ -477,11 +477,11 @@ func (d *demo) results() map[int]*studyResult {
 					r.worst, r.hasWorst = f.Severity, true
 				}
 			}
-			if v, ok := a.measures["phantom_adc"].(float64); ok {
-				r.phantom = &v
+			if a.measures.PhantomADC != nil {
+				r.phantom = a.measures.PhantomADC
 			}
-			if v, ok := a.measures["phantom_expected_adc"].(float64); ok {
-				r.expected = &v
+			if a.measures.PhantomExpectedADC != nil {
+				r.expected = a.measures.PhantomExpectedADC
 			}
 		}
 	}

@@ -18,6 +18,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 	"dwiaudit/scp/part10"
@@ -196,7 +197,7 @@ func sendStudies(ctx context.Context, d *scp.Dialer, addr string, dirs []string)
 type auditView struct {
 	AuditJSON
 	findings []rules.Finding
-	measures map[string]any
+	measures record.Measures // zero when the audit stored none
 }
 
 // worst is the highest severity among the findings, and whether there
@@ -261,7 +262,10 @@ func (c *findingsClient) day(ctx context.Context, day string) (string, []auditVi
 		if err := json.Unmarshal(a.Findings, &v.findings); err != nil {
 			return "", nil, fmt.Errorf("findings of series %s: %w", a.SeriesUID, err)
 		}
-		json.Unmarshal(a.Measures, &v.measures) // null stays nil
+		var err error
+		if v.measures, _, err = record.DecodeMeasures(a.Measures); err != nil {
+			return "", nil, fmt.Errorf("measures of series %s: %w", a.SeriesUID, err)
+		}
 		out = append(out, v)
 	}
 	return body.Day, out, nil

@@ -1,0 +1,47 @@
+package record
+
+import (
+	"encoding/json"
+	"math"
+)
+
+// Measures is a series' measures as stored: ADC in mm²/s, SNR as a
+// ratio, shares as fractions; a nil pointer is a measure that is
+// undefined (not computed, or not finite).
+type Measures struct {
+	SeriesNumber           int       `json:"series_number"`
+	SeriesDescription      string    `json:"series_description"`
+	Protocol               string    `json:"protocol"` // the protocol or phantom profile matched; "" when none
+	BValues                []float64 `json:"bvalues"`
+	TissueADCMedian        *float64  `json:"tissue_adc_median"`
+	CSFADC                 *float64  `json:"csf_adc"`
+	B0SNR                  *float64  `json:"b0_snr"`
+	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
+	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
+	FractionNegative       *float64  `json:"fraction_negative"`
+	CannotCompute          string    `json:"cannot_compute,omitempty"`
+	// PhantomADC is the central-region ADC of a phantom series and
+	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
+	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
+	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
+}
+
+// Finite returns a pointer to v, or nil when v is NaN or infinite (JSON
+// cannot hold those; the reader sees an undefined measure).
+func Finite(v float64) *float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	return &v
+}
+
+// DecodeMeasures reads stored measures; empty or "null" gives ok false.
+func DecodeMeasures(raw json.RawMessage) (m Measures, ok bool, err error) {
+	if len(raw) == 0 || string(raw) == "null" {
+		return Measures{}, false, nil
+	}
+	if err := json.Unmarshal(raw, &m); err != nil {
+		return Measures{}, false, err
+	}
+	return m, true, nil
+}
