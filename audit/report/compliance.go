@@ -210,7 +210,7 @@ func count(src ComplianceSource, first time.Time, days int) (*tally, error) {
 				t.studies[rec.StudyInstanceUID] = overall
 			}
 			for _, f := range fs {
-				if severityRank(f.Severity) >= severityRank("warning") {
+				if SeverityRank(f.Severity) >= SeverityRank("warning") {
 					inGroup[f.Rule] = true
 					overall[f.Rule] = true
 				}

@@ -207,7 +207,7 @@ func (b *Builder) Daily(day string) (*DailyList, error) {
 func SortRows(rows []Row) {
 	sort.SliceStable(rows, func(i, j int) bool {
 		a, c := rows[i], rows[j]
-		if ra, rc := severityRank(a.Severity), severityRank(c.Severity); ra != rc {
+		if ra, rc := SeverityRank(a.Severity), SeverityRank(c.Severity); ra != rc {
 			return ra > rc
 		}
 		if !a.AuditTime.Equal(c.AuditTime) {
@@ -226,8 +226,9 @@ func SortRows(rows []Row) {
 	})
 }
 
-// severityRank orders severities; an unknown one sorts after info.
-func severityRank(s string) int {
+// SeverityRank orders the severity names of stored findings: error 3,
+// warning 2, info 1; an unknown one 0, after info.
+func SeverityRank(s string) int {
 	switch s {
 	case "error":
 		return 3

@@ -27,19 +27,6 @@ type storedFinding struct {
 	Region   *rules.Region   `json:"region"`
 }
 
-// severityRank orders severities for the series' headline.
-func severityRank(s string) int {
-	switch s {
-	case "error":
-		return 3
-	case "warning":
-		return 2
-	case "info":
-		return 1
-	}
-	return 0
-}
-
 // measureView is one measure as a row of the series' table.
 type measureView struct {
 	Name, Value string
@@ -160,7 +147,7 @@ func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.Raw
 				previewSlice = f.Region.Slices[0]
 			}
 		}
-		if r := severityRank(f.Severity); r > worst {
+		if r := report.SeverityRank(f.Severity); r > worst {
 			worst, sv.Worst = r, f.Severity
 		}
 		sv.Findings = append(sv.Findings, fv)
