@@ -157,14 +157,41 @@ func demoScenario() []demoStudy {
 	}
 }
 
-// demoClock is the node's clock during the demo: the real time, a whole
-// number of days back, so that the node receives and audits each
-// scenario day's studies on that day.
+// demoClock is the node's clock during the demo. While the scenario
+// runs it is a whole number of days back from the day the demo started,
+// at a time of day that leaves the scenario far from midnight (the real
+// time of day, at the latest demoLatestHour), moving on with the real
+// clock: each scenario day's studies are received and audited on that
+// day even if the real midnight passes meanwhile. Once the scenario is
+// done (live) it is the real clock, for whatever the node receives next.
 type demoClock struct {
 	daysBack atomic.Int64
+	live     atomic.Bool
+	origin   time.Time // the scenario's first instant, on the demo's start day (set by begin)
+	began    time.Time // the real time begin was called: the clock moves on from origin with it
 }
 
-func (c *demoClock) Now() time.Time { return time.Now().AddDate(0, 0, -int(c.daysBack.Load())) }
+// demoLatestHour is the latest hour of the day the scenario clock starts
+// at: the demo takes well under a minute, so it stays before midnight.
+const demoLatestHour = 22
+
+// begin anchors the scenario clock at now (the real time, or a test's),
+// in loc.
+func (c *demoClock) begin(now time.Time, loc *time.Location) {
+	now = now.In(loc)
+	c.began, c.origin = time.Now(), now
+	if now.Hour() >= demoLatestHour {
+		y, m, d := now.Date()
+		c.origin = time.Date(y, m, d, demoLatestHour, 0, 0, 0, loc)
+	}
+}
+
+func (c *demoClock) Now() time.Time {
+	if c.live.Load() {
+		return time.Now()
+	}
+	return c.origin.Add(time.Since(c.began)).AddDate(0, 0, -int(c.daysBack.Load()))
+}
 
 func runDemo(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "demo", "[--data DIR] [--exit] [--http HOST:PORT]")
@@ -265,6 +292,7 @@ func (d *demo) run(ctx context.Context, exit, keepData bool) int {
 	defer stopNode()
 	pr, pw := io.Pipe()
 	nodeEnv := &cliEnv{stdout: pw, stderr: d.env.stderr, now: d.clock.Now}
+	d.clock.begin(time.Now(), d.loc)
 	d.clock.daysBack.Store(demoDays - 1)
 	nodeDone := make(chan int, 1)
 	go func() {
@@ -302,6 +330,7 @@ func (d *demo) run(ctx context.Context, exit, keepData bool) int {
 			return exitFailure
 		}
 	}
+	d.clock.live.Store(true)
 	ok := d.printSummary(w)
 	fmt.Fprintf(w, "\nthe whole scenario took %v\n", time.Since(start).Round(100*time.Millisecond))
 	fmt.Fprintln(w, cautionLine)
