@@ -6,6 +6,7 @@ import (
 	"sort"
 	"time"
 
+	"dwiaudit/audit/record"
 	"dwiaudit/store"
 )
 
@@ -184,11 +185,9 @@ func count(src ComplianceSource, first time.Time, days int) (*tally, error) {
 				t.tests[rec.StudyInstanceUID] = true
 				continue
 			}
-			var m measures
-			if len(rec.Measures) > 0 {
-				if err := json.Unmarshal(rec.Measures, &m); err != nil {
-					return nil, fmt.Errorf("%w: measures of an audit of %s: %v", ErrBadRecord, day, err)
-				}
+			m, _, err := record.DecodeMeasures(rec.Measures)
+			if err != nil {
+				return nil, fmt.Errorf("%w: measures of an audit of %s: %v", ErrBadRecord, day, err)
 			}
 			var fs []finding
 			if err := json.Unmarshal(rec.Findings, &fs); err != nil {

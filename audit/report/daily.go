@@ -98,13 +98,6 @@ type finding struct {
 	Expected          json.RawMessage `json:"expected"`
 }
 
-// measures is the part of the stored series measures the reports read.
-type measures struct {
-	SeriesNumber      int    `json:"series_number"`
-	SeriesDescription string `json:"series_description"`
-	Protocol          string `json:"protocol"`
-}
-
 func (b *Builder) loc() *time.Location {
 	if b.Location != nil {
 		return b.Location
