@@ -232,24 +232,35 @@ func (s *Store) Findings(day string) ([]AuditRecord, error) {
 	from, to := d, d.AddDate(0, 0, 1) // a calendar day, 23 or 25 hours at a DST change
 	var out []AuditRecord
 	err = s.view(func(tx *bolt.Tx) error {
-		times, audits := tx.Bucket(bucketAuditTimes), tx.Bucket(bucketAudits)
-		if times == nil || audits == nil {
+		return s.currentAudits(tx, from, to, func(rec *AuditRecord) error {
+			out = append(out, *rec)
 			return nil
-		}
-		end := receivedTimeKey(to)
-		c := times.Cursor()
-		for k, v := c.Seek(receivedTimeKey(from)); k != nil && bytes.Compare(k, end) < 0; k, v = c.Next() {
-			rec, err := s.auditAt(audits, v)
-			if err != nil {
-				return err
-			}
-			if rec != nil {
-				out = append(out, *rec)
-			}
-		}
-		return nil
+		})
 	})
 	return out, err
+}
+
+// currentAudits calls fn for every current audit whose audit time lies
+// in [from, to), oldest first, walking the audit-time index.
+func (s *Store) currentAudits(tx *bolt.Tx, from, to time.Time, fn func(*AuditRecord) error) error {
+	times, audits := tx.Bucket(bucketAuditTimes), tx.Bucket(bucketAudits)
+	if times == nil || audits == nil {
+		return nil
+	}
+	end := receivedTimeKey(to)
+	c := times.Cursor()
+	for k, v := c.Seek(receivedTimeKey(from)); k != nil && bytes.Compare(k, end) < 0; k, v = c.Next() {
+		rec, err := s.auditAt(audits, v)
+		if err != nil {
+			return err
+		}
+		if rec != nil {
+			if err := fn(rec); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
 }
 
 // SeriesAudits lists every audit of a series, oldest first; the last is

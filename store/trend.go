@@ -6,7 +6,6 @@ package store
 // which holds the current audit of every audited series.
 
 import (
-	"bytes"
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
@@ -39,21 +38,8 @@ func (s *Store) ScannerAudits(label string, from, to time.Time) ([]TrendAudit, e
 	}
 	var out []TrendAudit
 	err := s.view(func(tx *bolt.Tx) error {
-		times, audits := tx.Bucket(bucketAuditTimes), tx.Bucket(bucketAudits)
-		if times == nil || audits == nil {
-			return nil
-		}
 		studies := map[string]*studyRecord{}
-		end := receivedTimeKey(to)
-		c := times.Cursor()
-		for k, v := c.Seek(receivedTimeKey(from)); k != nil && bytes.Compare(k, end) < 0; k, v = c.Next() {
-			rec, err := s.auditAt(audits, v)
-			if err != nil {
-				return err
-			}
-			if rec == nil {
-				continue
-			}
+		return s.currentAudits(tx, from, to, func(rec *AuditRecord) error {
 			scanner := rec.Scanner
 			se, err := getSeries(tx, rec.SeriesUID)
 			if err != nil {
@@ -63,7 +49,7 @@ func (s *Store) ScannerAudits(label string, from, to time.Time) ([]TrendAudit, e
 				scanner = se.ScannerLabel
 			}
 			if scanner != label {
-				continue
+				return nil
 			}
 			st, seen := studies[rec.StudyInstanceUID]
 			if !seen {
@@ -77,8 +63,8 @@ func (s *Store) ScannerAudits(label string, from, to time.Time) ([]TrendAudit, e
 				ta.StudyDate, ta.StudyTime = st.StudyDate, st.StudyTime
 			}
 			out = append(out, ta)
-		}
-		return nil
+			return nil
+		})
 	})
 	return out, err
 }
