@@ -411,7 +411,7 @@ func TestAPanickingRuleIsLoggedWithoutPatientData(t *testing.T) {
 		t.Errorf("log lacks the panic:\n%s", logs.String())
 	}
 	// The phantom's invented patient (phantom.Options defaults).
-	if strings.Contains(logs.String(), "SYNTHETIC^CASE") || strings.Contains(logs.String(), "HGH-SYN-0001") {
+	if strings.Contains(logs.String(), "SYNTHETIC^CASE") || strings.Contains(logs.String(), "QOH-SYN-0001") {
 		t.Error("the log carries patient identifiers")
 	}
 }

@@ -40,7 +40,7 @@ func newPipelineMetrics(p *audit.Pipeline) *metrics.Metrics {
 		ids = append(ids, r.ID())
 	}
 	return metrics.New(metrics.Options{
-		Labels:        metrics.NewLabels([]string{"hgh-mr1"}, protocols, phantoms, append(ids, rules.IDAuditFailed)),
+		Labels:        metrics.NewLabels([]string{"qoh-mr1"}, protocols, phantoms, append(ids, rules.IDAuditFailed)),
 		QueuedStudies: p.Backlog,
 	})
 }
@@ -82,21 +82,21 @@ func TestThePipelineFeedsTheMetricsAndLeavesTestPatientsOutOfTheDrift(t *testing
 		// DOMAIN.md (Helenius 2002): white matter 0.70e-3, cortex
 		// 0.89e-3 mm²/s; the parenchyma median lies between.
 		{"a brain series sets its scanner's parenchyma ADC", phantom.Options{Matrix: 32, Slices: 4}, false,
-			"dwiaudit_series_parenchyma_adc_square_meters_per_second", "protocol=brain,scanner=hgh-mr1", 0.70e-9, 0.89e-9},
+			"dwiaudit_series_parenchyma_adc_square_meters_per_second", "protocol=brain,scanner=qoh-mr1", 0.70e-9, 0.89e-9},
 		{"a test patient's brain series sets nothing", phantom.Options{Matrix: 32, Slices: 4}, true,
 			"dwiaudit_series_parenchyma_adc_square_meters_per_second", "", 0, 0},
 		// The phantom truth (audit/phantom cases.go): water at 4 °C,
 		// 1.26e-3 mm²/s, against the profile's 1.10e-3 at 0 °C (QIBA,
 		// DOMAIN.md): about 15% high, far past the 3.6% tolerance.
 		{"a warm ice-water phantom shows its bias", phantom.Options{Case: phantom.CaseIceWaterWarm, Matrix: 32, Slices: 4}, false,
-			"dwiaudit_phantom_adc_bias_ratio", "phantom=ice water,scanner=hgh-mr1", 0.10, 0.20},
+			"dwiaudit_phantom_adc_bias_ratio", "phantom=ice water,scanner=qoh-mr1", 0.10, 0.20},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			dir := t.TempDir()
 			st := writeStudy(t, dir, tt.opt)
 			m := newMemStore(dir, st.StudyUID)
-			m.patientID = "HGH-SYN-0001"
+			m.patientID = "QOH-SYN-0001"
 			p := &audit.Pipeline{Engine: newEngine(), Store: m, Settle: 20 * time.Millisecond, Workers: 1}
 			if tt.testPatient {
 				p.TestPatientIDs = []string{m.patientID}
@@ -212,7 +212,7 @@ dwiaudit_audits_total{result="ok"} 0
 	}
 	got := gathered(t, met, "dwiaudit_findings_total")
 	sev := rules.AuditFailed(nil, "").Severity.String()
-	if got["rule=audit-failed,scanner=hgh-mr1,severity="+sev] != 1 || len(got) != 1 {
-		t.Errorf("findings_total = %v, want one audit-failed %s on hgh-mr1", got, sev)
+	if got["rule=audit-failed,scanner=qoh-mr1,severity="+sev] != 1 || len(got) != 1 {
+		t.Errorf("findings_total = %v, want one audit-failed %s on qoh-mr1", got, sev)
 	}
 }

@@ -92,9 +92,9 @@ func (m *memStore) Study(uid string) (store.Study, error) {
 	if uid != m.study {
 		return store.Study{}, store.ErrNotFound
 	}
-	st := store.Study{StudyInstanceUID: uid, AccessionNumber: "HGH0001", PatientID: m.patientID}
+	st := store.Study{StudyInstanceUID: uid, AccessionNumber: "QOH0001", PatientID: m.patientID}
 	for s := range m.series {
-		st.Series = append(st.Series, store.Series{SeriesInstanceUID: s, StudyInstanceUID: uid, ScannerLabel: "hgh-mr1"})
+		st.Series = append(st.Series, store.Series{SeriesInstanceUID: s, StudyInstanceUID: uid, ScannerLabel: "qoh-mr1"})
 	}
 	slices.SortFunc(st.Series, func(a, b store.Series) int { return cmpString(a.SeriesInstanceUID, b.SeriesInstanceUID) })
 	return st, nil
@@ -190,12 +190,12 @@ func TestALateSeriesReopensTheStudyAndTheNewAuditReplacesTheOld(t *testing.T) {
 	if got := rulesOf(t, first); !slices.Contains(got, rules.IDMissingB0) {
 		t.Fatalf("first audit found %v, want missing-b0 (no b0 received yet)", got)
 	}
-	if first.Scanner != "hgh-mr1" || first.AccessionNumber != "HGH0001" || first.StudyInstanceUID != st.StudyUID || len(first.Measures) == 0 {
+	if first.Scanner != "qoh-mr1" || first.AccessionNumber != "QOH0001" || first.StudyInstanceUID != st.StudyUID || len(first.Measures) == 0 {
 		t.Errorf("first audit %+v lacks the store's scanner label, accession number, study UID or measures", first)
 	}
 	var fs []rules.Finding
-	if err := json.Unmarshal(first.Findings, &fs); err != nil || len(fs) == 0 || fs[0].Scanner != "hgh-mr1" {
-		t.Errorf("first audit's findings %s do not carry the store's scanner label hgh-mr1 (err %v)", first.Findings, err)
+	if err := json.Unmarshal(first.Findings, &fs); err != nil || len(fs) == 0 || fs[0].Scanner != "qoh-mr1" {
+		t.Errorf("first audit's findings %s do not carry the store's scanner label qoh-mr1 (err %v)", first.Findings, err)
 	}
 
 	m.receive(b0.UID, b0.Files)

@@ -41,7 +41,7 @@ func unitVolume(grid []float64, b float64, dir dwi.Direction, missing ...int) *d
 // would.
 func unitSeries(desc string, grid []float64, vols ...*dwi.Volume) *dwi.Series {
 	s := &dwi.Series{StudyInstanceUID: "1.2.3", SeriesInstanceUID: "1.2.3.4", SeriesNumber: 7, SeriesDescription: desc,
-		Scanner: dwi.Scanner{Label: "HGH-MR1"}, Grid: grid, Normal: [3]float64{0, 0, 1}, Reference: unitGeometry(grid[0]), Volumes: vols}
+		Scanner: dwi.Scanner{Label: "QOH-MR1"}, Grid: grid, Normal: [3]float64{0, 0, 1}, Reference: unitGeometry(grid[0]), Volumes: vols}
 	for _, v := range vols {
 		if !slices.Contains(s.Facts.BValues, v.BValue) {
 			s.Facts.BValues = append(s.Facts.BValues, v.BValue)
@@ -174,7 +174,7 @@ func TestMissingB0OnHandBuiltSeries(t *testing.T) {
 			if c.wantMM != nil && (f.Region == nil || !slices.Equal(f.Region.SlicesMM, c.wantMM)) {
 				t.Errorf("region %+v, want positions %v", f.Region, c.wantMM)
 			}
-			if f.SeriesNumber != 7 || f.Scanner != "HGH-MR1" || f.StudyUID != "1.2.3" || f.SeriesUID != "1.2.3.4" {
+			if f.SeriesNumber != 7 || f.Scanner != "QOH-MR1" || f.StudyUID != "1.2.3" || f.SeriesUID != "1.2.3.4" {
 				t.Errorf("identity %+v", f)
 			}
 		})

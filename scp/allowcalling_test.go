@@ -31,7 +31,7 @@ func TestAllowCallingRefusesAPeerFromTheWrongNetwork(t *testing.T) {
 			}}
 			go srv.Serve(l)
 			t.Cleanup(func() { srv.Close() })
-			d := &scp.Dialer{CallingAETitle: "HGH_MR1", CalledAETitle: "DWIAUDIT"}
+			d := &scp.Dialer{CallingAETitle: "QOH_MR1", CalledAETitle: "DWIAUDIT"}
 			a, err := d.Dial(context.Background(), l.Addr().String(), []scp.Context{{AbstractSyntax: scp.VerificationSOPClass, TransferSyntaxes: []string{scp.ImplicitVRLittleEndian}}})
 			var rj *scp.RejectError
 			switch {
@@ -51,8 +51,8 @@ func TestAllowCallingRefusesAPeerFromTheWrongNetwork(t *testing.T) {
 				}
 				a.Release(context.Background())
 			}
-			if got := <-asked; got != "HGH_MR1@127.0.0.1" {
-				t.Errorf("hook asked about %q, want HGH_MR1@127.0.0.1", got)
+			if got := <-asked; got != "QOH_MR1@127.0.0.1" {
+				t.Errorf("hook asked about %q, want QOH_MR1@127.0.0.1", got)
 			}
 		})
 	}

@@ -518,7 +518,7 @@ func dataSet(rows, cols int, sopInstance string, seed uint64) []byte {
 		{0x0008, 0x0016, "UI", []byte(scp.MRImageStorage)},
 		{0x0008, 0x0018, "UI", []byte(sopInstance)},
 		{0x0008, 0x0060, "CS", []byte("MR")},
-		{0x0008, 0x0080, "LO", []byte("Harbourview General")},
+		{0x0008, 0x0080, "LO", []byte("Quellvander Ostmire")},
 		{0x0010, 0x0010, "PN", []byte("TEST^PHANTOM")},
 		{0x0010, 0x0020, "LO", []byte("PHANTOM01")},
 		{0x0020, 0x000D, "UI", []byte(study)},

@@ -18,7 +18,7 @@ import (
 // Requestor defaults.
 const (
 	DefaultCallingAETitle = "DWIAUDIT"
-	DefaultCalledAETitle  = "ANY-SCP"
+	DefaultCalledAETitle  = DefaultAETitle // the node's own default, so echo and send reach a node on defaults
 
 	// DefaultResponseTimeout bounds the wait for a DIMSE response after
 	// the request was sent: a peer that stores to a slow disk may take a

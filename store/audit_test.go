@@ -47,7 +47,7 @@ func TestPendingSeriesSurviveReopenAndClearOnlyWhenNothingNewerArrived(t *testin
 func TestANewAuditReplacesTheCurrentFindingsAndKeepsTheHistory(t *testing.T) {
 	s, opts := newTestStore(t)
 	day1 := time.Date(2025, 3, 4, 23, 59, 0, 0, time.UTC)
-	first := AuditRecord{AuditTime: day1, StudyInstanceUID: "1.2.3", SeriesUID: "1.2.3.1", Scanner: "hgh-mr1", AccessionNumber: "ACC1",
+	first := AuditRecord{AuditTime: day1, StudyInstanceUID: "1.2.3", SeriesUID: "1.2.3.1", Scanner: "qoh-mr1", AccessionNumber: "ACC1",
 		Findings: json.RawMessage(`[{"rule":"missing-b0"}]`), Measures: json.RawMessage(`{"b0_snr":null}`)}
 	second := first
 	second.AuditTime = day1.Add(2 * time.Minute) // the next day
@@ -71,7 +71,7 @@ func TestANewAuditReplacesTheCurrentFindingsAndKeepsTheHistory(t *testing.T) {
 		t.Errorf("Findings(2025-03-04) = %+v, %v; want only series 1.2.3.2 (1.2.3.1's audit of that day was replaced)", d1, err)
 	}
 	d2, err := s.Findings("2025-03-05")
-	if err != nil || len(d2) != 1 || d2[0].SeriesUID != "1.2.3.1" || !d2[0].AuditTime.Equal(second.AuditTime) || d2[0].AccessionNumber != "ACC1" || d2[0].Scanner != "hgh-mr1" {
+	if err != nil || len(d2) != 1 || d2[0].SeriesUID != "1.2.3.1" || !d2[0].AuditTime.Equal(second.AuditTime) || d2[0].AccessionNumber != "ACC1" || d2[0].Scanner != "qoh-mr1" {
 		t.Errorf("Findings(2025-03-05) = %+v, %v; want the second audit of 1.2.3.1", d2, err)
 	}
 	hist, err := s.SeriesAudits("1.2.3.1")

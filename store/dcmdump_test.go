@@ -60,7 +60,7 @@ func TestFilesAreReadByDCMTK(t *testing.T) {
 				"0002,0010": ts,             // Transfer Syntax UID
 				"0002,0012": implementationClassUID,
 				"0002,0013": implementationVersionName,
-				"0002,0016": "HARBOUR_MR1",  // Source Application Entity Title
+				"0002,0016": "OSTMIRE_MR1",  // Source Application Entity Title
 				"0010,0010": "TEST^PHANTOM", // from the data set, read in its transfer syntax
 				"0020,0013": "7",            // Instance Number
 			}

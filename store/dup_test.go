@@ -16,7 +16,7 @@ func TestDuplicates(t *testing.T) {
 	a := testInstance{SOP: uid(10, 1), InstanceNumber: 1, Payload: 4096}
 	b := a
 	b.Seed = 1 // same SOP instance, different pixel bytes
-	b.AE = "HARBOUR_PACS"
+	b.AE = "OSTMIRE_PACS"
 	dir := "instances/2.25.1001/2.25.1001.1/"
 
 	steps := []struct {
@@ -71,7 +71,7 @@ func TestDuplicates(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		wantAE := []string{"HARBOUR_MR1", "HARBOUR_PACS", "HARBOUR_MR1"}
+		wantAE := []string{"OSTMIRE_MR1", "OSTMIRE_PACS", "OSTMIRE_MR1"}
 		wantSHA := []string{a.sha(), b.sha(), a.sha()}
 		if len(vs) != 3 {
 			t.Fatalf("%d versions, want 3", len(vs))

@@ -51,7 +51,7 @@ func (ti testInstance) defaults() testInstance {
 		ti.TransferSyntax = explicitVRLE
 	}
 	if ti.AE == "" {
-		ti.AE = "HARBOUR_MR1"
+		ti.AE = "OSTMIRE_MR1"
 	}
 	return ti
 }
@@ -63,7 +63,7 @@ func (ti testInstance) request() PutRequest {
 		SOPInstanceUID:    ti.SOP,
 		TransferSyntaxUID: ti.TransferSyntax,
 		CallingAETitle:    ti.AE,
-		ScannerLabel:      "harbourview-mr1",
+		ScannerLabel:      "quellvander-mr1",
 	}
 }
 
@@ -86,7 +86,7 @@ func (ti testInstance) dataSet() []byte {
 		{0x00080020, "DA", "20250304"},
 		{0x00080060, "CS", "MR"},
 		{0x00080070, "LO", "Invented Medical"},
-		{0x00080080, "LO", "Harbourview General"},
+		{0x00080080, "LO", "Quellvander Ostmire"},
 		{0x00081010, "SH", "HV-MR1"},
 		{0x0008103E, "LO", "ep2d_diff_3scan_trace"},
 		{0x00100010, "PN", "TEST^PHANTOM"},

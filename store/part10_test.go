@@ -13,7 +13,7 @@ func TestFileMetaRoundTrip(t *testing.T) {
 		meta   fileMeta
 		wantAE string
 	}{
-		{"with an odd-length UID and a source AE", fileMeta{mrImageStorage, "2.25.123", explicitVRLE, "HARBOUR_MR1"}, "HARBOUR_MR1"},
+		{"with an odd-length UID and a source AE", fileMeta{mrImageStorage, "2.25.123", explicitVRLE, "OSTMIRE_MR1"}, "OSTMIRE_MR1"},
 		{"with an implicit syntax and no AE", fileMeta{mrImageStorage, "2.25.1234", implicitVRLE, ""}, ""},
 		{"with an unusable AE left out", fileMeta{mrImageStorage, "2.25.1", explicitVRLE, `BAD\AE`}, ""},
 		{"with an over-long AE left out", fileMeta{mrImageStorage, "2.25.1", explicitVRLE, "A_TITLE_OF_17_CHR"}, ""},

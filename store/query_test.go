@@ -92,8 +92,8 @@ func TestQueries(t *testing.T) {
 			t.Fatalf("series = %+v", st.Series)
 		}
 		sr := st.Series[0]
-		if sr.Instances != 3 || sr.Modality != "MR" || sr.ScannerLabel != "harbourview-mr1" ||
-			sr.CallingAETitle != "HARBOUR_MR1" || sr.StationName != "HV-MR1" || sr.SeriesDescription != "ep2d_diff_3scan_trace" {
+		if sr.Instances != 3 || sr.Modality != "MR" || sr.ScannerLabel != "quellvander-mr1" ||
+			sr.CallingAETitle != "OSTMIRE_MR1" || sr.StationName != "HV-MR1" || sr.SeriesDescription != "ep2d_diff_3scan_trace" {
 			t.Errorf("series = %+v", sr)
 		}
 		if st.PatientName != "TEST^PHANTOM" || st.StudyDate != "20250304" || !st.FirstReceived.Before(st.LastReceived) {

@@ -180,7 +180,7 @@ func TestReconcile(t *testing.T) {
 		v2.Seed = 9
 		rel := strings.TrimSuffix(ref.Path, ".dcm") + ".v2.dcm"
 		data := append(encodeFileMeta(fileMeta{SOPClassUID: mrImageStorage, SOPInstanceUID: v2.SOP,
-			TransferSyntaxUID: explicitVRLE, SourceAETitle: "HARBOUR_MR1"}), v2.dataSet()...)
+			TransferSyntaxUID: explicitVRLE, SourceAETitle: "OSTMIRE_MR1"}), v2.dataSet()...)
 		if err := os.WriteFile(filepath.Join(opts.Dir, rel), data, 0o600); err != nil {
 			t.Fatal(err)
 		}
@@ -193,7 +193,7 @@ func TestReconcile(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if in.Version != 2 || in.Versions != 2 || in.SHA256 != v2.sha() || in.CallingAETitle != "HARBOUR_MR1" {
+		if in.Version != 2 || in.Versions != 2 || in.SHA256 != v2.sha() || in.CallingAETitle != "OSTMIRE_MR1" {
 			t.Errorf("Instance = %+v", in)
 		}
 	})

@@ -13,13 +13,13 @@ func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(
 	mustPut(t, s, testInstance{SOP: "2.25.6001.1.1", Study: "2.25.6001", Payload: 16})
 	t0 := time.Date(2025, 3, 4, 10, 0, 0, 0, time.UTC)
 	audits := []AuditRecord{
-		{AuditTime: t0, StudyInstanceUID: "2.25.1001", SeriesUID: "2.25.1001.1", Scanner: "harbourview-mr1", Measures: json.RawMessage(`{"tissue_adc_median":0.00079}`)},
-		{AuditTime: t0.Add(time.Hour), StudyInstanceUID: "2.25.2001", SeriesUID: "2.25.2001.1", Scanner: "harbourview-mr2"},
-		{AuditTime: t0.Add(2 * time.Hour), StudyInstanceUID: "2.25.3001", SeriesUID: "2.25.3001.1", Scanner: "harbourview-mr1", TestPatient: true},
-		{AuditTime: t0.Add(48 * time.Hour), StudyInstanceUID: "2.25.4001", SeriesUID: "2.25.4001.1", Scanner: "harbourview-mr1"},
+		{AuditTime: t0, StudyInstanceUID: "2.25.1001", SeriesUID: "2.25.1001.1", Scanner: "quellvander-mr1", Measures: json.RawMessage(`{"tissue_adc_median":0.00079}`)},
+		{AuditTime: t0.Add(time.Hour), StudyInstanceUID: "2.25.2001", SeriesUID: "2.25.2001.1", Scanner: "quellvander-mr2"},
+		{AuditTime: t0.Add(2 * time.Hour), StudyInstanceUID: "2.25.3001", SeriesUID: "2.25.3001.1", Scanner: "quellvander-mr1", TestPatient: true},
+		{AuditTime: t0.Add(48 * time.Hour), StudyInstanceUID: "2.25.4001", SeriesUID: "2.25.4001.1", Scanner: "quellvander-mr1"},
 		// Re-audited later: only its newest audit is current.
-		{AuditTime: t0.Add(-time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "harbourview-mr1"},
-		{AuditTime: t0.Add(3 * time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "harbourview-mr1"},
+		{AuditTime: t0.Add(-time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "quellvander-mr1"},
+		{AuditTime: t0.Add(3 * time.Hour), StudyInstanceUID: "2.25.5001", SeriesUID: "2.25.5001.1", Scanner: "quellvander-mr1"},
 		// The audit names the Station Name; the series was received
 		// under the peer's label, which counts.
 		{AuditTime: t0.Add(4 * time.Hour), StudyInstanceUID: "2.25.6001", SeriesUID: "2.25.6001.1", Scanner: "HV-MR1"},
@@ -31,7 +31,7 @@ func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(
 	}
 	s = reopen(t, s, opts)
 
-	got, err := s.ScannerAudits("harbourview-mr1", t0.Add(-2*time.Hour), t0.Add(24*time.Hour))
+	got, err := s.ScannerAudits("quellvander-mr1", t0.Add(-2*time.Hour), t0.Add(24*time.Hour))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -56,7 +56,7 @@ func TestScannerAuditsListsOneScannersCurrentAuditsInTheRangeWithTheirStudyDate(
 		t.Errorf("re-audited series at %v, want its newest audit at %v", got[2].AuditTime, t0.Add(3*time.Hour))
 	}
 	t.Run("an empty or inverted range gives nothing", func(t *testing.T) {
-		if got, err := s.ScannerAudits("harbourview-mr1", t0, t0); err != nil || len(got) != 0 {
+		if got, err := s.ScannerAudits("quellvander-mr1", t0, t0); err != nil || len(got) != 0 {
 			t.Errorf("ScannerAudits(t0, t0) = %v, %v", got, err)
 		}
 	})
@@ -70,13 +70,13 @@ func TestScannerLabelsListsTheLabelsOfStoredSeries(t *testing.T) {
 	mustPut(t, s, testInstance{SOP: "2.25.1001.1.1", Study: "2.25.1001", Payload: 16})
 	mustPut(t, s, testInstance{SOP: "2.25.1002.1.1", Study: "2.25.1002", Payload: 16})
 	got, err := s.ScannerLabels()
-	if err != nil || !slices.Equal(got, []string{"harbourview-mr1"}) {
-		t.Errorf("ScannerLabels = %v, %v; want [harbourview-mr1] once", got, err)
+	if err != nil || !slices.Equal(got, []string{"quellvander-mr1"}) {
+		t.Errorf("ScannerLabels = %v, %v; want [quellvander-mr1] once", got, err)
 	}
 }
 
 func TestAuditDaysJumpsFromDayToDayNewestFirst(t *testing.T) {
-	loc := time.FixedZone("HGH", 10*3600)
+	loc := time.FixedZone("QOH", 10*3600)
 	s, _ := newTestStore(t, func(o *Options) { o.Location = loc })
 	if got, err := s.AuditDays(10); err != nil || len(got) != 0 {
 		t.Fatalf("no audits: %v, %v", got, err)

@@ -411,8 +411,8 @@ func (s testSeries) common(sopClass, sopInstance string) []el {
 	return []el{
 		txt(tSOPClass, "UI", sopClass), txt(tSOPInstance, "UI", sopInstance),
 		txt(tStudyDate, "DA", "20250314"), txt(tAccession, "SH", "ACC42"), txt(tModality, "CS", "MR"),
-		txt(tManufacturer, "LO", "Synthetic"), txt(tInstitution, "LO", "Harbourview General"),
-		txt(tStation, "SH", "HGH-MR2"), txt(tSeriesDesc, "LO", "DWI test"), txt(tModel, "LO", "Test model"),
+		txt(tManufacturer, "LO", "Synthetic"), txt(tInstitution, "LO", "Quellvander Ostmire"),
+		txt(tStation, "SH", "QOH-MR2"), txt(tSeriesDesc, "LO", "DWI test"), txt(tModel, "LO", "Test model"),
 		txt(tPatientName, "PN", "TEST^PHANTOM"), txt(tSerial, "LO", "SN-0042"), txt(tProtocol, "LO", "DWI brain"),
 		txt(tStudyUID, "UI", s.study), txt(tSeriesUID, "UI", s.series), txt(tFrameOfRef, "UI", s.frameOfRef),
 		is(tSeriesNumber, s.number),

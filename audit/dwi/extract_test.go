@@ -85,8 +85,8 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 					if f.Kind != KindAcquired || f.Encapsulated || f.TransferSyntaxUID != ts {
 						t.Errorf("frame %d: kind %v encapsulated %v syntax %s", i, f.Kind, f.Encapsulated, f.TransferSyntaxUID)
 					}
-					wantScanner := Scanner{StationName: "HGH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Harbourview General",
-						Manufacturer: "Synthetic", ModelName: "Test model", CallingAETitle: "MRI2", Label: "HGH-MR2@MRI2"}
+					wantScanner := Scanner{StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Quellvander Ostmire",
+						Manufacturer: "Synthetic", ModelName: "Test model", CallingAETitle: "MRI2", Label: "QOH-MR2@MRI2"}
 					if f.Scanner != wantScanner {
 						t.Errorf("frame %d: scanner %+v, want %+v", i, f.Scanner, wantScanner)
 					}

@@ -73,8 +73,8 @@ func (e *enc) identityElements() *enc {
 		el(0x0008, 0x0050, "SH", str("ACC7", ' ')).
 		el(0x0008, 0x0060, "CS", str("MR", ' ')).
 		el(0x0008, 0x0070, "LO", str("Synthetic", ' ')).
-		el(0x0008, 0x0080, "LO", str("Harbourview General Hospital", ' ')).
-		el(0x0008, 0x1010, "SH", str("HGH-MR2", ' ')).
+		el(0x0008, 0x0080, "LO", str("Quellvander Ostmire Hospital", ' ')).
+		el(0x0008, 0x1010, "SH", str("QOH-MR2", ' ')).
 		el(0x0008, 0x103E, "LO", str("DWI hand made", ' ')).
 		el(0x0010, 0x0010, "PN", str("TEST^PHANTOM", ' ')).
 		el(0x0010, 0x0020, "LO", str("PHANTOM01", ' ')).
@@ -93,8 +93,8 @@ var wantHandMade = Identity{
 	StudyDate: "20250314", StudyTime: "093000", AccessionNumber: "ACC7", Modality: "MR",
 	SeriesDescription: "DWI hand made", SeriesNumber: 7, InstanceNumber: 12,
 	PatientName: "TEST^PHANTOM", PatientID: "PHANTOM01",
-	InstitutionName: "Harbourview General Hospital", Manufacturer: "Synthetic",
-	StationName: "HGH-MR2", DeviceSerialNumber: "SN-0042",
+	InstitutionName: "Quellvander Ostmire Hospital", Manufacturer: "Synthetic",
+	StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042",
 }
 
 // writePart10 writes a Part 10 file (PS3.10 7.1) around a data set.

@@ -24,7 +24,7 @@ func BenchmarkScrape50Scanners(b *testing.B) {
 	severities := []string{"info", "warning", "error"}
 	var scanners []string
 	for i := range nScanners {
-		scanners = append(scanners, fmt.Sprintf("hgh-mr%02d", i))
+		scanners = append(scanners, fmt.Sprintf("qoh-mr%02d", i))
 	}
 	m := metrics.New(metrics.Options{
 		Version: "v1.2.3", GoVersion: "go1.26.8",

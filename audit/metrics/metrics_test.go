@@ -22,10 +22,10 @@ import (
 	"dwiaudit/store"
 )
 
-// Configuration of the invented Harbourview General Hospital the tests
+// Configuration of the invented Quellvander Ostmire Hospital the tests
 // use.
 var (
-	testScanners  = []string{"hgh-mr1", "hgh-mr2"}
+	testScanners  = []string{"qoh-mr1", "qoh-mr2"}
 	testProtocols = []string{"brain-dwi", "prostate-dwi"}
 	testPhantoms  = []string{"ice-water"}
 	testRules     = []string{"missing-b0", "bvalue-mismatch", "adc-out-of-range", "b0-only-hotspot", "low-snr", "phantom-adc-bias", "audit-failed"}
@@ -73,8 +73,8 @@ func audited(m *metrics.Metrics, rec store.AuditRecord) { m.AuditSaved(rec, test
 const (
 	studyUID  = "1.2.826.0.1.3680043.10.543.1.1"
 	seriesUID = "1.2.826.0.1.3680043.10.543.1.1.2"
-	accession = "HGH20250314001"
-	patientID = "HGH-SYN-0001"
+	accession = "QOH20250314001"
+	patientID = "QOH-SYN-0001"
 	patient   = "TEST^SYNTHETIC"
 )
 
@@ -130,19 +130,19 @@ func TestTheCollectorsExposeExactlyTheEventsTheyWereFed(t *testing.T) {
 	m.Association("released", map[string]int{"success": 3, "warning": 1})
 	m.Association("aborted-by-peer", map[string]int{"failure": 2})
 	m.Association("rejected", nil)
-	m.InstanceStored("hgh-mr1", 1000, 2*time.Millisecond)
-	m.InstanceStored("hgh-mr1", 500, 20*time.Millisecond)
+	m.InstanceStored("qoh-mr1", 1000, 2*time.Millisecond)
+	m.InstanceStored("qoh-mr1", 500, 20*time.Millisecond)
 	m.InstanceStored("", 10, 700*time.Microsecond)
 	m.StudyAudited(true, 300*time.Millisecond)
 	m.StudyAudited(false, 3*time.Second)
-	audited(m, record(t, "hgh-mr1", t1, false,
+	audited(m, record(t, "qoh-mr1", t1, false,
 		&measures{Protocol: "brain-dwi", TissueADCMedian: num(0.00079), CSFADC: num(0.003), B0SNR: num(41.5)},
 		finding{Rule: "b0-only-hotspot", Severity: "error"}, finding{Rule: "low-snr", Severity: "warning"}))
-	audited(m, record(t, "hgh-mr2", t1, false,
+	audited(m, record(t, "qoh-mr2", t1, false,
 		&measures{Protocol: "ice-water", B0SNR: num(80), PhantomADC: num(0.00121), PhantomExpectedADC: num(0.0011)},
 		finding{Rule: "phantom-adc-bias", Severity: "error"}))
 	// A test patient's audit: its finding counts, its measures do not.
-	audited(m, record(t, "hgh-mr2", t1, true,
+	audited(m, record(t, "qoh-mr2", t1, true,
 		&measures{Protocol: "brain-dwi", TissueADCMedian: num(0.002), CSFADC: num(0.001), B0SNR: num(3)},
 		finding{Rule: "adc-out-of-range", Severity: "warning"}))
 
@@ -196,39 +196,39 @@ dwiaudit_data_floor_bytes 2.147483648e+09
 dwiaudit_data_free_bytes 1.23456789e+08
 # HELP dwiaudit_findings_total Findings saved, by scanner, rule and severity (test patients included).
 # TYPE dwiaudit_findings_total counter
-dwiaudit_findings_total{rule="adc-out-of-range",scanner="hgh-mr2",severity="warning"} 1
-dwiaudit_findings_total{rule="b0-only-hotspot",scanner="hgh-mr1",severity="error"} 1
-dwiaudit_findings_total{rule="low-snr",scanner="hgh-mr1",severity="warning"} 1
-dwiaudit_findings_total{rule="phantom-adc-bias",scanner="hgh-mr2",severity="error"} 1
+dwiaudit_findings_total{rule="adc-out-of-range",scanner="qoh-mr2",severity="warning"} 1
+dwiaudit_findings_total{rule="b0-only-hotspot",scanner="qoh-mr1",severity="error"} 1
+dwiaudit_findings_total{rule="low-snr",scanner="qoh-mr1",severity="warning"} 1
+dwiaudit_findings_total{rule="phantom-adc-bias",scanner="qoh-mr2",severity="error"} 1
 # HELP dwiaudit_phantom_adc_bias_ratio Latest phantom central ADC over the profile's expected ADC, minus 1 (0.05 is 5% high).
 # TYPE dwiaudit_phantom_adc_bias_ratio gauge
-dwiaudit_phantom_adc_bias_ratio{phantom="ice-water",scanner="hgh-mr2"} ` + ratio(0.00121, 0.0011) + `
+dwiaudit_phantom_adc_bias_ratio{phantom="ice-water",scanner="qoh-mr2"} ` + ratio(0.00121, 0.0011) + `
 # HELP dwiaudit_phantom_adc_square_meters_per_second Central-region ADC of the latest audited phantom series of this scanner and phantom profile.
 # TYPE dwiaudit_phantom_adc_square_meters_per_second gauge
-dwiaudit_phantom_adc_square_meters_per_second{phantom="ice-water",scanner="hgh-mr2"} ` + si(0.00121) + `
+dwiaudit_phantom_adc_square_meters_per_second{phantom="ice-water",scanner="qoh-mr2"} ` + si(0.00121) + `
 # HELP dwiaudit_phantom_audited_timestamp_seconds Unix time of the latest audit of a phantom series of this scanner and phantom profile.
 # TYPE dwiaudit_phantom_audited_timestamp_seconds gauge
-dwiaudit_phantom_audited_timestamp_seconds{phantom="ice-water",scanner="hgh-mr2"} ` + unix + `
+dwiaudit_phantom_audited_timestamp_seconds{phantom="ice-water",scanner="qoh-mr2"} ` + unix + `
 # HELP dwiaudit_received_bytes_total Data-set bytes of the instances received and stored, by scanner.
 # TYPE dwiaudit_received_bytes_total counter
-dwiaudit_received_bytes_total{scanner="hgh-mr1"} 1500
+dwiaudit_received_bytes_total{scanner="qoh-mr1"} 1500
 dwiaudit_received_bytes_total{scanner="unknown"} 10
 # HELP dwiaudit_received_instances_total Instances received and stored durably (identical duplicates included), by scanner.
 # TYPE dwiaudit_received_instances_total counter
-dwiaudit_received_instances_total{scanner="hgh-mr1"} 2
+dwiaudit_received_instances_total{scanner="qoh-mr1"} 2
 dwiaudit_received_instances_total{scanner="unknown"} 1
 # HELP dwiaudit_series_b0_snr b0 signal-to-noise ratio of the latest audited series of this scanner and protocol (test patients left out).
 # TYPE dwiaudit_series_b0_snr gauge
-dwiaudit_series_b0_snr{protocol="brain-dwi",scanner="hgh-mr1"} 41.5
+dwiaudit_series_b0_snr{protocol="brain-dwi",scanner="qoh-mr1"} 41.5
 # HELP dwiaudit_series_csf_adc_square_meters_per_second CSF ADC (high percentile inside the head) in the latest audited series of this scanner and protocol (test patients left out).
 # TYPE dwiaudit_series_csf_adc_square_meters_per_second gauge
-dwiaudit_series_csf_adc_square_meters_per_second{protocol="brain-dwi",scanner="hgh-mr1"} ` + si(0.003) + `
+dwiaudit_series_csf_adc_square_meters_per_second{protocol="brain-dwi",scanner="qoh-mr1"} ` + si(0.003) + `
 # HELP dwiaudit_series_parenchyma_adc_square_meters_per_second Median ADC of brain parenchyma in the latest audited series of this scanner and protocol (test patients left out).
 # TYPE dwiaudit_series_parenchyma_adc_square_meters_per_second gauge
-dwiaudit_series_parenchyma_adc_square_meters_per_second{protocol="brain-dwi",scanner="hgh-mr1"} ` + si(0.00079) + `
+dwiaudit_series_parenchyma_adc_square_meters_per_second{protocol="brain-dwi",scanner="qoh-mr1"} ` + si(0.00079) + `
 # HELP dwiaudit_series_audited_timestamp_seconds Unix time of the latest audit of a series of this scanner and protocol (test patients left out).
 # TYPE dwiaudit_series_audited_timestamp_seconds gauge
-dwiaudit_series_audited_timestamp_seconds{protocol="brain-dwi",scanner="hgh-mr1"} ` + unix + `
+dwiaudit_series_audited_timestamp_seconds{protocol="brain-dwi",scanner="qoh-mr1"} ` + unix + `
 # HELP dwiaudit_store_put_duration_seconds Time from the first byte of a C-STORE data set to its durable commit in the store.
 # TYPE dwiaudit_store_put_duration_seconds histogram
 dwiaudit_store_put_duration_seconds_bucket{le="0.0005"} 0
@@ -288,8 +288,8 @@ func TestTheGoAndProcessCollectorsPassLintBesideOurs(t *testing.T) {
 	// whole exposition a scrape returns, ours fed with one of each event.
 	m := newTestMetrics(func() (uint64, error) { return 1, nil }, func() int { return 0 })
 	m.Registry().MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
-	m.InstanceStored("HGH MR 3 (Station)", 1, time.Millisecond)
-	audited(m, record(t, "hgh-mr1", time.Unix(1, 0), false, &measures{Protocol: "brain-dwi", TissueADCMedian: num(0.0008)},
+	m.InstanceStored("QOH MR 3 (Station)", 1, time.Millisecond)
+	audited(m, record(t, "qoh-mr1", time.Unix(1, 0), false, &measures{Protocol: "brain-dwi", TissueADCMedian: num(0.0008)},
 		finding{Rule: "missing-b0", Severity: "error"}))
 	problems, err := testutil.GatherAndLint(m.Registry())
 	if err != nil {
@@ -315,29 +315,29 @@ func TestDriftGaugesKeepTheNewestDefinedValue(t *testing.T) {
 		want float64 // parenchyma ADC, mm²/s; NaN: no sample
 	}{
 		{"a newer audit replaces the value", func(m *metrics.Metrics) {
-			audited(m, record(t, "hgh-mr1", t0, false, brain(num(0.0008))))
-			audited(m, record(t, "hgh-mr1", t0.Add(time.Hour), false, brain(num(0.0009))))
+			audited(m, record(t, "qoh-mr1", t0, false, brain(num(0.0008))))
+			audited(m, record(t, "qoh-mr1", t0.Add(time.Hour), false, brain(num(0.0009))))
 		}, 0.0009},
 		{"an older audit arriving late leaves the newer value", func(m *metrics.Metrics) {
-			audited(m, record(t, "hgh-mr1", t0.Add(time.Hour), false, brain(num(0.0009))))
-			m.Seed([]store.AuditRecord{record(t, "hgh-mr1", t0, false, brain(num(0.0008)))}, nil)
+			audited(m, record(t, "qoh-mr1", t0.Add(time.Hour), false, brain(num(0.0009))))
+			m.Seed([]store.AuditRecord{record(t, "qoh-mr1", t0, false, brain(num(0.0008)))}, nil)
 		}, 0.0009},
 		{"an undefined measure leaves the last real one", func(m *metrics.Metrics) {
-			audited(m, record(t, "hgh-mr1", t0, false, brain(num(0.0008))))
-			audited(m, record(t, "hgh-mr1", t0.Add(time.Hour), false, brain(nil)))
+			audited(m, record(t, "qoh-mr1", t0, false, brain(num(0.0008))))
+			audited(m, record(t, "qoh-mr1", t0.Add(time.Hour), false, brain(nil)))
 		}, 0.0008},
 		{"a test patient's audit moves nothing", func(m *metrics.Metrics) {
-			audited(m, record(t, "hgh-mr1", t0, false, brain(num(0.0008))))
-			audited(m, record(t, "hgh-mr1", t0.Add(time.Hour), true, brain(num(0.0015))))
+			audited(m, record(t, "qoh-mr1", t0, false, brain(num(0.0008))))
+			audited(m, record(t, "qoh-mr1", t0.Add(time.Hour), true, brain(num(0.0015))))
 		}, 0.0008},
 		{"a test patient's stored audit seeds nothing", func(m *metrics.Metrics) {
-			m.Seed([]store.AuditRecord{record(t, "hgh-mr1", t0, true, brain(num(0.0015)))}, nil)
+			m.Seed([]store.AuditRecord{record(t, "qoh-mr1", t0, true, brain(num(0.0015)))}, nil)
 		}, math.NaN()},
 		{"seeding sets the gauges from stored audits", func(m *metrics.Metrics) {
-			m.Seed([]store.AuditRecord{record(t, "hgh-mr1", t0, false, brain(num(0.0008)))}, nil)
+			m.Seed([]store.AuditRecord{record(t, "qoh-mr1", t0, false, brain(num(0.0008)))}, nil)
 		}, 0.0008},
 		{"an audit without measures (audit-failed) moves nothing", func(m *metrics.Metrics) {
-			audited(m, record(t, "hgh-mr1", t0, false, nil, finding{Rule: "audit-failed", Severity: "error"}))
+			audited(m, record(t, "qoh-mr1", t0, false, nil, finding{Rule: "audit-failed", Severity: "error"}))
 		}, math.NaN()},
 	}
 	for _, tt := range tests {
@@ -349,7 +349,7 @@ func TestDriftGaugesKeepTheNewestDefinedValue(t *testing.T) {
 				want = `
 # HELP dwiaudit_series_parenchyma_adc_square_meters_per_second Median ADC of brain parenchyma in the latest audited series of this scanner and protocol (test patients left out).
 # TYPE dwiaudit_series_parenchyma_adc_square_meters_per_second gauge
-dwiaudit_series_parenchyma_adc_square_meters_per_second{protocol="brain-dwi",scanner="hgh-mr1"} ` + si(tt.want) + "\n"
+dwiaudit_series_parenchyma_adc_square_meters_per_second{protocol="brain-dwi",scanner="qoh-mr1"} ` + si(tt.want) + "\n"
 			}
 			if err := testutil.GatherAndCompare(m.Registry(), strings.NewReader(want), "dwiaudit_series_parenchyma_adc_square_meters_per_second"); err != nil {
 				t.Error(err)
@@ -360,7 +360,7 @@ dwiaudit_series_parenchyma_adc_square_meters_per_second{protocol="brain-dwi",sca
 
 func TestSeedingCountsNoFindingsAndNoAudits(t *testing.T) {
 	m := newTestMetrics(nil, nil)
-	m.Seed([]store.AuditRecord{record(t, "hgh-mr1", time.Unix(1e9, 0), false,
+	m.Seed([]store.AuditRecord{record(t, "qoh-mr1", time.Unix(1e9, 0), false,
 		&measures{Protocol: "brain-dwi", TissueADCMedian: num(0.0008)}, finding{Rule: "missing-b0", Severity: "error"})}, nil)
 	n, err := testutil.GatherAndCount(m.Registry(), "dwiaudit_findings_total")
 	if err != nil || n != 0 {
@@ -382,18 +382,18 @@ func TestLabelValuesAreBounded(t *testing.T) {
 	tests := []struct {
 		name, got, want string
 	}{
-		{"a configured scanner label is kept", l.Scanner("hgh-mr1"), "hgh-mr1"},
-		{"a station name is lower-cased and its other characters become one underscore", l.Scanner("HGH MR (3T) #4"), "hgh_mr_3t_4"},
+		{"a configured scanner label is kept", l.Scanner("qoh-mr1"), "qoh-mr1"},
+		{"a station name is lower-cased and its other characters become one underscore", l.Scanner("QOH MR (3T) #4"), "qoh_mr_3t_4"},
 		{"a station name is cut to 32 characters", l.Scanner(strings.Repeat("ab", 40)), strings.Repeat("ab", 16)},
 		{"an empty station name is unknown", l.Scanner("  "), metrics.LabelUnknown},
 		{"a station name of symbols only is unknown", l.Scanner("^^^"), metrics.LabelUnknown},
 		{"a UID-shaped station name is other", l.Scanner(studyUID), metrics.LabelOther},
 		{"a station name holding a UID is other", l.Scanner("MR 1.2.840.113619 room 2"), metrics.LabelOther},
-		{"a field strength is no UID", l.Scanner("HGH MR 1.5T"), "hgh_mr_1.5t"},
+		{"a field strength is no UID", l.Scanner("QOH MR 1.5T"), "qoh_mr_1.5t"},
 		{"a station name holding the study's patient ID is other", l.Scanner("MR-"+patientID, patientID), metrics.LabelOther},
 		{"a station name holding part of the patient's name is other", l.Scanner("SYNTHETIC ROOM", patient), metrics.LabelOther},
 		{"a station name holding the accession is other", l.Scanner(accession, accession), metrics.LabelOther},
-		{"short name parts do not match device names by chance", l.Scanner("HGH MR 2", "MR^X"), "hgh_mr_2"},
+		{"short name parts do not match device names by chance", l.Scanner("QOH MR 2", "MR^X"), "qoh_mr_2"},
 		{"no protocol is none", l.Protocol(""), metrics.LabelNone},
 		{"a configured protocol is kept", l.Protocol("prostate-dwi"), "prostate-dwi"},
 		{"an unconfigured protocol is other", l.Protocol("DWI " + patient), metrics.LabelOther},
@@ -423,7 +423,7 @@ func TestLabelValuesAreBounded(t *testing.T) {
 		if got := l.Scanner("STATION03"); got != "station03" {
 			t.Errorf("a station seen before the cap became %q", got)
 		}
-		if got := l.Scanner("hgh-mr2"); got != "hgh-mr2" {
+		if got := l.Scanner("qoh-mr2"); got != "qoh-mr2" {
 			t.Errorf("a configured label past the cap became %q", got)
 		}
 	})
@@ -435,7 +435,7 @@ func TestNoIdentifierEverReachesALabel(t *testing.T) {
 	identifiers := []string{studyUID, seriesUID, accession, patientID, patient, "TEST", "SYNTHETIC", "3680043"}
 	// Scanners as a misconfigured router might send them: UIDs, the
 	// patient, nothing; plus protocol names that are not configured.
-	for _, scanner := range []string{"", studyUID, seriesUID, patientID, patient, accession, "hgh-mr1"} {
+	for _, scanner := range []string{"", studyUID, seriesUID, patientID, patient, accession, "qoh-mr1"} {
 		for _, protocol := range []string{"", "brain-dwi", "ice-water", patient, seriesUID} {
 			audited(m, record(t, scanner, at, false,
 				&measures{SeriesDescription: "DWI " + patient, Protocol: protocol, TissueADCMedian: num(0.0008), PhantomADC: num(0.0011), PhantomExpectedADC: num(0.0011)},

@@ -89,19 +89,19 @@ type ScannerProfile struct {
 	FieldStrength    float64 // Magnetic Field Strength (0018,0087), tesla
 }
 
-// Scanners returns the invented scanners of Harbourview General Hospital.
+// Scanners returns the invented scanners of Quellvander Ostmire Hospital.
 // The zero ScannerProfile in Options means the first.
 func Scanners() []ScannerProfile {
 	const (
-		hospital = "Harbourview General Hospital"
+		hospital = "Quellvander Ostmire Hospital"
 		maker    = "Synthetic"
 		model    = "Phantom-1"
 		software = "dwiaudit-phantom 1"
 	)
 	return []ScannerProfile{
-		{hospital, "HGH-MR1", "SYN15T0001", maker, model, software, 1.5},
-		{hospital, "HGH-MR2", "SYN30T0002", maker, model, software, 3},
-		{hospital, "HGH-MR3", "SYN30T0003", maker, model, software, 3},
+		{hospital, "QOH-MR1", "SYN15T0001", maker, model, software, 1.5},
+		{hospital, "QOH-MR2", "SYN30T0002", maker, model, software, 3},
+		{hospital, "QOH-MR3", "SYN30T0003", maker, model, software, 3},
 	}
 }
 
@@ -163,7 +163,7 @@ type Options struct {
 	Protocol       string         // Protocol Name (0018,1030); derived from the b-values when empty
 	Scanner        ScannerProfile // Scanners()[0] when zero
 	StudyDate      time.Time      // study date and time; 2025-03-14 09:30 when zero
-	PatientID      string         // "HGH-SYN-0001" when empty (invented)
+	PatientID      string         // "QOH-SYN-0001" when empty (invented)
 	PatientName    string         // "SYNTHETIC^CASE" when empty (invented)
 	TransferSyntax string         // ExplicitVRLittleEndian (default) or ImplicitVRLittleEndian
 }
@@ -203,7 +203,7 @@ func (o Options) withDefaults() (Options, error) {
 		o.StudyDate = time.Date(2025, 3, 14, 9, 30, 0, 0, time.UTC)
 	}
 	if o.PatientID == "" {
-		o.PatientID = "HGH-SYN-0001"
+		o.PatientID = "QOH-SYN-0001"
 	}
 	if o.PatientName == "" {
 		o.PatientName = "SYNTHETIC^CASE"

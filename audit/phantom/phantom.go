@@ -230,7 +230,7 @@ func (w *writer) common(it *item, so *seriesOut, sopClass, sopInstance string) {
 	it.str(tag.StudyTime, tm(o.StudyDate))
 	it.str(tag.ReferringPhysicianName, "")
 	it.str(tag.StudyID, "1")
-	it.str(tag.AccessionNumber, fmt.Sprintf("HGHSYN%06d", uint64(o.Seed)%1000000))
+	it.str(tag.AccessionNumber, fmt.Sprintf("QOHSYN%06d", uint64(o.Seed)%1000000))
 	study := "MR brain synthetic"
 	body := "BRAIN"
 	if o.Case.iceWater() {

@@ -21,7 +21,7 @@ func jsonOf(t *testing.T, l *report.DailyList) []byte {
 }
 
 func TestAFrozenDayReadsTheSameAfterMoreStudiesAndAReAudit(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 7, 0, 0, 0, loc)} // after 06:00: 2026-12-01 is due
 	s, _ := newStore(t, loc, c.Now)
 	a := &report.Archive{Builder: &report.Builder{Source: s, Location: loc, Now: c.Now}, Lists: s, DailyAt: 6 * time.Hour}
@@ -69,7 +69,7 @@ func TestAFrozenDayReadsTheSameAfterMoreStudiesAndAReAudit(t *testing.T) {
 }
 
 func TestADayNotYetDueIsBuiltLiveAndNotKept(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 5, 59, 0, 0, loc)}
 	s, _ := newStore(t, loc, c.Now)
 	a := &report.Archive{Builder: &report.Builder{Source: s, Location: loc, Now: c.Now}, Lists: s, DailyAt: 6 * time.Hour}
@@ -90,7 +90,7 @@ func TestADayNotYetDueIsBuiltLiveAndNotKept(t *testing.T) {
 }
 
 func TestAKeptListIsStoredInFullAndShownAsConfigured(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 7, 0, 0, 0, loc)}
 	s, _ := newStore(t, loc, c.Now)
 	st := newStudy(1)
@@ -116,7 +116,7 @@ func TestAKeptListIsStoredInFullAndShownAsConfigured(t *testing.T) {
 }
 
 func TestAReadOnlyStoreShowsADueDayLiveWithoutKeepingIt(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 7, 0, 0, 0, loc)}
 	s, opts := newStore(t, loc, c.Now)
 	st := newStudy(1)
@@ -143,7 +143,7 @@ func TestAReadOnlyStoreShowsADueDayLiveWithoutKeepingIt(t *testing.T) {
 }
 
 func TestCatchUpFreezesTheDaysTheNodeMissed(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 9, 0, 0, 0, loc)}
 	s, _ := newStore(t, loc, c.Now)
 	a := &report.Archive{Builder: &report.Builder{Source: s, Location: loc, Now: c.Now}, Lists: s, DailyAt: 6 * time.Hour}
@@ -182,7 +182,7 @@ func TestCatchUpFreezesTheDaysTheNodeMissed(t *testing.T) {
 }
 
 func TestTheFreezeTimeFollowsTheWallClock(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	for _, c := range []struct {
 		name    string
 		now     time.Time

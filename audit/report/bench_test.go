@@ -25,7 +25,7 @@ const (
 // BenchmarkDailyList: the target is under 100 ms per list for a day of
 // 2,000 findings in a store of 100,000 series (a real bbolt file).
 func BenchmarkDailyList(b *testing.B) {
-	loc := harbourview(b)
+	loc := quellvander(b)
 	s, _ := newStore(b, loc, nil)
 	first := time.Date(2026, 10, 1, 0, 0, 0, 0, loc)
 	benchDay := first.AddDate(0, 0, benchDays/2)

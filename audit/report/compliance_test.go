@@ -20,7 +20,7 @@ import (
 // not count either.
 func complianceFixture(t *testing.T) *report.Builder {
 	t.Helper()
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 15, 9, 0, 0, 0, loc)}
 	s, _ := newStore(t, loc, c.Now)
 	at := func(day, h int) time.Time { return time.Date(2026, 12, day, h, 0, 0, 0, loc) }
@@ -79,7 +79,7 @@ func TestComplianceCountsStudiesPerProtocolAndScannerWithTheTrend(t *testing.T) 
 	if c.PreviousFrom != "2026-12-01" || c.PreviousTo != "2026-12-07" || c.Days != 7 {
 		t.Errorf("previous period %s..%s (%d days), want 2026-12-01..2026-12-07 (7)", c.PreviousFrom, c.PreviousTo, c.Days)
 	}
-	if want := time.Date(2026, 12, 15, 9, 0, 0, 0, harbourview(t)); !c.GeneratedAt.Equal(want) {
+	if want := time.Date(2026, 12, 15, 9, 0, 0, 0, quellvander(t)); !c.GeneratedAt.Equal(want) {
 		t.Errorf("generated at %v, want the injected clock's %v", c.GeneratedAt, want)
 	}
 	if c.TestStudiesExcluded != 3 {
@@ -118,7 +118,7 @@ func TestComplianceCountsStudiesPerProtocolAndScannerWithTheTrend(t *testing.T) 
 }
 
 func TestATopRuleListKeepsTheThreeMostFrequent(t *testing.T) {
-	loc := harbourview(t)
+	loc := quellvander(t)
 	s, _ := newStore(t, loc, nil)
 	var recs []store.AuditRecord
 	counts := map[string]int{"missing-b0": 3, "low-snr": 2, "bvalue-mismatch": 2, "b0-only-hotspot": 1}

@@ -19,7 +19,7 @@ import (
 // audited the day before.
 func dayFixture(t *testing.T) (*report.Builder, []study) {
 	t.Helper()
-	loc := harbourview(t)
+	loc := quellvander(t)
 	c := &clock{t: time.Date(2026, 12, 2, 9, 0, 0, 0, loc)}
 	s, _ := newStore(t, loc, c.Now)
 	sts := []study{newStudy(1), newStudy(2), newStudy(3), newStudy(4)}
@@ -97,11 +97,11 @@ func TestPatientIDsShowAsConfigured(t *testing.T) {
 		id   string
 		want string
 	}{
-		{"masked keeps the last three characters", report.PatientIDMasked, "HGH0004201", "*******201"},
+		{"masked keeps the last three characters", report.PatientIDMasked, "QOH0004201", "*******201"},
 		{"masked hides a short ID whole", report.PatientIDMasked, "A12", "***"},
 		{"masked counts characters, not bytes", report.PatientIDMasked, "ÅÄÖ123456", "******456"},
-		{"full shows it as stored", report.PatientIDFull, "HGH0004201", "HGH0004201"},
-		{"hidden shows nothing", report.PatientIDHidden, "HGH0004201", ""},
+		{"full shows it as stored", report.PatientIDFull, "QOH0004201", "QOH0004201"},
+		{"hidden shows nothing", report.PatientIDHidden, "QOH0004201", ""},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			if got := c.mode.Apply(c.id); got != c.want {
@@ -157,8 +157,8 @@ func TestMeasuredAndExpectedValuesReadWithTheirUnits(t *testing.T) {
 func TestLinksUseTheConfiguredBase(t *testing.T) {
 	for _, c := range []struct{ base, want string }{
 		{"", "/studies/1.2.3#series-1.2.3.4"},
-		{"https://dwiaudit.harbourview.test", "https://dwiaudit.harbourview.test/studies/1.2.3#series-1.2.3.4"},
-		{"https://harbourview.test/dwiaudit/", "https://harbourview.test/dwiaudit/studies/1.2.3#series-1.2.3.4"},
+		{"https://dwiaudit.quellvander.test", "https://dwiaudit.quellvander.test/studies/1.2.3#series-1.2.3.4"},
+		{"https://quellvander.test/dwiaudit/", "https://quellvander.test/dwiaudit/studies/1.2.3#series-1.2.3.4"},
 	} {
 		t.Run("base "+c.base, func(t *testing.T) {
 			if got := report.SeriesLink(c.base, "1.2.3", "1.2.3.4"); got != c.want {

@@ -22,9 +22,9 @@ const (
 	explicitVRLE   = "1.2.840.10008.1.2.1"       // Explicit VR Little Endian, PS3.5 A.2
 )
 
-// harbourview is the invented node's time zone in the tests: one with a
+// quellvander is the invented node's time zone in the tests: one with a
 // DST change, so that day arithmetic is tried where it can go wrong.
-func harbourview(t testing.TB) *time.Location {
+func quellvander(t testing.TB) *time.Location {
 	t.Helper()
 	loc, err := time.LoadLocation("Europe/Dublin")
 	if err != nil {
@@ -69,7 +69,7 @@ func newStore(t testing.TB, loc *time.Location, now func() time.Time) (*store.St
 	return s, opts
 }
 
-// study is a synthetic study of the invented Harbourview General
+// study is a synthetic study of the invented Quellvander Ostmire
 // Hospital.
 type study struct {
 	UID, PatientID, StudyDate, Accession string
@@ -88,7 +88,7 @@ func (st study) dataSet(series string, n int) []byte {
 		{0x00080020, "DA", st.StudyDate},
 		{0x00080050, "SH", st.Accession},
 		{0x00080060, "CS", "MR"},
-		{0x00080080, "LO", "Harbourview General Hospital"},
+		{0x00080080, "LO", "Quellvander Ostmire Hospital"},
 		{0x0008103E, "LO", "DWI b0 b1000 trace"},
 		{0x00100010, "PN", "TEST^SYNTHETIC"},
 		{0x00100020, "LO", st.PatientID},
@@ -183,7 +183,7 @@ func saveAudits(t testing.TB, s *store.Store, recs ...store.AuditRecord) {
 func newStudy(i int) study {
 	return study{
 		UID:       fmt.Sprintf("2.25.4711%d", 1000+i),
-		PatientID: fmt.Sprintf("HGH%07d", 4200+i),
+		PatientID: fmt.Sprintf("QOH%07d", 4200+i),
 		StudyDate: "20261201",
 		Accession: fmt.Sprintf("ACC%05d", 300+i),
 	}

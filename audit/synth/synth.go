@@ -45,8 +45,8 @@ const (
 
 // The invented people and places every file names (see the package doc).
 const (
-	InstitutionName   = "Harbourview General Hospital"
-	StationName       = "HGH-MR1"
+	InstitutionName   = "Quellvander Ostmire Hospital"
+	StationName       = "QOH-MR1"
 	Manufacturer      = "Synthetic"
 	ModelName         = "dwiaudit synth"
 	PatientName       = "TEST^SYNTHETIC"

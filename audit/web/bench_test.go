@@ -15,7 +15,7 @@ import (
 // audited series of that scanner (30 a day, a busy department), among
 // 5,400 of two scanners in a real bbolt store.
 func BenchmarkScannerPage(b *testing.B) {
-	st, err := store.Open(store.Options{Dir: b.TempDir(), Location: hgh, Describe: describe})
+	st, err := store.Open(store.Options{Dir: b.TempDir(), Location: qoh, Describe: describe})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -26,9 +26,9 @@ func BenchmarkScannerPage(b *testing.B) {
 	for d := range 90 {
 		for i := range 60 {
 			at := testNow.AddDate(0, 0, -d).Add(-time.Duration(i) * time.Minute)
-			label := "hgh-mr1-1.5t"
+			label := "qoh-mr1-1.5t"
 			if i%2 == 1 {
-				label = "hgh-mr2-3t"
+				label = "qoh-mr2-3t"
 			}
 			recs = append(recs, store.AuditRecord{AuditTime: at, StudyInstanceUID: fmt.Sprintf("2.25.%d.%d", d, i),
 				SeriesUID: fmt.Sprintf("2.25.%d.%d.2", d, i), Scanner: label, Findings: json.RawMessage("[]"), Measures: measures})
@@ -41,7 +41,7 @@ func BenchmarkScannerPage(b *testing.B) {
 	b.ResetTimer()
 	for b.Loop() {
 		rec := httptest.NewRecorder()
-		h.ServeHTTP(rec, httptest.NewRequest("GET", "/scanners/hgh-mr1-1.5t", nil))
+		h.ServeHTTP(rec, httptest.NewRequest("GET", "/scanners/qoh-mr1-1.5t", nil))
 		if rec.Code != http.StatusOK {
 			b.Fatalf("status %d", rec.Code)
 		}

@@ -15,12 +15,12 @@ import (
 	"dwiaudit/store"
 )
 
-// hgh is the node's time zone in the tests: an invented site ten hours
+// qoh is the node's time zone in the tests: an invented site ten hours
 // east of UTC, so that day boundaries differ from UTC's.
-var hgh = time.FixedZone("HGH", 10*3600)
+var qoh = time.FixedZone("QOH", 10*3600)
 
 // testNow is the clock of the pages in the tests.
-var testNow = time.Date(2025, 3, 20, 15, 0, 0, 0, hgh)
+var testNow = time.Date(2025, 3, 20, 15, 0, 0, 0, qoh)
 
 // describe is the store's header reader, as the node's (cmd/dwiaudit
 // describe.go).
@@ -41,7 +41,7 @@ func describe(path string) (store.Attributes, error) {
 // newTestStore opens a real store in a temporary folder.
 func newTestStore(t *testing.T) *store.Store {
 	t.Helper()
-	st, err := store.Open(store.Options{Dir: t.TempDir(), Location: hgh, Describe: describe})
+	st, err := store.Open(store.Options{Dir: t.TempDir(), Location: qoh, Describe: describe})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -75,7 +75,7 @@ func putPhantom(t *testing.T, st *store.Store, o phantom.Options, label string) 
 		}
 		_, err = st.Put(t.Context(), store.PutRequest{
 			SOPClassUID: meta.MediaStorageSOPClassUID, SOPInstanceUID: meta.MediaStorageSOPInstanceUID,
-			TransferSyntaxUID: meta.TransferSyntaxUID, CallingAETitle: "HGH_MR1", ScannerLabel: label,
+			TransferSyntaxUID: meta.TransferSyntaxUID, CallingAETitle: "QOH_MR1", ScannerLabel: label,
 		}, f)
 		f.Close()
 		if err != nil {
@@ -121,7 +121,7 @@ func saveAudit(t *testing.T, st *store.Store, rec store.AuditRecord, findings []
 // newPages is the pages' handler over st on a mux, as the node mounts it.
 func newPages(t testing.TB, st Store, mod func(*Options)) http.Handler {
 	t.Helper()
-	opt := Options{Store: st, Location: hgh, Now: func() time.Time { return testNow }, Scanners: []string{"hgh-mr1-1.5t", "hgh-mr3-3t"}}
+	opt := Options{Store: st, Location: qoh, Now: func() time.Time { return testNow }, Scanners: []string{"qoh-mr1-1.5t", "qoh-mr3-3t"}}
 	if mod != nil {
 		mod(&opt)
 	}

@@ -38,7 +38,7 @@ func TestNiceTicksCoverTheRangeAtARoundStep(t *testing.T) {
 }
 
 func TestTimeTicksAreFewAlignedAndDated(t *testing.T) {
-	loc := hgh
+	loc := qoh
 	tests := []struct {
 		name       string
 		from, to   time.Time
@@ -71,7 +71,7 @@ func TestTimeTicksAreFewAlignedAndDated(t *testing.T) {
 }
 
 func TestPlotSVG(t *testing.T) {
-	at := time.Date(2025, 3, 3, 9, 0, 0, 0, hgh)
+	at := time.Date(2025, 3, 3, 9, 0, 0, 0, qoh)
 	t.Run("no points draw nothing", func(t *testing.T) {
 		if got := (plot{ID: "p"}).SVG(); got != "" {
 			t.Errorf("SVG = %q", got)
@@ -117,7 +117,7 @@ func TestFormatting(t *testing.T) {
 		{"a report ADC becomes the pages' notation", displayValue("0.79e-3 mm²/s"), "0.79 ×10⁻³ mm²/s"},
 		{"a report ADC range too", displayValue("0.60e-3 to 1.10e-3 mm²/s"), "0.60 to 1.10 ×10⁻³ mm²/s"},
 		{"b-values are left alone", displayValue("0, 1000 s/mm²"), "0, 1000 s/mm²"},
-		{"a patient ID keeps its last three characters", maskPatientID("HGH-SYN-0001"), "*********001"},
+		{"a patient ID keeps its last three characters", maskPatientID("QOH-SYN-0001"), "*********001"},
 		{"a short patient ID is masked whole", maskPatientID("A12"), "***"},
 		{"a DICOM time reads as HH:MM", formatStudyTime("093012.5"), "09:30"},
 		{"a DICOM date reads as YYYY-MM-DD", formatStudyDate("20250314"), "2025-03-14"},
@@ -135,12 +135,12 @@ func TestFormatting(t *testing.T) {
 			want   time.Time
 			ok     bool
 		}{
-			{"20250314", "093012.123456", time.Date(2025, 3, 14, 9, 30, 12, 0, hgh), true},
-			{"20250314", "0930", time.Date(2025, 3, 14, 9, 30, 0, 0, hgh), true},
-			{"20250314", "", time.Date(2025, 3, 14, 0, 0, 0, 0, hgh), true},
+			{"20250314", "093012.123456", time.Date(2025, 3, 14, 9, 30, 12, 0, qoh), true},
+			{"20250314", "0930", time.Date(2025, 3, 14, 9, 30, 0, 0, qoh), true},
+			{"20250314", "", time.Date(2025, 3, 14, 0, 0, 0, 0, qoh), true},
 			{"", "0930", time.Time{}, false},
 		} {
-			got, ok := studyDateTime(c.da, c.tm, hgh)
+			got, ok := studyDateTime(c.da, c.tm, qoh)
 			if ok != c.ok || !got.Equal(c.want) {
 				t.Errorf("studyDateTime(%q, %q) = %v, %v; want %v, %v", c.da, c.tm, got, ok, c.want, c.ok)
 			}

@@ -16,13 +16,13 @@ import (
 var cautionHTML = html.EscapeString(Caution)
 
 // noIdentifiers checks that a page shows no patient name and no patient
-// ID in full (the phantoms' are invented: TEST^SYNTHETIC, HGH-SYN-...).
+// ID in full (the phantoms' are invented: TEST^SYNTHETIC, QOH-SYN-...).
 func noIdentifiers(t *testing.T, page, body string) {
 	t.Helper()
 	if !strings.Contains(body, cautionHTML) {
 		t.Errorf("%s lacks the caution", page)
 	}
-	for _, id := range []string{"SYNTHETIC", "HGH-SYN-"} {
+	for _, id := range []string{"SYNTHETIC", "QOH-SYN-"} {
 		if strings.Contains(body, id) {
 			t.Errorf("%s shows %q", page, id)
 		}
@@ -31,12 +31,12 @@ func noIdentifiers(t *testing.T, page, body string) {
 
 func TestDailyListPage(t *testing.T) {
 	st := newTestStore(t)
-	a := putPhantom(t, st, phantom.Options{Case: phantom.CaseNoB0, Seed: 1, PatientID: "HGH-SYN-0101"}, "hgh-mr1-1.5t")
-	b := putPhantom(t, st, phantom.Options{Case: phantom.CaseClean, Seed: 2, PatientID: "HGH-SYN-0202"}, "hgh-mr1-1.5t")
-	today := time.Date(2025, 3, 20, 9, 0, 0, 0, hgh)
-	saveAudit(t, st, store.AuditRecord{AuditTime: today, StudyInstanceUID: b.StudyUID, SeriesUID: dwiSeries(t, b), Scanner: "hgh-mr1-1.5t", TestPatient: true},
+	a := putPhantom(t, st, phantom.Options{Case: phantom.CaseNoB0, Seed: 1, PatientID: "QOH-SYN-0101"}, "qoh-mr1-1.5t")
+	b := putPhantom(t, st, phantom.Options{Case: phantom.CaseClean, Seed: 2, PatientID: "QOH-SYN-0202"}, "qoh-mr1-1.5t")
+	today := time.Date(2025, 3, 20, 9, 0, 0, 0, qoh)
+	saveAudit(t, st, store.AuditRecord{AuditTime: today, StudyInstanceUID: b.StudyUID, SeriesUID: dwiSeries(t, b), Scanner: "qoh-mr1-1.5t", TestPatient: true},
 		[]map[string]any{{"rule": "low-snr", "severity": "warning", "series_number": 2, "series_description": "DWI", "message": "b0 SNR low", "measured": 8.0, "expected": 10.0}}, nil)
-	saveAudit(t, st, store.AuditRecord{AuditTime: today.Add(time.Hour), StudyInstanceUID: a.StudyUID, SeriesUID: dwiSeries(t, a), Scanner: "hgh-mr1-1.5t"},
+	saveAudit(t, st, store.AuditRecord{AuditTime: today.Add(time.Hour), StudyInstanceUID: a.StudyUID, SeriesUID: dwiSeries(t, a), Scanner: "qoh-mr1-1.5t"},
 		[]map[string]any{{"rule": "missing-b0", "severity": "error", "series_number": 2, "series_description": "DWI", "message": "no b0 <here>", "measured": []float64{1000}, "expected": []float64{0}}}, nil)
 	// An audit three days before, for the links to other days.
 	saveAudit(t, st, store.AuditRecord{AuditTime: today.AddDate(0, 0, -3), StudyInstanceUID: "2.25.77", SeriesUID: "2.25.77.2"}, nil, nil)
@@ -87,7 +87,7 @@ func TestDailyListPage(t *testing.T) {
 
 func TestStudyPage(t *testing.T) {
 	st := newTestStore(t)
-	ph := putPhantom(t, st, phantom.Options{Case: phantom.CaseB0ArtifactAliasing, Seed: 3, PatientID: "HGH-SYN-0303", B0Series: true}, "hgh-mr1-1.5t")
+	ph := putPhantom(t, st, phantom.Options{Case: phantom.CaseB0ArtifactAliasing, Seed: 3, PatientID: "QOH-SYN-0303", B0Series: true}, "qoh-mr1-1.5t")
 	dwi := dwiSeries(t, ph)
 	var b0 string
 	for _, s := range ph.Series {
@@ -95,8 +95,8 @@ func TestStudyPage(t *testing.T) {
 			b0 = s.UID
 		}
 	}
-	at := time.Date(2025, 3, 20, 9, 0, 0, 0, hgh)
-	saveAudit(t, st, store.AuditRecord{AuditTime: at, StudyInstanceUID: ph.StudyUID, SeriesUID: dwi, Scanner: "hgh-mr1-1.5t"},
+	at := time.Date(2025, 3, 20, 9, 0, 0, 0, qoh)
+	saveAudit(t, st, store.AuditRecord{AuditTime: at, StudyInstanceUID: ph.StudyUID, SeriesUID: dwi, Scanner: "qoh-mr1-1.5t"},
 		[]map[string]any{{"rule": "b0-only-hotspot", "severity": "error", "message": "b0 alone brighter", "measured": 0.00108, "expected": 0.0007,
 			"region": map[string]any{"slices": []int{1}, "box_pixels": []int{4, 4, 6, 6}}}},
 		map[string]any{"series_number": 2, "protocol": "brain", "bvalues": []float64{0, 1000}, "tissue_adc_median": 0.00079, "csf_adc": 0.00301,
@@ -117,7 +117,7 @@ func TestStudyPage(t *testing.T) {
 		`<img src="/api/v1/series/` + dwi + `/preview.png?slice=1"`,
 		"0.79 ×10⁻³ mm²/s", "3.01 ×10⁻³ mm²/s", "41.3", // measures, ADC as ×10⁻³ mm²/s
 		"1.08 ×10⁻³ mm²/s", "0.70 ×10⁻³ mm²/s", // the finding's measured and expected
-		"b0-only-hotspot", "0, 1000 s/mm²", "brain", `href="/scanners/hgh-mr1-1.5t"`,
+		"b0-only-hotspot", "0, 1000 s/mm²", "brain", `href="/scanners/qoh-mr1-1.5t"`,
 		"*******303",
 		"The maps could not be computed: no diffusion-weighted image",
 		"2 audits, the newest stands",
@@ -142,7 +142,7 @@ func TestStudyPage(t *testing.T) {
 func TestScannerPages(t *testing.T) {
 	st := newTestStore(t)
 	mk := func(c phantom.Case, seed int64, day int, label string) *phantom.Study {
-		return putPhantom(t, st, phantom.Options{Case: c, Seed: seed, PatientID: "HGH-SYN-0400", StudyDate: time.Date(2025, 3, day, 8, 0, 0, 0, time.UTC)}, label)
+		return putPhantom(t, st, phantom.Options{Case: c, Seed: seed, PatientID: "QOH-SYN-0400", StudyDate: time.Date(2025, 3, day, 8, 0, 0, 0, time.UTC)}, label)
 	}
 	auditAt := testNow.Add(-2 * time.Hour)
 	brain := func(ph *phantom.Study, adc float64, test bool) {
@@ -155,15 +155,15 @@ func TestScannerPages(t *testing.T) {
 			map[string]any{"series_number": 2, "protocol": "ice water", "tissue_adc_median": adc, "phantom_adc": adc, "phantom_expected_adc": 0.0011})
 		auditAt = auditAt.Add(time.Minute)
 	}
-	brain(mk(phantom.CaseClean, 1, 10, "hgh-mr1-1.5t"), 0.00079, false)
-	brain(mk(phantom.CaseClean, 2, 12, "hgh-mr1-1.5t"), 0.00081, false)
-	brain(mk(phantom.CaseClean, 3, 14, "hgh-mr1-1.5t"), 0.00150, true) // a test patient: left out
-	water(mk(phantom.CaseIceWater0C, 4, 11, "hgh-mr1-1.5t"), 0.00110)
-	water(mk(phantom.CaseIceWaterWarm, 5, 13, "hgh-mr1-1.5t"), 0.00126) // +14.5%: outside ±3.6%
-	brain(mk(phantom.CaseClean, 6, 12, "hgh-mr2-3t"), 0.00070, false)   // another scanner
+	brain(mk(phantom.CaseClean, 1, 10, "qoh-mr1-1.5t"), 0.00079, false)
+	brain(mk(phantom.CaseClean, 2, 12, "qoh-mr1-1.5t"), 0.00081, false)
+	brain(mk(phantom.CaseClean, 3, 14, "qoh-mr1-1.5t"), 0.00150, true) // a test patient: left out
+	water(mk(phantom.CaseIceWater0C, 4, 11, "qoh-mr1-1.5t"), 0.00110)
+	water(mk(phantom.CaseIceWaterWarm, 5, 13, "qoh-mr1-1.5t"), 0.00126) // +14.5%: outside ±3.6%
+	brain(mk(phantom.CaseClean, 6, 12, "qoh-mr2-3t"), 0.00070, false)   // another scanner
 	h := newPages(t, st, func(o *Options) { o.PhantomTolerance = func(string) float64 { return 0 } })
 
-	code, body := getPage(t, h, "/scanners/hgh-mr1-1.5t")
+	code, body := getPage(t, h, "/scanners/qoh-mr1-1.5t")
 	if code != http.StatusOK {
 		t.Fatalf("GET scanner: %d\n%s", code, body)
 	}
@@ -197,7 +197,7 @@ func TestScannerPages(t *testing.T) {
 
 	t.Run("the list of scanners has the configured and the seen labels", func(t *testing.T) {
 		code, body := getPage(t, h, "/scanners")
-		for _, want := range []string{`href="/scanners/hgh-mr1-1.5t"`, `href="/scanners/hgh-mr2-3t"`, "not a configured peer", `href="/scanners/hgh-mr3-3t"`, "nothing received yet"} {
+		for _, want := range []string{`href="/scanners/qoh-mr1-1.5t"`, `href="/scanners/qoh-mr2-3t"`, "not a configured peer", `href="/scanners/qoh-mr3-3t"`, "nothing received yet"} {
 			if code != http.StatusOK || !strings.Contains(body, want) {
 				t.Errorf("GET /scanners: %d, lacks %q", code, want)
 			}
@@ -205,13 +205,13 @@ func TestScannerPages(t *testing.T) {
 	})
 	t.Run("a span outside 1 to 3650 days is a 400", func(t *testing.T) {
 		for _, q := range []string{"0", "3651", "ten"} {
-			if code, _ := getPage(t, h, "/scanners/hgh-mr1-1.5t?days="+q); code != http.StatusBadRequest {
+			if code, _ := getPage(t, h, "/scanners/qoh-mr1-1.5t?days="+q); code != http.StatusBadRequest {
 				t.Errorf("days=%s: %d", q, code)
 			}
 		}
 	})
 	t.Run("a scanner without audits shows empty plots", func(t *testing.T) {
-		code, body := getPage(t, h, "/scanners/hgh-mr3-3t")
+		code, body := getPage(t, h, "/scanners/qoh-mr3-3t")
 		if code != http.StatusOK || strings.Count(body, "No values in this span.") != 3 || strings.Contains(body, "<svg") {
 			t.Errorf("GET empty scanner: %d", code)
 		}

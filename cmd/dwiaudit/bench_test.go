@@ -211,7 +211,7 @@ func TestServeReceivesABigObjectInLittleMemory(t *testing.T) {
 	in := testInstance{Study: "2.25.600", Series: "2.25.601", SOP: "2.25.602", Number: 1, Rows: 256, Columns: 256, Frames: bigFrames, Seed: 6}
 	start := time.Now()
 	ctx := context.Background()
-	a, err := dialNode(ctx, n.dicomAddr, "HGH_MR1")
+	a, err := dialNode(ctx, n.dicomAddr, "QOH_MR1")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -110,19 +110,19 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 	chromium := needChromium(t)
 	cfg := filepath.Join(t.TempDir(), "node.yaml")
 	conf := `peers:
-  - {ae_title: HGH_MR1, scanner: hgh-mr1-1.5t}
-  - {ae_title: HGH_QA, scanner: hgh-mr2-3t}
+  - {ae_title: QOH_MR1, scanner: qoh-mr1-1.5t}
+  - {ae_title: QOH_QA, scanner: qoh-mr2-3t}
 `
 	if err := os.WriteFile(cfg, []byte(conf), 0o644); err != nil {
 		t.Fatal(err)
 	}
 	n := startNode(t, t.TempDir(), "--config", cfg, "--settle", "1s")
 
-	// Invented patients of the invented Harbourview General Hospital.
+	// Invented patients of the invented Quellvander Ostmire Hospital.
 	day := func(d int) time.Time { return time.Date(2025, 3, d, 9, 30, 0, 0, time.UTC) }
 	clinical := func(c phantom.Case, seed int64, d int, matrix, slices int) *browserStudy {
-		return &browserStudy{calling: "HGH_MR1", opt: phantom.Options{Case: c, Matrix: matrix, Slices: slices, Seed: seed,
-			StudyDate: day(d), PatientName: "TEST^SYNTHETIC", PatientID: fmt.Sprintf("HGH-SYN-%04d", seed)}}
+		return &browserStudy{calling: "QOH_MR1", opt: phantom.Options{Case: c, Matrix: matrix, Slices: slices, Seed: seed,
+			StudyDate: day(d), PatientName: "TEST^SYNTHETIC", PatientID: fmt.Sprintf("QOH-SYN-%04d", seed)}}
 	}
 	clean := clinical(phantom.CaseClean, 11, 10, 32, 6)
 	noB0 := clinical(phantom.CaseNoB0, 12, 11, 32, 6)
@@ -133,8 +133,8 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 	// Ice-water phantoms on the QA scanner on three days, one warm
 	// (its ADC above the 0 °C band).
 	for i, c := range []phantom.Case{phantom.CaseIceWater0C, phantom.CaseIceWater0C, phantom.CaseIceWaterWarm} {
-		studies = append(studies, &browserStudy{calling: "HGH_QA", opt: phantom.Options{Case: c, Matrix: 32, Slices: 4, Seed: int64(21 + i),
-			StudyDate: day(3 + 7*i), PatientName: "TEST^SYNTHETIC", PatientID: fmt.Sprintf("HGH-QA-%04d", 21+i)}})
+		studies = append(studies, &browserStudy{calling: "QOH_QA", opt: phantom.Options{Case: c, Matrix: 32, Slices: 4, Seed: int64(21 + i),
+			StudyDate: day(3 + 7*i), PatientName: "TEST^SYNTHETIC", PatientID: fmt.Sprintf("QOH-QA-%04d", 21+i)}})
 	}
 	var dwis []string
 	for _, s := range studies {
@@ -199,7 +199,7 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 		}
 		// No patient names on any page; IDs masked (the last three
 		// characters only).
-		if strings.Contains(body, "SYNTHETIC") || strings.Contains(body, "HGH-SYN-") || strings.Contains(body, "HGH-QA-") {
+		if strings.Contains(body, "SYNTHETIC") || strings.Contains(body, "QOH-SYN-") || strings.Contains(body, "QOH-QA-") {
 			t.Errorf("%s shows a patient name or an unmasked patient ID", page)
 		}
 	}
@@ -248,7 +248,7 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 		if len(widths) == 0 || slices.Contains(widths, 0) {
 			t.Errorf("preview widths %v: want at least one, each loaded (naturalWidth > 0)", widths)
 		}
-		for _, want := range []string{rules.HotspotID, "Parenchyma median ADC", "×10⁻³ mm²/s", "b0 SNR", "hgh-mr1-1.5t"} {
+		for _, want := range []string{rules.HotspotID, "Parenchyma median ADC", "×10⁻³ mm²/s", "b0 SNR", "qoh-mr1-1.5t"} {
 			if !strings.Contains(body, want) {
 				t.Errorf("the study page lacks %q", want)
 			}
@@ -257,7 +257,7 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 	})
 
 	t.Run("the scanner page plots the phantom ADC with its band", func(t *testing.T) {
-		body := load(t, "/scanners/hgh-mr2-3t?days=3650", "svg.plot")
+		body := load(t, "/scanners/qoh-mr2-3t?days=3650", "svg.plot")
 		points := browserEval[map[string]int](t, bctx, `Object.fromEntries(Array.from(document.querySelectorAll("figure.trend")).map(f => [f.querySelector("figcaption strong").textContent, f.querySelectorAll("svg .pt").length]))`)
 		bands := browserEval[int](t, bctx, `document.querySelectorAll("svg.plot .band").length`)
 		shot(t, "scanner.png")
@@ -271,7 +271,7 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 	})
 
 	t.Run("the clinical scanner's page plots the parenchyma ADC", func(t *testing.T) {
-		load(t, "/scanners/hgh-mr1-1.5t?days=3650", "svg.plot")
+		load(t, "/scanners/qoh-mr1-1.5t?days=3650", "svg.plot")
 		points := browserEval[int](t, bctx, `document.querySelector("figure.trend svg").querySelectorAll(".pt").length`)
 		// The clean and the hotspot series have a parenchyma median; the
 		// no-b0 series has no ADC at all.

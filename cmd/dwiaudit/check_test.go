@@ -232,7 +232,7 @@ func TestCheckJSONGolden(t *testing.T) {
 		Series: []audit.SeriesReport{
 			{
 				StudyUID: "2.25.1", SeriesUID: "2.25.1.2", SeriesNumber: 2, SeriesDescription: "DWI b0 b1000 3dir",
-				Scanner: "HGH-MR1", Protocol: "brain", BValues: []float64{0, 1000},
+				Scanner: "QOH-MR1", Protocol: "brain", BValues: []float64{0, 1000},
 				Measures: analysis.Measures{ParenchymaMedianADC: 0.00079, CSFADC: 0.00301, B0SNR: 58.25},
 			},
 			{

@@ -39,10 +39,10 @@ func TestValidateListsEveryProblemByField(t *testing.T) {
 	c.Node.DataDir = ""
 	c.Node.TimeZone = "Mars/Olympus"
 	c.Peers = []PeerConfig{
-		{AETitle: "HGH_MR1", Scanner: "hgh-mr1", Networks: []string{"10.20.0.0/16", "10.30.0.0"}},
-		{AETitle: "HGH_MR1", Scanner: "HGH MR1"},
-		{AETitle: "HGH_MR3", Scanner: ""},
-		{AETitle: "HGH_MR4", Scanner: strings.Repeat("a", 33)},
+		{AETitle: "QOH_MR1", Scanner: "qoh-mr1", Networks: []string{"10.20.0.0/16", "10.30.0.0"}},
+		{AETitle: "QOH_MR1", Scanner: "QOH MR1"},
+		{AETitle: "QOH_MR3", Scanner: ""},
+		{AETitle: "QOH_MR4", Scanner: strings.Repeat("a", 33)},
 	}
 	c.Limits.MaxAssociations = 0
 	c.Limits.MaxPDULength = 1024
@@ -64,8 +64,8 @@ func TestValidateListsEveryProblemByField(t *testing.T) {
 		"node.data_dir: empty",
 		`node.time_zone: unknown time zone "Mars/Olympus"`,
 		`peers[0].networks[1]: "10.30.0.0" is not a network in CIDR notation`,
-		`peers[1].ae_title: duplicate of peers[0].ae_title "HGH_MR1"`,
-		`peers[1].scanner: "HGH MR1": use lower-case letters`,
+		`peers[1].ae_title: duplicate of peers[0].ae_title "QOH_MR1"`,
+		`peers[1].scanner: "QOH MR1": use lower-case letters`,
 		"peers[2].scanner: missing",
 		`peers[3].scanner: "aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa" is longer than 32 characters`,
 		"limits.max_associations: 0 is below 1",
@@ -87,11 +87,11 @@ func TestValidateListsEveryProblemByField(t *testing.T) {
 }
 
 func TestParseConfigNamesTheFieldOfEveryDecodingProblem(t *testing.T) {
-	yaml := `node: {ae_title: HGH_NODE, dicom_listen: ":104", time_zon: UTC}
+	yaml := `node: {ae_title: QOH_NODE, dicom_listen: ":104", time_zon: UTC}
 peers:
-  - {ae_title: HGH_MR1, scanner: hgh-mr1-1.5t, networks: ["10.20.0.0/16"]}
-  - ae_title: HGH_MR2
-    scanner: hgh-mr2
+  - {ae_title: QOH_MR1, scanner: qoh-mr1-1.5t, networks: ["10.20.0.0/16"]}
+  - ae_title: QOH_MR2
+    scanner: qoh-mr2
     netwerks: ["10.0.0.0/8"]
 limits:
   max_associations: many
@@ -123,7 +123,7 @@ log: {level: loud, format: xml}
 		t.Errorf("problems:\n  %s\nwant:\n  %s", strings.Join(ce.Problems, "\n  "), strings.Join(want, "\n  "))
 	}
 	// What did decode is kept, over the defaults.
-	if c.Node.AETitle != "HGH_NODE" || c.Limits.DiskFloor != 3<<30 || len(c.Peers) != 2 || c.Peers[0].Scanner != "hgh-mr1-1.5t" {
+	if c.Node.AETitle != "QOH_NODE" || c.Limits.DiskFloor != 3<<30 || len(c.Peers) != 2 || c.Peers[0].Scanner != "qoh-mr1-1.5t" {
 		t.Errorf("decoded %+v", c)
 	}
 }
@@ -179,7 +179,7 @@ func TestExampleConfigParsesAndValidates(t *testing.T) {
 	if err != nil {
 		t.Fatalf("with the peers uncommented: %v", err)
 	}
-	if len(c.Peers) != 2 || c.Peers[0].Scanner != "hgh-mr1-1.5t" || c.Peers[0].Networks[0] != "10.20.0.0/16" {
+	if len(c.Peers) != 2 || c.Peers[0].Scanner != "qoh-mr1-1.5t" || c.Peers[0].Networks[0] != "10.20.0.0/16" {
 		t.Errorf("peers %+v", c.Peers)
 	}
 }
@@ -220,8 +220,8 @@ func TestByteSizeParsesAndPrintsBinaryUnits(t *testing.T) {
 
 func TestPeerTableAllowsOnlyKnownAETitlesFromTheirNetworks(t *testing.T) {
 	peers := newPeerTable([]PeerConfig{
-		{AETitle: "HGH_MR1", Scanner: "hgh-mr1", Networks: []string{"10.20.0.0/16", "fd00::/8"}},
-		{AETitle: "HGH_MR2", Scanner: "hgh-mr2"},
+		{AETitle: "QOH_MR1", Scanner: "qoh-mr1", Networks: []string{"10.20.0.0/16", "fd00::/8"}},
+		{AETitle: "QOH_MR2", Scanner: "qoh-mr2"},
 	})
 	tcp := func(s string) net.Addr { return net.TCPAddrFromAddrPort(netip.MustParseAddrPort(s)) }
 	tests := []struct {
@@ -230,13 +230,13 @@ func TestPeerTableAllowsOnlyKnownAETitlesFromTheirNetworks(t *testing.T) {
 		remote net.Addr
 		want   bool
 	}{
-		{"a peer inside its network is allowed", "HGH_MR1", tcp("10.20.3.4:5000"), true},
-		{"a peer outside its network is refused", "HGH_MR1", tcp("10.21.3.4:5000"), false},
-		{"a peer inside its IPv6 network is allowed", "HGH_MR1", tcp("[fd12::1]:104"), true},
-		{"an IPv4-mapped address matches its IPv4 network", "HGH_MR1", tcp("[::ffff:10.20.0.9]:104"), true},
-		{"a peer without networks is allowed from anywhere", "HGH_MR2", tcp("192.0.2.1:104"), true},
-		{"an unknown AE title is refused", "HGH_MR9", tcp("10.20.3.4:5000"), false},
-		{"AE titles match without their padding", "HGH_MR2 ", tcp("192.0.2.1:104"), true},
+		{"a peer inside its network is allowed", "QOH_MR1", tcp("10.20.3.4:5000"), true},
+		{"a peer outside its network is refused", "QOH_MR1", tcp("10.21.3.4:5000"), false},
+		{"a peer inside its IPv6 network is allowed", "QOH_MR1", tcp("[fd12::1]:104"), true},
+		{"an IPv4-mapped address matches its IPv4 network", "QOH_MR1", tcp("[::ffff:10.20.0.9]:104"), true},
+		{"a peer without networks is allowed from anywhere", "QOH_MR2", tcp("192.0.2.1:104"), true},
+		{"an unknown AE title is refused", "QOH_MR9", tcp("10.20.3.4:5000"), false},
+		{"AE titles match without their padding", "QOH_MR2 ", tcp("192.0.2.1:104"), true},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -245,13 +245,13 @@ func TestPeerTableAllowsOnlyKnownAETitlesFromTheirNetworks(t *testing.T) {
 			}
 		})
 	}
-	if got := peers.scanner("HGH_MR2"); got != "hgh-mr2" {
-		t.Errorf("scanner(HGH_MR2) = %q", got)
+	if got := peers.scanner("QOH_MR2"); got != "qoh-mr2" {
+		t.Errorf("scanner(QOH_MR2) = %q", got)
 	}
 	if got := newPeerTable(nil).allow("ANYONE", tcp("192.0.2.1:104")); !got {
 		t.Error("with no peers configured, a calling AE title was refused")
 	}
-	if got := peers.callingAETitles(); !slices.Equal(got, []string{"HGH_MR1", "HGH_MR2"}) {
+	if got := peers.callingAETitles(); !slices.Equal(got, []string{"QOH_MR1", "QOH_MR2"}) {
 		t.Errorf("callingAETitles() = %v", got)
 	}
 }

@@ -150,7 +150,7 @@ func TestCrashKeepsEveryAcknowledgedInstance(t *testing.T) {
 // crashSend sends instances on one association until the node dies.
 func crashSend(addr string, round, worker int, out *crashOutcome) {
 	ctx := context.Background()
-	a, err := dialNode(ctx, addr, fmt.Sprintf("HGH_MR%d", worker+1))
+	a, err := dialNode(ctx, addr, fmt.Sprintf("QOH_MR%d", worker+1))
 	if err != nil {
 		out.mu.Lock()
 		out.noDial++

@@ -3,7 +3,7 @@ package main
 // `dwiaudit demo`: the whole job in one command, on embedded defaults.
 // A real node (serve, in-process, on free loopback ports and a temporary
 // data folder) receives four days of synthetic studies from the three
-// scanners of the invented Harbourview General Hospital over the real
+// scanners of the invented Quellvander Ostmire Hospital over the real
 // DICOM path, audits them, and the demo prints each day's discrepancy
 // list, the findings per rule with the planted defect behind each, the
 // drifting scanner's phantom ADC, and where to look in the web pages.
@@ -34,7 +34,7 @@ import (
 // accessionOf is the Accession Number phantom.Write gives a study of
 // seed (audit/phantom/phantom.go), for the reader to find the study in
 // the daily list.
-func accessionOf(seed int64) string { return fmt.Sprintf("HGHSYN%06d", uint64(seed)%1000000) }
+func accessionOf(seed int64) string { return fmt.Sprintf("QOHSYN%06d", uint64(seed)%1000000) }
 
 // Settings of the demo node.
 const (
@@ -60,15 +60,15 @@ type demoScanner struct {
 	profile phantom.ScannerProfile
 }
 
-// demoScanners are Harbourview General Hospital's three scanners: the
+// demoScanners are Quellvander Ostmire Hospital's three scanners: the
 // station identities phantom.Scanners writes, with a label and an AE
 // title each.
 func demoScanners() []demoScanner {
 	p := phantom.Scanners()
 	return []demoScanner{
-		{"hgh-mr1-1.5t", "HGH_MR1", p[0]},
-		{"hgh-mr2-3t", "HGH_MR2", p[1]},
-		{"hgh-mr3-3t", "HGH_MR3", p[2]},
+		{"qoh-mr1-1.5t", "QOH_MR1", p[0]},
+		{"qoh-mr2-3t", "QOH_MR2", p[1]},
+		{"qoh-mr3-3t", "QOH_MR3", p[2]},
 	}
 }
 
@@ -96,7 +96,7 @@ func (s demoStudy) name() string {
 	return s.plant.name
 }
 
-// driftScales is the weighting scanner hgh-mr1-1.5t applies relative to
+// driftScales is the weighting scanner qoh-mr1-1.5t applies relative to
 // its header on each day, its gradient calibration drifting upward: the
 // ice-water phantom reads its ADC that much high. Inside the ice-water
 // profile's ±3.6% (from memory, DOMAIN.md) for three days, outside it
@@ -284,7 +284,7 @@ type demo struct {
 func (d *demo) run(ctx context.Context, exit, keepData bool) int {
 	w := d.env.stdout
 	start := time.Now()
-	fmt.Fprintln(w, "dwiaudit demo: the invented Harbourview General Hospital, three scanners, four days of synthetic studies")
+	fmt.Fprintln(w, "dwiaudit demo: the invented Quellvander Ostmire Hospital, three scanners, four days of synthetic studies")
 	fmt.Fprintln(w, cautionLine)
 	fmt.Fprintln(w)
 
@@ -410,7 +410,7 @@ func (d *demo) runDay(ctx context.Context, client *findingsClient, day int) erro
 		opt := phantom.Options{
 			Matrix: suiteMatrix, Slices: suiteSlices, Seed: int64(1000 + i),
 			Scanner: sc.profile, StudyDate: at, AppliedBScale: s.bScale,
-			PatientID: fmt.Sprintf("HGH-SYN-%04d", i+1), PatientName: "TEST^SYNTHETIC",
+			PatientID: fmt.Sprintf("QOH-SYN-%04d", i+1), PatientName: "TEST^SYNTHETIC",
 		}
 		if s.plant.cse == phantom.CaseIceWater0C || s.plant.cse == phantom.CaseIceWaterWarm {
 			opt.PatientName = "QA^ICEWATER"

@@ -47,8 +47,8 @@ func TestDemoKeepsServingItsPagesUntilStopped(t *testing.T) {
 	pages := []struct{ path, want string }{
 		{"/", "b0-only-hotspot"},
 		{"/", "it does not diagnose"},
-		{"/scanners/hgh-mr1-1.5t", "<svg"},
-		{"/metrics", `dwiaudit_phantom_adc_bias_ratio{phantom="ice water",scanner="hgh-mr1-1.5t"}`},
+		{"/scanners/qoh-mr1-1.5t", "<svg"},
+		{"/metrics", `dwiaudit_phantom_adc_bias_ratio{phantom="ice water",scanner="qoh-mr1-1.5t"}`},
 	}
 	for _, p := range pages {
 		res, err := http.Get(base + p.path)

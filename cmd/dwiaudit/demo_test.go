@@ -46,7 +46,7 @@ func TestDemoExitShowsEveryRuleOnItsPlantedStudyAndNothingOnTheCleanOnes(t *test
 		if n := strings.Count(out, "Daily discrepancy list "); n != 4 {
 			t.Errorf("%d daily lists in the output, want 4", n)
 		}
-		for _, path := range []string{"/days/", "/studies/", "/scanners/hgh-mr1-1.5t", "/metrics"} {
+		for _, path := range []string{"/days/", "/studies/", "/scanners/qoh-mr1-1.5t", "/metrics"} {
 			if !strings.Contains(out, path) {
 				t.Errorf("the output gives no %s URL", path)
 			}
@@ -191,7 +191,7 @@ func BenchmarkDemo(b *testing.B) {
 }
 
 func TestTheDemoClockKeepsTheScenarioOnItsDaysNearMidnight(t *testing.T) {
-	loc := time.FixedZone("HGH", 3600)
+	loc := time.FixedZone("QOH", 3600)
 	late := time.Date(2026, 12, 2, 23, 59, 50, 0, loc)
 	var c demoClock
 	c.begin(late, loc)

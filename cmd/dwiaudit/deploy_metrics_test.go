@@ -203,10 +203,10 @@ func TestEveryMetricTheDeployFilesUseIsExported(t *testing.T) {
 		t.Fatal("the deploy files name no metric")
 	}
 
-	// Two invented studies from one scanner of Harbourview General: a
+	// Two invented studies from one scanner of Quellvander Ostmire: a
 	// clean brain study (drift gauges) and an ice-water phantom scanned
 	// warm (phantom gauges and a phantom-adc-bias finding).
-	const patientID, patientName = "HGH-SYN-0042", "TEST^SYNTHETIC"
+	const patientID, patientName = "QOH-SYN-0042", "TEST^SYNTHETIC"
 	var studies []*phantom.Study
 	src := t.TempDir()
 	for _, c := range []phantom.Case{phantom.CaseClean, phantom.CaseIceWaterWarm} {
@@ -219,11 +219,11 @@ func TestEveryMetricTheDeployFilesUseIsExported(t *testing.T) {
 		studies = append(studies, st)
 	}
 	cfg := filepath.Join(t.TempDir(), "dwiaudit.yaml")
-	if err := os.WriteFile(cfg, []byte("peers:\n  - ae_title: HGH_MR1\n    scanner: hgh-mr1\n"), 0o644); err != nil {
+	if err := os.WriteFile(cfg, []byte("peers:\n  - ae_title: QOH_MR1\n    scanner: qoh-mr1\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
 	n := startNode(t, t.TempDir(), "--config", cfg, "--settle", "1s")
-	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "HGH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
+	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "QOH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
 		t.Fatalf("send exited %d: %s", r.code, r.stderr)
 	}
 	phantomSeries := studies[1].Series[len(studies[1].Series)-1].UID
@@ -242,16 +242,16 @@ func TestEveryMetricTheDeployFilesUseIsExported(t *testing.T) {
 		{"dwiaudit_build_info", map[string]string{"version": "*", "goversion": "*"}},
 		{"dwiaudit_associations_total", map[string]string{"result": "*"}},
 		{"dwiaudit_cstore_responses_total", map[string]string{"status_class": "success"}},
-		{"dwiaudit_received_instances_total", map[string]string{"scanner": "hgh-mr1"}},
-		{"dwiaudit_received_bytes_total", map[string]string{"scanner": "hgh-mr1"}},
+		{"dwiaudit_received_instances_total", map[string]string{"scanner": "qoh-mr1"}},
+		{"dwiaudit_received_bytes_total", map[string]string{"scanner": "qoh-mr1"}},
 		{"dwiaudit_audits_total", map[string]string{"result": "ok"}},
-		{"dwiaudit_findings_total", map[string]string{"scanner": "hgh-mr1", "rule": rules.IDPhantomADCBias, "severity": "warning"}},
-		{"dwiaudit_series_parenchyma_adc_square_meters_per_second", map[string]string{"scanner": "hgh-mr1", "protocol": "brain"}},
-		{"dwiaudit_series_csf_adc_square_meters_per_second", map[string]string{"scanner": "hgh-mr1", "protocol": "brain"}},
-		{"dwiaudit_series_b0_snr", map[string]string{"scanner": "hgh-mr1", "protocol": "brain"}},
-		{"dwiaudit_series_audited_timestamp_seconds", map[string]string{"scanner": "hgh-mr1", "protocol": "brain"}},
-		{"dwiaudit_phantom_adc_square_meters_per_second", map[string]string{"scanner": "hgh-mr1", "phantom": "ice water"}},
-		{"dwiaudit_phantom_adc_bias_ratio", map[string]string{"scanner": "hgh-mr1", "phantom": "ice water"}},
+		{"dwiaudit_findings_total", map[string]string{"scanner": "qoh-mr1", "rule": rules.IDPhantomADCBias, "severity": "warning"}},
+		{"dwiaudit_series_parenchyma_adc_square_meters_per_second", map[string]string{"scanner": "qoh-mr1", "protocol": "brain"}},
+		{"dwiaudit_series_csf_adc_square_meters_per_second", map[string]string{"scanner": "qoh-mr1", "protocol": "brain"}},
+		{"dwiaudit_series_b0_snr", map[string]string{"scanner": "qoh-mr1", "protocol": "brain"}},
+		{"dwiaudit_series_audited_timestamp_seconds", map[string]string{"scanner": "qoh-mr1", "protocol": "brain"}},
+		{"dwiaudit_phantom_adc_square_meters_per_second", map[string]string{"scanner": "qoh-mr1", "phantom": "ice water"}},
+		{"dwiaudit_phantom_adc_bias_ratio", map[string]string{"scanner": "qoh-mr1", "phantom": "ice water"}},
 	}
 	// The gauges follow the saved audit closely; poll until the last of
 	// them is there.

@@ -230,7 +230,7 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 	// A700, the condition of DwiauditDiskBelowFloor and of
 	// DwiauditIngestFailures.
 	cfg := filepath.Join(t.TempDir(), "dwiaudit.yaml")
-	conf := "limits:\n  disk_floor: 1000000TiB\npeers:\n  - ae_title: HGH_MR1\n    scanner: hgh-mr1\n"
+	conf := "limits:\n  disk_floor: 1000000TiB\npeers:\n  - ae_title: QOH_MR1\n    scanner: qoh-mr1\n"
 	if err := os.WriteFile(cfg, []byte(conf), 0o644); err != nil {
 		t.Fatal(err)
 	}
@@ -243,7 +243,7 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 			return len(shippedPromQuery(t, base, fmt.Sprintf(`up{job="dwiaudit", instance=%q} == 1`, target))) == 1
 		})
 		got := shippedPromQuery(t, base, `dwiaudit_build_info`)
-		if len(got) != 1 || got[0]["site"] != "harbourview-general" || got[0]["job"] != "dwiaudit" {
+		if len(got) != 1 || got[0]["site"] != "quellvander-ostmire" || got[0]["job"] != "dwiaudit" {
 			t.Errorf("dwiaudit_build_info in Prometheus: %v, want one series with job dwiaudit and the site label", got)
 		}
 	})
@@ -254,7 +254,7 @@ func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
 		t.Helper()
 		in := testInstance{Study: "2.25.300", Series: "2.25.301", SOP: sop, Number: 1, Rows: 32, Columns: 32, Seed: 1}
 		// PS3.4 B.2.3 Table B.2-1: A7xx Refused: Out of Resources.
-		if rsp, _ := storeOne(t, n.dicomAddr, "HGH_MR1", in, in.reader()); rsp.Status != dimse.StatusOutOfResources {
+		if rsp, _ := storeOne(t, n.dicomAddr, "QOH_MR1", in, in.reader()); rsp.Status != dimse.StatusOutOfResources {
 			t.Fatalf("C-STORE status %v, want %v", rsp.Status, dimse.StatusOutOfResources)
 		}
 	}

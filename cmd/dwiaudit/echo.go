@@ -11,7 +11,7 @@ import (
 func runEcho(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "echo", "[flags] HOST:PORT")
 	calling := fs.String("calling-ae", scp.DefaultCallingAETitle, "our (calling) AE title")
-	called := fs.String("called-ae", scp.DefaultCalledAETitle, "the peer's (called) AE title")
+	called := fs.String("called-ae", scp.DefaultCalledAETitle, "the peer's (called) AE title; the default is a dwiaudit node's own")
 	timeout := fs.Duration("timeout", 30*time.Second, "give up after this long")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code

@@ -46,8 +46,8 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 		StudyInstanceUID: "2.25.1", StudyDate: "20250314", AccessionNumber: "SYNACC0001", PatientID: "SYN0001", PatientName: "TEST^SYNTHETIC",
 		FirstReceived: received, LastReceived: received,
 		Series: []store.Series{
-			{SeriesInstanceUID: "2.25.2", SeriesNumber: 1, ScannerLabel: "hgh-mr1", Instances: 16, Bytes: 1600, FirstReceived: received, LastReceived: received},
-			{SeriesInstanceUID: "2.25.3", SeriesNumber: 2, ScannerLabel: "hgh-mr1", Instances: 4, Bytes: 400, FirstReceived: received, LastReceived: received},
+			{SeriesInstanceUID: "2.25.2", SeriesNumber: 1, ScannerLabel: "qoh-mr1", Instances: 16, Bytes: 1600, FirstReceived: received, LastReceived: received},
+			{SeriesInstanceUID: "2.25.3", SeriesNumber: 2, ScannerLabel: "qoh-mr1", Instances: 4, Bytes: 400, FirstReceived: received, LastReceived: received},
 		},
 	}}}
 	up := true
@@ -94,7 +94,7 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 			t.Errorf("got %+v", got)
 		}
 		st := got.Studies[0]
-		if st.Instances != 20 || len(st.Series) != 2 || st.Series[0].Scanner != "hgh-mr1" || st.Series[1].Instances != 4 {
+		if st.Instances != 20 || len(st.Series) != 2 || st.Series[0].Scanner != "qoh-mr1" || st.Series[1].Instances != 4 {
 			t.Errorf("study %+v", st)
 		}
 		// 08:31 UTC is 09:31 in Paris in March (CET, UTC+1; IANA tz database).

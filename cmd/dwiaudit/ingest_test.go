@@ -62,16 +62,16 @@ func (p *recordingPutter) Put(ctx context.Context, req store.PutRequest, data io
 
 func TestIngestPassesTheRequestAndTheScannerLabelToTheStore(t *testing.T) {
 	p := &recordingPutter{}
-	h := &ingest{store: p, peers: newPeerTable([]PeerConfig{{AETitle: "HGH_MR1", Scanner: "hgh-mr1-1.5t"}})}
+	h := &ingest{store: p, peers: newPeerTable([]PeerConfig{{AETitle: "QOH_MR1", Scanner: "qoh-mr1-1.5t"}})}
 	err := h.HandleStore(context.Background(), &scp.StoreRequest{
-		CallingAETitle: "HGH_MR1", SOPClassUID: scp.MRImageStorage, SOPInstanceUID: "2.25.5",
+		CallingAETitle: "QOH_MR1", SOPClassUID: scp.MRImageStorage, SOPInstanceUID: "2.25.5",
 		TransferSyntaxUID: scp.ExplicitVRLittleEndian, Data: bytes.NewReader([]byte("data set")),
 	})
 	if err != nil {
 		t.Fatal(err)
 	}
 	want := store.PutRequest{SOPClassUID: scp.MRImageStorage, SOPInstanceUID: "2.25.5", TransferSyntaxUID: scp.ExplicitVRLittleEndian,
-		CallingAETitle: "HGH_MR1", ScannerLabel: "hgh-mr1-1.5t"}
+		CallingAETitle: "QOH_MR1", ScannerLabel: "qoh-mr1-1.5t"}
 	if p.req != want || string(p.data) != "data set" {
 		t.Errorf("store got %+v %q, want %+v", p.req, p.data, want)
 	}

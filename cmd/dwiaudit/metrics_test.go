@@ -44,7 +44,7 @@ func writeNodeConfig(t *testing.T, aeTitle, scanner string) string {
 }
 
 // cleanBrainStudy writes a small clean synthetic brain study (the
-// invented Harbourview General Hospital's HGH-MR1) and returns its
+// invented Quellvander Ostmire Hospital's QOH-MR1) and returns its
 // folder and the data-set bytes of its files (each file less its
 // preamble and file meta, PS3.10 7.1).
 func cleanBrainStudy(t *testing.T) (string, int64) {
@@ -200,9 +200,9 @@ func resultValue(t *testing.T, r promResult) float64 {
 func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	prom := scptest.NeedTool(t, "prometheus", "prometheus")
 	src, _ := cleanBrainStudy(t)
-	n := startNode(t, t.TempDir(), "--config", writeNodeConfig(t, "HGH_MR1", "hgh-mr1-1.5t"), "--settle", "1s")
+	n := startNode(t, t.TempDir(), "--config", writeNodeConfig(t, "QOH_MR1", "qoh-mr1-1.5t"), "--settle", "1s")
 	promAddr, promExited := startPrometheus(t, prom, strings.TrimPrefix(n.httpURL, "http://"))
-	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "HGH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
+	if r := runCLI(t, "send", "--to", n.dicomAddr, "--calling-ae", "QOH_MR1", "--called-ae", testAE, "--quiet", src); r.code != exitOK {
 		t.Fatalf("send exited %d", r.code)
 	}
 
@@ -225,8 +225,8 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	}
 	// The peer's configured label, the default brain protocol's name
 	// (rules.DefaultConfig) and Prometheus' own job label.
-	if m := got[0].Metric; m["scanner"] != "hgh-mr1-1.5t" || m["protocol"] != "brain" || m["job"] != "dwiaudit" {
-		t.Errorf("series labels %v, want scanner hgh-mr1-1.5t, protocol brain, job dwiaudit", m)
+	if m := got[0].Metric; m["scanner"] != "qoh-mr1-1.5t" || m["protocol"] != "brain" || m["job"] != "dwiaudit" {
+		t.Errorf("series labels %v, want scanner qoh-mr1-1.5t, protocol brain, job dwiaudit", m)
 	}
 	// DOMAIN.md (Helenius 2002): white matter 0.70e-3 and cortex 0.89e-3
 	// mm²/s, the synthetic phantom's truth; the parenchyma median lies
@@ -239,26 +239,26 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	if up := promQuery(t, promAddr, `up{job="dwiaudit"}`); len(up) != 1 || resultValue(t, up[0]) != 1 {
 		t.Errorf("up = %v, want 1", up)
 	}
-	if in := promQuery(t, promAddr, `dwiaudit_received_instances_total{scanner="hgh-mr1-1.5t"}`); len(in) != 1 || resultValue(t, in[0]) < 1 {
-		t.Errorf("received instances %v, want at least one from hgh-mr1-1.5t", in)
+	if in := promQuery(t, promAddr, `dwiaudit_received_instances_total{scanner="qoh-mr1-1.5t"}`); len(in) != 1 || resultValue(t, in[0]) < 1 {
+		t.Errorf("received instances %v, want at least one from qoh-mr1-1.5t", in)
 	}
 }
 
 func TestARestartedNodeShowsTheLastDriftValuesBeforeAnyNewAudit(t *testing.T) {
 	src, dataSetBytes := cleanBrainStudy(t)
 	data := t.TempDir()
-	// No peers: the scanner label comes from the Station Name, HGH-MR1
+	// No peers: the scanner label comes from the Station Name, QOH-MR1
 	// (audit/phantom Scanners), sanitised.
 	n := startNode(t, data, "--settle", "1s")
 	if r := runCLI(t, "send", "--to", n.dicomAddr, "--called-ae", testAE, "--quiet", src); r.code != exitOK {
 		t.Fatalf("send exited %d", r.code)
 	}
-	line := parenchymaGauge + `{protocol="brain",scanner="hgh-mr1"} `
+	line := parenchymaGauge + `{protocol="brain",scanner="qoh-mr1"} `
 	before := awaitMetricLine(t, n, line, metricsWait)
 	body := scrapeNode(t, n)
 	for _, want := range []string{
-		"dwiaudit_received_instances_total{scanner=\"hgh-mr1\"} 20\n", // b0 and three b1000 directions and the trace, on 4 slices
-		fmt.Sprintf("dwiaudit_received_bytes_total{scanner=\"hgh-mr1\"} %d\n", dataSetBytes),
+		"dwiaudit_received_instances_total{scanner=\"qoh-mr1\"} 20\n", // b0 and three b1000 directions and the trace, on 4 slices
+		fmt.Sprintf("dwiaudit_received_bytes_total{scanner=\"qoh-mr1\"} %d\n", dataSetBytes),
 		"dwiaudit_cstore_responses_total{status_class=\"success\"} 20\n",
 		`dwiaudit_audits_total{result="ok"} 1`,
 		`dwiaudit_associations_total{result="released"} 1`,

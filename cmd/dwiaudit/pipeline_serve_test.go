@@ -79,7 +79,7 @@ func TestStorescuToServeShowsTheFindingsWithinTenSeconds(t *testing.T) {
 	n := startNode(t, t.TempDir(), "--settle", "2s")
 	host, port, _ := strings.Cut(n.dicomAddr, ":")
 	// storescu +sd scans the folder, +r recursively (storescu --help).
-	cmd := exec.Command(storescu, "-aet", "HGH_MR1", "-aec", testAE, "+sd", "+r", host, port, src)
+	cmd := exec.Command(storescu, "-aet", "QOH_MR1", "-aec", testAE, "+sd", "+r", host, port, src)
 	cmd.Env = scptest.DCMTKEnv()
 	if out, err := cmd.CombinedOutput(); err != nil {
 		t.Fatalf("storescu: %v\n%s", err, out)

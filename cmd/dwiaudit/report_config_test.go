@@ -27,7 +27,7 @@ func TestTheReportsSectionParsesAndListsEveryProblem(t *testing.T) {
 		name, yaml string
 		problems   []string
 	}{
-		{"good values", "reports: {daily_at: \"23:30\", patient_id: hidden, base_url: \"https://dwiaudit.harbourview.example/\"}", nil},
+		{"good values", "reports: {daily_at: \"23:30\", patient_id: hidden, base_url: \"https://dwiaudit.quellvander.example/\"}", nil},
 		{"a path base", "reports: {base_url: /dwiaudit}", nil},
 		{"every problem at once",
 			"reports:\n  daily_at: \"25:00\"\n  patient_id: partial\n  base_url: \"ftp://x\"\n",

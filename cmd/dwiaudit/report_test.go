@@ -66,7 +66,7 @@ func TestTheDailyListOfARealNodeShowsAMissingB0(t *testing.T) {
 			if r[col["severity"]] != "error" || !strings.Contains(r[col["link"]], "/studies/"+st.StudyUID+"#series-") {
 				t.Errorf("row %v", r)
 			}
-			if id := r[col["patient_id"]]; id != "*********001" { // phantom.Options PatientID "HGH-SYN-0001", masked by default
+			if id := r[col["patient_id"]]; id != "*********001" { // phantom.Options PatientID "QOH-SYN-0001", masked by default
 				t.Errorf("patient ID %q, want it masked", id)
 			}
 		}

@@ -469,14 +469,14 @@ func TestServeFinishesAStoreInFlightOnSIGTERM(t *testing.T) {
 			t.Error("the node did not log that it is stopping")
 		}
 	}}
-	rsp, _ := storeOne(t, n.dicomAddr, "HGH_MR1", in, data) // the stopping node aborts after answering
+	rsp, _ := storeOne(t, n.dicomAddr, "QOH_MR1", in, data) // the stopping node aborts after answering
 	if rsp.Status != dimse.StatusSuccess {
 		t.Errorf("C-STORE status %v (%s), want success", rsp.Status, rsp.ErrorComment)
 	}
 	// After the store, no new association is accepted.
 	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
 	defer cancel()
-	if a, err := dialNode(ctx, n.dicomAddr, "HGH_MR1"); err == nil {
+	if a, err := dialNode(ctx, n.dicomAddr, "QOH_MR1"); err == nil {
 		a.Abort()
 		t.Error("a new association was accepted during shutdown")
 	}
@@ -506,7 +506,7 @@ func TestServeRefusesStoresBelowTheDiskFloorWithA700(t *testing.T) {
 	}
 	n := startNode(t, dir, "--config", cfg)
 	in := testInstance{Study: "2.25.200", Series: "2.25.201", SOP: "2.25.202", Number: 1, Rows: 64, Columns: 64, Seed: 1}
-	rsp, err := storeOne(t, n.dicomAddr, "HGH_MR1", in, in.reader())
+	rsp, err := storeOne(t, n.dicomAddr, "QOH_MR1", in, in.reader())
 	if err != nil {
 		t.Errorf("release: %v", err)
 	}
@@ -533,8 +533,8 @@ func TestServeEnforcesPeersAndTheirNetworks(t *testing.T) {
 	dir := t.TempDir()
 	cfg := filepath.Join(t.TempDir(), "peers.yaml")
 	conf := `peers:
-  - {ae_title: HGH_MR1, scanner: hgh-mr1-1.5t, networks: ["10.99.0.0/16"]}
-  - {ae_title: HGH_MR2, scanner: hgh-mr2-3t, networks: ["127.0.0.0/8"]}
+  - {ae_title: QOH_MR1, scanner: qoh-mr1-1.5t, networks: ["10.99.0.0/16"]}
+  - {ae_title: QOH_MR2, scanner: qoh-mr2-3t, networks: ["127.0.0.0/8"]}
 `
 	if err := os.WriteFile(cfg, []byte(conf), 0o644); err != nil {
 		t.Fatal(err)
@@ -545,8 +545,8 @@ func TestServeEnforcesPeersAndTheirNetworks(t *testing.T) {
 		name    string
 		calling string
 	}{
-		{"a peer from outside its networks is rejected", "HGH_MR1"},
-		{"an AE title that is no peer is rejected", "HGH_MR9"},
+		{"a peer from outside its networks is rejected", "QOH_MR1"},
+		{"an AE title that is no peer is rejected", "QOH_MR9"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name+" as an unknown calling AE title", func(t *testing.T) {
@@ -567,12 +567,12 @@ func TestServeEnforcesPeersAndTheirNetworks(t *testing.T) {
 	}
 	t.Run("a peer inside its networks stores under its scanner label", func(t *testing.T) {
 		in := testInstance{Study: "2.25.300", Series: "2.25.301", SOP: "2.25.302", Number: 1, Rows: 32, Columns: 32, Seed: 2}
-		if rsp, err := storeOne(t, n.dicomAddr, "HGH_MR2", in, in.reader()); err != nil || rsp.Status != dimse.StatusSuccess {
+		if rsp, err := storeOne(t, n.dicomAddr, "QOH_MR2", in, in.reader()); err != nil || rsp.Status != dimse.StatusSuccess {
 			t.Fatalf("status %v, release %v", rsp.Status, err)
 		}
 		var got StudiesResponse
 		getJSON(t, n.httpURL+"/api/v1/studies", &got)
-		if len(got.Studies) != 1 || len(got.Studies[0].Series) != 1 || got.Studies[0].Series[0].Scanner != "hgh-mr2-3t" {
+		if len(got.Studies) != 1 || len(got.Studies[0].Series) != 1 || got.Studies[0].Series[0].Scanner != "qoh-mr2-3t" {
 			t.Errorf("studies %+v", got)
 		}
 	})
@@ -681,7 +681,7 @@ func TestStorescuToServeShowsUpInStudiesAndTheAPI(t *testing.T) {
 	n := startNode(t, dir)
 	host, port, _ := strings.Cut(n.dicomAddr, ":")
 	// storescu +sd scans the folder, +r recursively (storescu --help).
-	cmd := exec.Command(storescu, "-aet", "HGH_MR1", "-aec", testAE, "+sd", "+r", host, port, src)
+	cmd := exec.Command(storescu, "-aet", "QOH_MR1", "-aec", testAE, "+sd", "+r", host, port, src)
 	cmd.Env = scptest.DCMTKEnv()
 	if out, err := cmd.CombinedOutput(); err != nil {
 		t.Fatalf("storescu: %v\n%s", err, out)
@@ -739,7 +739,7 @@ func TestStorescuToServeShowsUpInStudiesAndTheAPI(t *testing.T) {
 		slices.Sort(paths)
 		for j, sop := range s.instances {
 			got, err := st.Instance(sop)
-			if err != nil || got.SeriesInstanceUID != s.series || got.CallingAETitle != "HGH_MR1" {
+			if err != nil || got.SeriesInstanceUID != s.series || got.CallingAETitle != "QOH_MR1" {
 				t.Errorf("instance %s: %+v, %v", sop, got, err)
 				continue
 			}
@@ -758,7 +758,7 @@ func TestStudiesListsWhatTheNodeStored(t *testing.T) {
 	for i, s := range sent {
 		for j := range 2 + i {
 			in := testInstance{Study: s.study, Series: s.series, SOP: fmt.Sprintf("%s.%d", s.series, j+1), Number: j + 1, Rows: 32, Columns: 32, Seed: uint64(j)}
-			if rsp, err := storeOne(t, n.dicomAddr, "HGH_MR1", in, in.reader()); err != nil || rsp.Status != dimse.StatusSuccess {
+			if rsp, err := storeOne(t, n.dicomAddr, "QOH_MR1", in, in.reader()); err != nil || rsp.Status != dimse.StatusSuccess {
 				t.Fatalf("store: %v %v", rsp.Status, err)
 			}
 			sent[i].instances = append(sent[i].instances, in.SOP)
@@ -803,7 +803,7 @@ func TestStudiesListsWhatTheNodeStored(t *testing.T) {
 	t.Run("the text form names every study and series with its count", func(t *testing.T) {
 		r := runCLI(t, "studies", "--data", dir)
 		for _, want := range []string{"study 2.25.500  date 2025-03-14 09:30:00  accession SYNACC0001  2 series, 5 instances",
-			"series 2.25.501  #1 MR \"DWI hand made\"  scanner - (HGH_MR1)  2 instances", "series 2.25.502  #1 MR", "3 instances",
+			"series 2.25.501  #1 MR \"DWI hand made\"  scanner - (QOH_MR1)  2 instances", "series 2.25.502  #1 MR", "3 instances",
 			"1 study, 2 series, 5 instances stored"} {
 			if !strings.Contains(r.stdout, want) {
 				t.Errorf("output lacks %q:\n%s", want, r.stdout)
@@ -832,5 +832,38 @@ func TestStudiesListsWhatTheNodeStored(t *testing.T) {
 				t.Errorf("exit %d, stderr %q; want %d and %q", r.code, r.stderr, tt.code, tt.want)
 			}
 		})
+	}
+}
+
+// TestEchoOnDefaultsReachesServeOnDefaults: `dwiaudit echo HOST:PORT`
+// with no AE title flags is accepted by `dwiaudit serve` with no
+// configuration, because every client command calls the node's own
+// default AE title.
+func TestEchoOnDefaultsReachesServeOnDefaults(t *testing.T) {
+	n := startNode(t, t.TempDir())
+	r := runCLI(t, "echo", n.dicomAddr)
+	if r.code != exitOK {
+		t.Fatalf("echo on defaults exited %d: %s", r.code, r.stderr)
+	}
+	if want := "(" + scp.DefaultAETitle + ") succeeded"; !strings.Contains(r.stdout, want) {
+		t.Errorf("echo printed %q, want it to name the called AE title %q", r.stdout, want)
+	}
+}
+
+// TestClientCommandsShowTheNodesDefaultAETitle: the help of every client
+// command names the called AE title it uses by default, the node's own.
+func TestClientCommandsShowTheNodesDefaultAETitle(t *testing.T) {
+	for _, cmd := range []string{"echo", "send", "selftest"} {
+		t.Run(cmd+" --help names the default called AE title", func(t *testing.T) {
+			r := runCLI(t, cmd, "--help")
+			want := `default "` + scp.DefaultAETitle + `"`
+			i := strings.Index(r.stderr, "-called-ae")
+			if i < 0 || !strings.Contains(r.stderr[i:], want) {
+				t.Errorf("%s --help does not show -called-ae with %s:\n%s", cmd, want, r.stderr)
+			}
+		})
+	}
+	if scp.DefaultCalledAETitle != scp.DefaultAETitle {
+		t.Errorf("scp.DefaultCalledAETitle = %q, want the node's default %q", scp.DefaultCalledAETitle, scp.DefaultAETitle)
 	}
 }

@@ -19,7 +19,7 @@ import (
 )
 
 // testToken is the bearer token of the tests (invented).
-const testToken = "hgh-test-token-0123456789abcdef"
+const testToken = "qoh-test-token-0123456789abcdef"
 
 // tokenFile writes a token file and returns its path.
 func tokenFile(t *testing.T, content string) string {
@@ -43,7 +43,7 @@ func cheapHash(t *testing.T, pass string) string {
 
 func TestHTTPAuthConfigProblemsNameTheirFields(t *testing.T) {
 	good := tokenFile(t, testToken+"\n")
-	hash := cheapHash(t, "harbourview")
+	hash := cheapHash(t, "quellvander")
 	tests := []struct {
 		name   string
 		listen string
@@ -156,7 +156,7 @@ func authTestHandler(t *testing.T, listen string, auth HTTPAuthConfig) http.Hand
 
 func TestAccessControl(t *testing.T) {
 	open := authTestHandler(t, "127.0.0.1:8080", HTTPAuthConfig{})
-	hash := cheapHash(t, "harbour-view-pass")
+	hash := cheapHash(t, "quell-vander-pass")
 	guarded := authTestHandler(t, "0.0.0.0:8080", HTTPAuthConfig{
 		BearerTokenFile: tokenFile(t, testToken),
 		Users:           []HTTPUserConfig{{Name: "physics", PasswordHash: hash}},
@@ -186,9 +186,9 @@ func TestAccessControl(t *testing.T) {
 		{"a wrong token is refused", guarded, req{"/", bearer(testToken + "x")}, http.StatusUnauthorized},
 		{"the right token opens the daily list", guarded, req{"/", bearer(testToken)}, http.StatusOK},
 		{"the right token opens the API", guarded, req{"/api/v1/studies", bearer(testToken)}, http.StatusOK},
-		{"a known user with the right password opens the scanners page", guarded, req{"/scanners", basic("physics", "harbour-view-pass")}, http.StatusOK},
+		{"a known user with the right password opens the scanners page", guarded, req{"/scanners", basic("physics", "quell-vander-pass")}, http.StatusOK},
 		{"a known user with a wrong password is refused", guarded, req{"/scanners", basic("physics", "wrong")}, http.StatusUnauthorized},
-		{"an unknown user is refused", guarded, req{"/scanners", basic("nobody", "harbour-view-pass")}, http.StatusUnauthorized},
+		{"an unknown user is refused", guarded, req{"/scanners", basic("nobody", "quell-vander-pass")}, http.StatusUnauthorized},
 		{"the token sent as a Basic password is refused", guarded, req{"/", basic("physics", testToken)}, http.StatusUnauthorized},
 		{"healthz stays open", guarded, req{"/healthz", nil}, http.StatusOK},
 		{"readyz stays open", guarded, req{"/readyz", nil}, http.StatusOK},
@@ -220,12 +220,12 @@ func TestAccessControl(t *testing.T) {
 
 func TestHashPasswordPrintsAHashTheConfigurationAccepts(t *testing.T) {
 	var stdout, stderr bytes.Buffer
-	env := &cliEnv{stdout: &stdout, stderr: &stderr, stdin: strings.NewReader("harbour-view-pass\n")}
+	env := &cliEnv{stdout: &stdout, stderr: &stderr, stdin: strings.NewReader("quell-vander-pass\n")}
 	if code := run(t.Context(), env, []string{"hash-password", "--cost", "4"}); code != exitOK {
 		t.Fatalf("exit %d: %s", code, stderr.String())
 	}
 	hash := strings.TrimSpace(stdout.String())
-	if err := bcrypt.CompareHashAndPassword([]byte(hash), []byte("harbour-view-pass")); err != nil {
+	if err := bcrypt.CompareHashAndPassword([]byte(hash), []byte("quell-vander-pass")); err != nil {
 		t.Fatalf("hash %q does not match the password: %v", hash, err)
 	}
 	c := DefaultConfig()

@@ -22,7 +22,7 @@ func dcmtkCases() []struct {
 	lines []string
 } {
 	moveSub := NewCStoreRQ(7, mrImageStorage, testInstance, PriorityHigh)
-	moveSub.MoveOriginatorAETitle = "HARBOUR_QR1"
+	moveSub.MoveOriginatorAETitle = "OSTMIRE_QR1"
 	moveSub.MoveOriginatorMessageID = 3
 	store := NewCStoreRQ(7, mrImageStorage, testInstance, PriorityMedium)
 	failed := store.Response(StatusCannotUnderstand, "b-value missing on frame 3")
@@ -55,7 +55,7 @@ func dcmtkCases() []struct {
 			"(0000,0700) US 1",
 			"(0000,0800) US 1",
 			"(0000,1000) UI [" + testInstance + "]",
-			"(0000,1030) AE [HARBOUR_QR1]",
+			"(0000,1030) AE [OSTMIRE_QR1]",
 			"(0000,1031) US 3",
 		}},
 		{"a C-STORE-RSP with status, offending element and comment", failed, []string{

@@ -11,7 +11,7 @@ import (
 func sampleCommands() map[string]*Command {
 	store := NewCStoreRQ(7, mrImageStorage, testInstance, PriorityHigh)
 	moveSub := NewCStoreRQ(8, mrImageStorage, testInstance, PriorityLow)
-	moveSub.MoveOriginatorAETitle = "HARBOUR_QR1"
+	moveSub.MoveOriginatorAETitle = "OSTMIRE_QR1"
 	moveSub.MoveOriginatorMessageID = 77
 	failed := store.Response(StatusCannotUnderstand, "bad b-value tag")
 	failed.OffendingElements = []uint32{0x00189087, 0x7FE00010}

@@ -12,7 +12,7 @@ func TestEncodeMatchesTheMessageTablesByteForByte(t *testing.T) {
 	echoRQ := NewCEchoRQ(1)
 	storeRQ := NewCStoreRQ(7, mrImageStorage, testInstance, PriorityMedium)
 	moveSubRQ := NewCStoreRQ(7, mrImageStorage, testInstance, PriorityHigh)
-	moveSubRQ.MoveOriginatorAETitle = "HARBOUR_QR1" // 11 chars: odd, needs a space pad
+	moveSubRQ.MoveOriginatorAETitle = "OSTMIRE_QR1" // 11 chars: odd, needs a space pad
 	moveSubRQ.MoveOriginatorMessageID = 3
 
 	tests := []struct {
@@ -67,7 +67,7 @@ func TestEncodeMatchesTheMessageTablesByteForByte(t *testing.T) {
 				el(0x0000, 0x0700, 2, us(0x0001)),                  // Priority = HIGH 0001H (PS3.7 Table 9.3-1)
 				el(0x0000, 0x0800, 2, us(0x0001)),                  // Command Data Set Type (PS3.7 Table 9.3-1)
 				el(0x0000, 0x1000, 36, str(testInstance+"\x00")),   // Affected SOP Instance UID (PS3.7 Table 9.3-1)
-				el(0x0000, 0x1030, 12, str("HARBOUR_QR1 ")),        // Move Originator AE Title, space pad (PS3.7 Table 9.3-1, PS3.5 6.2)
+				el(0x0000, 0x1030, 12, str("OSTMIRE_QR1 ")),        // Move Originator AE Title, space pad (PS3.7 Table 9.3-1, PS3.5 6.2)
 				el(0x0000, 0x1031, 2, us(3)),                       // Move Originator Message ID (PS3.7 Table 9.3-1)
 			),
 		},
@@ -233,7 +233,7 @@ func TestEncodeRefusesCommandsThatBreakTheirTable(t *testing.T) {
 	rspWithData := NewCEchoRQ(1).Response(StatusSuccess, "")
 	rspWithData.CommandDataSetType = 0 // the zero value would announce a data set
 	longAE := NewCStoreRQ(1, mrImageStorage, testInstance, PriorityMedium)
-	longAE.MoveOriginatorAETitle = "HARBOURVIEW_QR_NODE" // 19 > 16 (PS3.5 Table 6.2-1)
+	longAE.MoveOriginatorAETitle = "QUELLVANDER_QR_NODE" // 19 > 16 (PS3.5 Table 6.2-1)
 
 	tests := []struct {
 		name string

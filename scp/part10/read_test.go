@@ -60,7 +60,7 @@ var explicitMeta = Meta{
 	TransferSyntaxUID:            "1.2.840.10008.1.2.1",
 	ImplementationClassUID:       dcmtkImplementationClassUID,
 	ImplementationVersionName:    dcmtkVersionName,
-	SourceApplicationEntityTitle: "HGH_MR1",
+	SourceApplicationEntityTitle: "QOH_MR1",
 	Other: []Element{
 		version,
 		{Tag: 0x00020100, VR: "UI", Value: []byte("2.25.314159265358979323846264338327950288419")},
@@ -411,7 +411,7 @@ func TestReadMetaTrimsPadding(t *testing.T) {
 		ts,
 		element(TagImplementationClassUID, "UI", []byte("1.2.3.4\x00\x00\x00")),
 		element(TagImplementationVersionName, "SH", []byte("VER1 ")),
-		element(TagSourceApplicationEntityTitle, "AE", []byte("  HGH_MR1       ")),
+		element(TagSourceApplicationEntityTitle, "AE", []byte("  QOH_MR1       ")),
 	)
 	m, _, err := ReadMeta(bytes.NewReader(data))
 	if err != nil {
@@ -423,7 +423,7 @@ func TestReadMetaTrimsPadding(t *testing.T) {
 		TransferSyntaxUID:            "1.2.840.10008.1.2.1",
 		ImplementationClassUID:       "1.2.3.4",
 		ImplementationVersionName:    "VER1",
-		SourceApplicationEntityTitle: "HGH_MR1", // PS3.5 6.2: AE leading and trailing spaces are not significant
+		SourceApplicationEntityTitle: "QOH_MR1", // PS3.5 6.2: AE leading and trailing spaces are not significant
 	}
 	if !reflect.DeepEqual(m, want) {
 		t.Fatalf("got %+v\nwant %+v", m, want)

@@ -66,7 +66,7 @@ func TestWriteHeaderRoundTrips(t *testing.T) {
 			MediaStorageSOPClassUID:      "1.2.840.10008.5.1.4.1.1.4",
 			MediaStorageSOPInstanceUID:   "2.25.1",
 			TransferSyntaxUID:            "1.2.840.10008.1.2",
-			SourceApplicationEntityTitle: "HGH_MR",
+			SourceApplicationEntityTitle: "QOH_MR",
 		}},
 		{"a meta with someone else's implementation identity", Meta{
 			MediaStorageSOPClassUID:    "1.2.840.10008.5.1.4.1.1.4",
@@ -202,7 +202,7 @@ func TestWriteHeaderRejectsInvalidMeta(t *testing.T) {
 		{"a UID with its padding", with(func(m *Meta) { m.TransferSyntaxUID = "1.2.840.10008.1.2\x00" })},
 		{"a version name of 17 characters", with(func(m *Meta) { m.ImplementationVersionName = strings.Repeat("V", 17) })},
 		{"an AE title of 17 characters", with(func(m *Meta) { m.SourceApplicationEntityTitle = strings.Repeat("A", 17) })},
-		{"an AE title with a backslash", with(func(m *Meta) { m.SourceApplicationEntityTitle = `HGH\MR1` })},
+		{"an AE title with a backslash", with(func(m *Meta) { m.SourceApplicationEntityTitle = `QOH\MR1` })},
 		{"an other element outside group 0002", with(func(m *Meta) {
 			m.Other = []Element{{Tag: 0x00080016, VR: "UI", Value: []byte("1.2")}}
 		})},

@@ -282,7 +282,7 @@ func zeroPCReservedBytes(t *testing.T, raw []byte) []byte {
 
 func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 	scp := startStorescp(t)
-	const calling = "HARBOURVIEW-MR1" // invented AE title
+	const calling = "QUELLVANDER-MR1" // invented AE title
 
 	t.Run("echoscu verification with release gives RQ AC two P-DATA and release", func(t *testing.T) {
 		got := runThroughProxy(t, scp, "echoscu", []string{"-aet", calling, "-aec", "DWIAUDIT"})
@@ -340,10 +340,10 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 		requireDCMTK(t, "dump2dcm")
 		file := syntheticMRFile(t)
 		got := runThroughProxy(t, scp, "storescu",
-			[]string{"-aet", calling, "-aec", "DWIAUDIT", "--user", "harbourview-tech", "--password", "not-a-secret"}, file)
+			[]string{"-aet", calling, "-aec", "DWIAUDIT", "--user", "quellvander-tech", "--password", "not-a-secret"}, file)
 		checkCapture(t, "store", got, []Type{TypeAssociateRQ, TypeAssociateAC, TypePDataTF, TypePDataTF, TypePDataTF, TypeReleaseRQ, TypeReleaseRP})
 		id := got[0].p.(*AssociateRQ).UserInfo.UserIdentity
-		if id == nil || id.Type != UserIdentityUsernamePasscode || string(id.Primary) != "harbourview-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
+		if id == nil || id.Type != UserIdentityUsernamePasscode || string(id.Primary) != "quellvander-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
 			t.Errorf("user identity %+v", id)
 		}
 	})
@@ -366,7 +366,7 @@ func syntheticMRFile(t *testing.T) string {
 (0008,0016) UI =MRImageStorage
 (0008,0018) UI [2.25.318279541893652376240130117283140127871]
 (0008,0060) CS [MR]
-(0008,0080) LO [Harbourview General]
+(0008,0080) LO [Quellvander Ostmire]
 (0010,0010) PN [TEST^PHANTOM]
 (0010,0020) LO [PHANTOM-0001]
 (0018,0087) DS [3]

@@ -17,7 +17,7 @@ import (
 // DICOM's own (SOP classes, transfer syntaxes) or under 2.25.
 const (
 	testCalled    = "DWIAUDIT"
-	testCalling   = "HARBOURVIEW-MR1"
+	testCalling   = "QUELLVANDER-MR1"
 	testImplUID   = "2.25.4242"
 	testImplName  = "DWIAUDIT_010"
 	uidVerify     = "1.2.840.10008.1.1"           // Verification SOP Class, PS3.6 Annex A (from memory)
@@ -99,7 +99,7 @@ func fullRQ() *AssociateRQ {
 			SOPClassUID: uidEnhMR, ServiceClassUID: uidStorageSvc, RelatedGeneralSOPClasses: []string{uidMRStorage},
 		}},
 		UserIdentity: &UserIdentityRQ{Type: UserIdentityUsernamePasscode, PositiveResponseRequested: true,
-			Primary: []byte("harbourview-tech"), Secondary: []byte("not-a-secret")},
+			Primary: []byte("quellvander-tech"), Secondary: []byte("not-a-secret")},
 	}
 	return rq
 }
@@ -132,7 +132,7 @@ func fullRQBytes() []byte {
 		// PS3.7 D.3.3.7 Table D.3-14: item-length 34, type 2 (username and
 		// passcode), positive response requested 1, primary length 16,
 		// primary, secondary length 12, secondary.
-		hx("58 00 0022 02 01 0010"), []byte("harbourview-tech"), hx("000c"), []byte("not-a-secret"),
+		hx("58 00 0022 02 01 0010"), []byte("quellvander-tech"), hx("000c"), []byte("not-a-secret"),
 	)
 }
 
@@ -379,7 +379,7 @@ func TestReceivingToleratesPaddingAndNeverSendsIt(t *testing.T) {
 		hx("01 ff 000000df"), // PDU-length 223: 68+26+(4+48)+(4+73)
 		hx("0001 ffff"),
 		[]byte(" DWIAUDIT\x00\x00\x00\x00\x00\x00\x00"),
-		[]byte("HARBOURVIEW-MR1\x00"),
+		[]byte("QUELLVANDER-MR1\x00"),
 		bytes.Repeat([]byte{0xff}, 32),
 		hx("10 ff 0016"), []byte("1.2.840.10008.3.1.1.1\x00"),
 		hx("20 ff 0030 01 ff ff ff"), // 4+22+22
@@ -816,7 +816,7 @@ func TestEncodingRefusesValuesTheStandardForbids(t *testing.T) {
 	}{
 		{"an empty called AE title", rq(func(p *AssociateRQ) { p.CalledAETitle = "" }), ErrInvalidAETitle},
 		{"a called AE title of 16 spaces", rq(func(p *AssociateRQ) { p.CalledAETitle = strings.Repeat(" ", 16) }), ErrInvalidAETitle}, // PS3.8 Table 9-11 "shall not be used"
-		{"a 17-character calling AE title", rq(func(p *AssociateRQ) { p.CallingAETitle = "HARBOURVIEW-MR-17" }), ErrInvalidAETitle},
+		{"a 17-character calling AE title", rq(func(p *AssociateRQ) { p.CallingAETitle = "QUELLVANDER-MR-17" }), ErrInvalidAETitle},
 		{"an AE title with a backslash", rq(func(p *AssociateRQ) { p.CallingAETitle = `MR\1` }), ErrInvalidAETitle}, // PS3.5 6.2 AE
 		{"an AE title with a NUL", rq(func(p *AssociateRQ) { p.CallingAETitle = "MR\x001" }), ErrInvalidAETitle},    // PS3.5 6.2 AE
 		{"an AE title with a tab", rq(func(p *AssociateRQ) { p.CalledAETitle = "MR\t1" }), ErrInvalidAETitle},       // PS3.5 6.2 AE
@@ -872,7 +872,7 @@ func TestAETitlesAreTrimmedAndSpacePadded(t *testing.T) {
 	for _, tc := range []struct{ in, field string }{
 		{"A", "A               "},
 		{"  MR1  ", "MR1             "},          // leading/trailing spaces are non-significant, PS3.8 Table 9-11
-		{"HARBOURVIEW-MR-1", "HARBOURVIEW-MR-1"}, // exactly 16
+		{"QUELLVANDER-MR-1", "QUELLVANDER-MR-1"}, // exactly 16
 		{"MR 1", "MR 1            "},             // an inner space is significant
 	} {
 		t.Run(strings.TrimSpace(tc.in)+" is written as 16 characters", func(t *testing.T) {
