@@ -4,7 +4,7 @@ Go maps of package audit (TestADCMatchesPythonReference).
 
 Reads DICOM files with pydicom and computes, with numpy in float64,
 
-    ADC = ln(S0 / Sb) / (b - b0)   (mm2/s; DOMAIN.md, Physics)
+    ADC = ln(S0 / Sb) / (b - b0)   (mm2/s; docs/references.md#mono-exponential)
 
 from the lowest-b images (the b0) and the isotropic (trace) images of the
 high b-value, after Rescale Slope and Intercept (or the per-frame Pixel
