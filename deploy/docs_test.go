@@ -151,3 +151,51 @@ func hasAnchor(doc, anchor string) bool {
 	}
 	return false
 }
+
+// Every source note in the repository points inside it: a citation of a
+// notes file outside the repository is one whoever clones the project
+// cannot read, and a pointer into docs/references.md must reach an entry
+// that is there.
+func TestEverySourceNotePointsInsideTheRepository(t *testing.T) {
+	refs := readDoc(t, "docs/references.md")
+	outside := []string{"DOMAIN" + ".md", "../" + "shared/"}
+	pointer := regexp.MustCompile(`references\.md#([A-Za-z0-9_-]+)`)
+	files := 0
+	err := filepath.WalkDir("..", func(path string, d os.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		if d.IsDir() {
+			if d.Name() == ".git" || d.Name() == "fuzz" {
+				return filepath.SkipDir
+			}
+			return nil
+		}
+		b, err := os.ReadFile(path)
+		if err != nil {
+			return err
+		}
+		if strings.IndexByte(string(b), 0) >= 0 {
+			return nil // binary fixtures
+		}
+		files++
+		text := string(b)
+		for _, o := range outside {
+			if i := strings.Index(text, o); i >= 0 {
+				t.Errorf("%s:%d cites %s, outside the repository; point at docs/references.md", path, 1+strings.Count(text[:i], "\n"), o)
+			}
+		}
+		for _, m := range pointer.FindAllStringSubmatchIndex(text, -1) {
+			if anchor := text[m[2]:m[3]]; !hasAnchor(refs, anchor) {
+				t.Errorf("%s:%d points at docs/references.md#%s, which has no such entry", path, 1+strings.Count(text[:m[0]], "\n"), anchor)
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if files < 100 {
+		t.Fatalf("walked only %d files from the repository root: the walk is broken", files)
+	}
+}
