@@ -465,7 +465,7 @@ func parseDirectionality(s string) Directionality {
 }
 
 // Units codes (UCUM, in Measurement Units Code Sequence of a Real World
-// Value Mapping) of a diffusion coefficient: docs/references.md#real-world-value-mapping, PS3.16 CID 7181
+// Value Mapping) of a diffusion coefficient: DOMAIN.md, PS3.16 CID 7181
 // (from memory).
 func adcUnits(u string) bool {
 	switch u {

@@ -36,7 +36,7 @@ func (d Directionality) String() string {
 
 // MapKind says what an image is: an acquired diffusion-weighted image, or
 // a map the scanner derived (PS3.3 C.8.13.1.1.1 Image Type value 4,
-// PS3.17 suggestions; docs/references.md#derived-maps).
+// PS3.17 suggestions; DOMAIN.md).
 type MapKind int
 
 const (

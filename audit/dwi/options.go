@@ -174,7 +174,7 @@ type Tolerances struct {
 // configured otherwise:
 //
 //   - b-value: max(5 s/mm^2, 2% of b). Stored b-values differ slightly
-//     from the nominal (a nominal 900 seen as 895-905, docs/references.md#bvalue-tolerance, common
+//     from the nominal (a nominal 900 seen as 895-905, DOMAIN.md, common
 //     practice); 2% at b = 900 is 18, three times that spread. The
 //     absolute floor of 5 stays below half the smallest step between
 //     nominal b-values in use, 10 s/mm^2 at the low end of IVIM protocols

@@ -20,7 +20,7 @@ import (
 	"dwiaudit/rules"
 )
 
-// cautionLine ends every text report (docs/references.md#safety-wording).
+// cautionLine ends every text report (DOMAIN.md, Safety wording).
 const cautionLine = "dwiaudit checks acquisitions; it does not diagnose. Clinical decisions rest with the radiologist and local policy."
 
 func runCheck(ctx context.Context, env *cliEnv, args []string) int {
