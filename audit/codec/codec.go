@@ -18,17 +18,17 @@ const (
 // syntaxNames are the PS3.6 Table A-1 names of the encapsulated syntaxes
 // that messages mention, decodable or not.
 var syntaxNames = map[string]string{
-	RLELossless:              "RLE Lossless",
-	JPEGBaseline:             "JPEG Baseline (Process 1)",
-	JPEGExtended:             "JPEG Extended (Process 2 & 4)",
-	JPEGLossless:             "JPEG Lossless, Non-Hierarchical (Process 14)",
-	JPEGLosslessSV1:          "JPEG Lossless, Non-Hierarchical, First-Order Prediction (Process 14, Selection Value 1)",
-	JPEGLSLossless:           "JPEG-LS Lossless",
-	JPEGLSNearLossless:       "JPEG-LS Lossy (Near-Lossless)",
-	JPEG2000Lossless:         "JPEG 2000 (Lossless Only)",
-	JPEG2000:                 "JPEG 2000",
-	"1.2.840.10008.1.2.4.92": "JPEG 2000 Part 2 Multi-component (Lossless Only)",
-	"1.2.840.10008.1.2.4.93": "JPEG 2000 Part 2 Multi-component",
+	RLELossless:               "RLE Lossless",
+	JPEGBaseline:              "JPEG Baseline (Process 1)",
+	JPEGExtended:              "JPEG Extended (Process 2 & 4)",
+	JPEGLossless:              "JPEG Lossless, Non-Hierarchical (Process 14)",
+	JPEGLosslessSV1:           "JPEG Lossless, Non-Hierarchical, First-Order Prediction (Process 14, Selection Value 1)",
+	JPEGLSLossless:            "JPEG-LS Lossless",
+	JPEGLSNearLossless:        "JPEG-LS Lossy (Near-Lossless)",
+	JPEG2000Lossless:          "JPEG 2000 (Lossless Only)",
+	JPEG2000:                  "JPEG 2000",
+	"1.2.840.10008.1.2.4.92":  "JPEG 2000 Part 2 Multi-component (Lossless Only)",
+	"1.2.840.10008.1.2.4.93":  "JPEG 2000 Part 2 Multi-component",
 	"1.2.840.10008.1.2.4.100": "MPEG2 Main Profile / Main Level",
 	"1.2.840.10008.1.2.4.102": "MPEG-4 AVC/H.264 High Profile / Level 4.1",
 	"1.2.840.10008.1.2.4.201": "High-Throughput JPEG 2000 (Lossless Only)",
@@ -81,10 +81,11 @@ type Image struct {
 	Photometric string
 }
 
-// MaxFrameBytes caps one decoded frame: 256 MiB is far beyond any MR
+// MaxFrameBytes caps one decoded frame: 64 MiB is far beyond any MR
 // frame (1024 x 1024 x 3 samples x 2 bytes is 6 MiB) and keeps a hostile
-// header from making the decoder allocate gigabytes.
-const MaxFrameBytes = 256 << 20
+// header from making the decoder allocate gigabytes (the JPEG decoders
+// also hold one 32-bit working sample per sample: at most 4 x this).
+const MaxFrameBytes = 64 << 20
 
 // frameBytes checks img and returns the decoded size of one frame.
 func (img Image) frameBytes() (int, error) {

@@ -2,6 +2,7 @@ package codec
 
 import (
 	"fmt"
+	"os"
 	"path/filepath"
 	"testing"
 )
@@ -173,4 +174,53 @@ func TestJPEGLSMatchesDCMTK(t *testing.T) {
 		)
 	}
 	runCases(t, cases)
+}
+
+// TestWriteSeeds writes the fuzz seeds of FuzzJPEG and FuzzJPEGLS: small
+// invented pictures encoded by DCMTK with each process. It runs only with
+// DWIAUDIT_UPDATE_SEEDS=1.
+func TestWriteSeeds(t *testing.T) {
+	if os.Getenv("DWIAUDIT_UPDATE_SEEDS") != "1" {
+		t.Skip("set DWIAUDIT_UPDATE_SEEDS=1 to rewrite testdata/seeds with DCMTK")
+	}
+	dir := t.TempDir()
+	pics := map[string]Image{
+		"gray8":  {Rows: 11, Columns: 13, SamplesPerPixel: 1, BitsAllocated: 8},
+		"gray12": {Rows: 11, Columns: 13, SamplesPerPixel: 1, BitsAllocated: 16, BitsStored: 12},
+		"rgb8":   {Rows: 11, Columns: 13, SamplesPerPixel: 3, BitsAllocated: 8},
+	}
+	type seed struct {
+		name, pic, tool string
+		args            []string
+		ext             string
+	}
+	seeds := []seed{
+		{"lossless-sv1-gray12", "gray12", "dcmcjpeg", []string{"+e1"}, ".jpg"},
+		{"lossless-sv7-gray8", "gray8", "dcmcjpeg", []string{"+el", "+sv", "7"}, ".jpg"},
+		{"lossless-sv4-rgb8", "rgb8", "dcmcjpeg", []string{"+el", "+sv", "4"}, ".jpg"},
+		{"baseline-gray8", "gray8", "dcmcjpeg", []string{"+eb"}, ".jpg"},
+		{"baseline-rgb8-422", "rgb8", "dcmcjpeg", []string{"+eb"}, ".jpg"},
+		{"extended-gray12", "gray12", "dcmcjpeg", []string{"+ee"}, ".jpg"},
+		{"ls-lossless-gray12", "gray12", "dcmcjpls", []string{"+el"}, ".jls"},
+		{"ls-lossless-rgb8-line", "rgb8", "dcmcjpls", []string{"+el"}, ".jls"},
+		{"ls-lossless-rgb8-sample", "rgb8", "dcmcjpls", []string{"+el", "+is"}, ".jls"},
+		{"ls-near2-gray8", "gray8", "dcmcjpls", []string{"+en", "+md", "2"}, ".jls"},
+	}
+	if err := os.MkdirAll(seedDir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range seeds {
+		src := filepath.Join(dir, s.pic+".dcm")
+		writePicture(t, src, pics[s.pic], 1, 11)
+		enc := filepath.Join(dir, s.name+".dcm")
+		runTool(t, s.tool, append(append([]string{}, s.args...), src, enc)...)
+		f := readDICOM(t, enc)
+		frames, err := Frames(f.pixel, 1, f.ts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(filepath.Join(seedDir, s.name+s.ext), frames[0], 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
 }

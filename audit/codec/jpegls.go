@@ -190,7 +190,7 @@ func (d *lsDecoder) preset(b []byte) error {
 // lsParams are the coding parameters of one scan (T.87 A.2.1, C.2.4.1.1).
 type lsParams struct {
 	maxval, near, rng, qbpp, limit int32
-	t1, t2, t3, reset                int32
+	t1, t2, t3, reset              int32
 }
 
 func (d *lsDecoder) params(near int) (lsParams, error) {
@@ -332,6 +332,7 @@ type lsScan struct {
 	runIndex []int
 	prev     [][]int32 // per component: width+2, [0] is the sample before the line, [w+1] after it
 	cur      [][]int32
+	qtab     []int8 // quantize of every gradient -maxval..maxval, at index gradient+maxval
 }
 
 func newLSScan(d *lsDecoder, p lsParams, comps []int) *lsScan {
@@ -342,6 +343,10 @@ func newLSScan(d *lsDecoder, p lsParams, comps []int) *lsScan {
 	}
 	s.run[0] = lsRunContext{a: a, n: 1, ritype: 0}
 	s.run[1] = lsRunContext{a: a, n: 1, ritype: 1}
+	s.qtab = make([]int8, 2*p.maxval+1)
+	for g := -p.maxval; g <= p.maxval; g++ {
+		s.qtab[g+p.maxval] = int8(s.quantize(g))
+	}
 	for range comps {
 		s.prev = append(s.prev, make([]int32, d.width+2))
 		s.cur = append(s.cur, make([]int32, d.width+2))
@@ -373,8 +378,11 @@ func (s *lsScan) quantize(g int32) int32 {
 	return 4
 }
 
+// context is the context number of the gradients (A.3.4), from the
+// table of quantize; samples lie in 0..maxval, so every gradient is in it.
 func (s *lsScan) context(ra, rb, rc, rd int32) int32 {
-	return (s.quantize(rd-rb)*9+s.quantize(rb-rc))*9 + s.quantize(rc-ra)
+	m := s.p.maxval
+	return (int32(s.qtab[rd-rb+m])*9+int32(s.qtab[rb-rc+m]))*9 + int32(s.qtab[rc-ra+m])
 }
 
 // startLine sets the edge samples of a component's lines (A.2.1:
