@@ -146,10 +146,14 @@ type Frame struct {
 
 	Scanner Scanner
 
-	// Encapsulated is set when the pixel data is compressed
-	// (encapsulated transfer syntax): the audit reports "cannot compute"
-	// instead of guessing.
+	// Encapsulated is set when the pixel data is compressed in a way the
+	// audit does not decode (a transfer syntax package audit/codec does
+	// not know, such as JPEG 2000): the audit reports "cannot compute"
+	// instead of guessing. Undecoded says why, naming the syntax.
+	// Compressed pixel data the codecs decode gives Pixels as native
+	// data does, and neither is set.
 	Encapsulated bool
+	Undecoded    string
 	Pixels       []float32
 }
 

@@ -29,6 +29,7 @@ const (
 	tsDeflated   = "1.2.840.10008.1.2.1.99"
 	tsExplicitBE = "1.2.840.10008.1.2.2"
 	tsJPEGBase   = "1.2.840.10008.1.2.4.50"
+	tsJ2K        = "1.2.840.10008.1.2.4.90" // JPEG 2000 Lossless Only: not decoded
 	mrImage      = "1.2.840.10008.5.1.4.1.1.4"
 	enhancedMR   = "1.2.840.10008.5.1.4.1.1.4.1"
 )

@@ -62,8 +62,9 @@ func nativeSyntax(ts string) bool {
 // ErrUnknownTransferSyntax, ErrMalformed, ErrPixelData,
 // ErrPrivateSource or ErrInvalidOptions, or are I/O errors. Missing
 // geometry is not an error here (dwi.Geometry.Known is false); assembly needs
-// geometry and says so. Encapsulated (compressed) pixel data gives frames
-// with Encapsulated set and no pixels.
+// geometry and says so. Compressed pixel data is decoded (package
+// audit/codec) when its transfer syntax is one the codecs know; any other
+// gives frames with Encapsulated set and no pixels.
 func ExtractFile(path string, opt ExtractOptions) ([]dwi.Frame, error) {
 	f, err := os.Open(path)
 	if err != nil {
@@ -256,7 +257,8 @@ func (x *extraction) common() dwi.Frame {
 		Modality:            t.str(tag.Modality),
 		AcquisitionContrast: t.str(tag.AcquisitionContrast),
 		Scanner:             s,
-		Encapsulated:        x.layout.Tag != 0 && (!x.native || x.layout.Length < 0),
+		Encapsulated:        !x.decodes(),
+		Undecoded:           x.undecoded(),
 	}
 }
 

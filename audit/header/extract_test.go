@@ -14,6 +14,7 @@ import (
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 
+	"dwiaudit/audit/codec"
 	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/synth"
 )
@@ -458,9 +459,24 @@ func encapsulatedElements() []el {
 		el{tag: tPixelData, vr: "OB", raw: frags, undefined: true})
 }
 
+func TestCorruptCompressedPixelDataIsAnError(t *testing.T) {
+	// The same fragments labelled JPEG Baseline, which the codecs decode:
+	// they are not a JPEG stream, so the file is unreadable, not silently
+	// pixel-less.
+	file := part10File(t, tsJPEGBase, enhancedMR, "2.25.6", encapsulatedElements())
+	_, err := Extract(file, ExtractOptions{LoadPixels: true})
+	if !errors.Is(err, ErrPixelData) || !errors.Is(err, codec.ErrCorrupt) {
+		t.Fatalf("error %v, want ErrPixelData wrapping codec.ErrCorrupt", err)
+	}
+	// Without pixels the header is still read.
+	if _, err := Extract(file, ExtractOptions{}); err != nil {
+		t.Fatalf("header only: %v", err)
+	}
+}
+
 func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	els := encapsulatedElements()
-	file := part10File(t, tsJPEGBase, enhancedMR, "2.25.6", els)
+	file := part10File(t, tsJ2K, enhancedMR, "2.25.6", els)
 
 	frames, err := Extract(file, ExtractOptions{LoadPixels: true})
 	if err != nil {
@@ -472,6 +488,9 @@ func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	for _, f := range frames {
 		if !f.Encapsulated || f.Pixels != nil {
 			t.Errorf("frame %s: encapsulated %v, %d pixels; want flagged and none", f.ID(), f.Encapsulated, len(f.Pixels))
+		}
+		if want := "JPEG 2000 (Lossless Only) (1.2.840.10008.1.2.4.90): the audit cannot decode"; !strings.Contains(f.Undecoded, want) {
+			t.Errorf("frame %s: reason %q, want it to say %q", f.ID(), f.Undecoded, want)
 		}
 	}
 	if frames[1].BValue != 1000 {

@@ -57,7 +57,7 @@ func testdataFiles() []testdataFile {
 		{"enhanced-explicit-le.dcm", enhanced(diffusionSeries, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-deflated.dcm", enhanced(diffusionSeries, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-jpeg-encapsulated.dcm", func(t testing.TB) []byte {
-			return part10File(t, tsJPEGBase, enhancedMR, "2.25.6", encapsulatedElements())
+			return part10File(t, tsJ2K, enhancedMR, "2.25.6", encapsulatedElements())
 		}, 2, []float64{0, 1000}, dwi.KindAcquired, true},
 	}
 }
