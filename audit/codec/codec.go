@@ -73,8 +73,8 @@ type Image struct {
 	BitsAllocated   int // 8 or 16
 	BitsStored      int // 1..BitsAllocated; 0 means BitsAllocated
 	// Signed is Pixel Representation 1. The codecs code the stored bit
-	// pattern; Decode sign-extends from BitsStored for RLE and JPEG-LS
-	// outputs as they are, and leaves the caller to interpret the bits.
+	// pattern, and Decode returns it as coded: the caller sign-extends
+	// from BitsStored (PS3.5 8.1.1), as for native data.
 	Signed bool
 	// Photometric is Photometric Interpretation (0028,0004). Lossy JPEG
 	// with YBR_FULL or YBR_FULL_422 is returned as RGB (see DecodeJPEG).

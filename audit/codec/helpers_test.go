@@ -14,7 +14,6 @@ import (
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 
-	"dwiaudit/audit/header"
 	"dwiaudit/audit/phantom"
 	"dwiaudit/audit/synth"
 	"dwiaudit/scp/part10"
@@ -33,9 +32,10 @@ type dicomFile struct {
 }
 
 // readDICOM reads a Part 10 file in Explicit VR Little Endian (all that
-// DCMTK's codecs write): the file meta with part10, the pixel data with
-// header.FindPixelData, and the Image Pixel module (PS3.3 C.7.6.3) by a
-// walk of the top-level elements.
+// DCMTK's codecs write): the file meta with part10, then the Image Pixel
+// module (PS3.3 C.7.6.3) and the pixel data by a walk of the top-level
+// elements. (Package header's reader imports this package, so its tests
+// cannot use it.)
 func readDICOM(t testing.TB, path string) dicomFile {
 	t.Helper()
 	raw, err := os.ReadFile(path)
@@ -46,14 +46,13 @@ func readDICOM(t testing.TB, path string) dicomFile {
 	if err != nil {
 		t.Fatalf("%s: %v", path, err)
 	}
-	l, err := header.FindPixelData(bytes.NewReader(raw[off:]), binary.LittleEndian, false, off, int64(len(raw)))
-	if err != nil || l.Tag == 0 || l.Truncated {
-		t.Fatalf("%s: pixel data %+v: %v", path, l, err)
-	}
 	f := dicomFile{ts: meta.TransferSyntaxUID, frames: 1}
 	us := map[uint32]int{}
 	strs := map[uint32]string{}
-	walkTop(t, raw[off:l.Offset], us, strs)
+	start, end, undefined := walkTop(t, raw[off:], us, strs)
+	if start < 0 {
+		t.Fatalf("%s: no pixel data", path)
+	}
 	f.img = Image{
 		Rows: us[0x00280010], Columns: us[0x00280011], SamplesPerPixel: us[0x00280002],
 		BitsAllocated: us[0x00280100], BitsStored: us[0x00280101], Signed: us[0x00280103] == 1,
@@ -65,12 +64,8 @@ func readDICOM(t testing.TB, path string) dicomFile {
 			t.Fatalf("%s: Number of Frames %q", path, s)
 		}
 	}
-	f.encapsed = l.Length < 0
-	if f.encapsed {
-		f.pixel = raw[l.ValueOffset:l.End]
-	} else {
-		f.pixel = raw[l.ValueOffset : l.ValueOffset+l.Length]
-	}
+	f.encapsed = undefined
+	f.pixel = raw[off+int64(start) : off+int64(end)]
 	return f
 }
 
@@ -79,9 +74,10 @@ var longVR = map[string]bool{"OB": true, "OD": true, "OF": true, "OL": true, "OV
 	"SQ": true, "SV": true, "UC": true, "UN": true, "UR": true, "UT": true, "UV": true}
 
 // walkTop records the US and string values of the top-level elements of
-// group 0028 in an Explicit VR Little Endian data set whose element
-// lengths FindPixelData has already checked.
-func walkTop(t testing.TB, b []byte, us map[uint32]int, strs map[uint32]string) {
+// group 0028 in an Explicit VR Little Endian data set (DCMTK's output,
+// trusted by these tests), and returns where the Pixel Data value lies
+// (start -1 when there is none).
+func walkTop(t testing.TB, b []byte, us map[uint32]int, strs map[uint32]string) (start, end int, undefined bool) {
 	pos := 0
 	for pos+8 <= len(b) {
 		tg := uint32(binary.LittleEndian.Uint16(b[pos:]))<<16 | uint32(binary.LittleEndian.Uint16(b[pos+2:]))
@@ -92,20 +88,29 @@ func walkTop(t testing.TB, b []byte, us map[uint32]int, strs map[uint32]string) 
 		} else {
 			n, hdr = int(binary.LittleEndian.Uint16(b[pos+6:])), 8
 		}
-		if n == -1 || uint32(n) == 0xFFFFFFFF {
-			pos = skipUndefined(t, b, pos+hdr)
+		if longVR[vr] && binary.LittleEndian.Uint32(b[pos+8:]) == 0xFFFFFFFF {
+			next := skipUndefined(t, b, pos+hdr)
+			if tg == 0x7FE00010 {
+				return pos + hdr, next, true
+			}
+			pos = next
 			continue
 		}
+		if pos+hdr+n > len(b) {
+			t.Fatalf("element (%04X,%04X) runs past the file", tg>>16, tg&0xFFFF)
+		}
 		v := b[pos+hdr : pos+hdr+n]
-		if tg>>16 == 0x0028 {
-			if vr == "US" && n >= 2 {
-				us[tg] = int(binary.LittleEndian.Uint16(v))
-			} else {
-				strs[tg] = string(bytes.TrimRight(v, " \x00"))
-			}
+		switch {
+		case tg == 0x7FE00010:
+			return pos + hdr, pos + hdr + n, false
+		case tg>>16 == 0x0028 && vr == "US" && n >= 2:
+			us[tg] = int(binary.LittleEndian.Uint16(v))
+		case tg>>16 == 0x0028:
+			strs[tg] = string(bytes.TrimRight(v, " \x00"))
 		}
 		pos += hdr + n
 	}
+	return -1, -1, false
 }
 
 // skipUndefined skips a sequence of undefined length starting at its
