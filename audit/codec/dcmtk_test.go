@@ -62,15 +62,15 @@ func runCases(t *testing.T, cases []codecCase) {
 		paths[in.name] = in.path(t, t.TempDir())
 	}
 	for ci, c := range cases {
-		for _, in := range testInputs() {
+		for ii, in := range testInputs() {
 			if len(c.inputs) > 0 && !contains(c.inputs, in.name) {
 				continue
 			}
 			name := fmt.Sprintf("%s %v on the %s decodes as %s does", c.encoder, c.args, in.name, c.decoder)
 			t.Run(name, func(t *testing.T) {
 				src := paths[in.name]
-				enc := filepath.Join(dir, fmt.Sprintf("c%d-%p.dcm", ci, &in))
-				dec := filepath.Join(dir, fmt.Sprintf("d%d-%p.dcm", ci, &in))
+				enc := filepath.Join(dir, fmt.Sprintf("c%d-%d.dcm", ci, ii))
+				dec := filepath.Join(dir, fmt.Sprintf("d%d-%d.dcm", ci, ii))
 				runTool(t, c.encoder, append(append([]string{}, c.args...), src, enc)...)
 				runTool(t, c.decoder, enc, dec)
 				cf := readDICOM(t, enc)
