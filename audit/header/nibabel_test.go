@@ -219,7 +219,7 @@ type nibabelView struct {
 	CSAType     int          `json:"csa_type"`
 	ImageTags   int          `json:"image_tags"`
 	SeriesTags  int          `json:"series_tags"`
-	BValue      float64      `json:"b_value"`
+	BValue      *float64     `json:"b_value"`
 	Gradient    []float64    `json:"gradient"`
 	BMatrix     []float64    `json:"b_matrix"`
 	SliceNormal []float64    `json:"slice_normal"`
@@ -310,8 +310,8 @@ func TestMosaicMatchesNibabelWrapper(t *testing.T) {
 			if int(d.CSA.Layout) != want.CSAType || len(d.CSA.Elements) != want.ImageTags || len(series.Elements) != want.SeriesTags {
 				t.Errorf("CSA type %d with %d/%d tags; nibabel: %d with %d/%d", d.CSA.Layout, len(d.CSA.Elements), len(series.Elements), want.CSAType, want.ImageTags, want.SeriesTags)
 			}
-			if d.BValue != want.BValue {
-				t.Errorf("b-value %v; nibabel get_b_value %v", d.BValue, want.BValue)
+			if want.BValue == nil || !d.HasBValue || d.BValue != *want.BValue {
+				t.Errorf("b-value %v %v; nibabel get_b_value %v", d.BValue, d.HasBValue, want.BValue)
 			}
 			if (want.Gradient != nil) != d.HasGradient || d.HasGradient && !near(d.Gradient[:], want.Gradient, 1e-12) {
 				t.Errorf("gradient %v %v; nibabel get_g_vector %v", d.Gradient, d.HasGradient, want.Gradient)

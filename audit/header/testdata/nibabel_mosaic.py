@@ -29,12 +29,13 @@ def describe(path):
     positions = [list(map(float, aff[:3, :3] @ np.array([0.0, 0.0, k]) + aff[:3, 3])) for k in range(n)]
     g = csareader.get_g_vector(csa)
     bm = csareader.get_vector(csa, 'B_matrix', 6)
+    b = csareader.get_b_value(csa)
     sn = csareader.get_slice_normal(csa)
     return {
         'csa_type': csa['type'],
         'image_tags': csa['n_tags'],
         'series_tags': series['n_tags'],
-        'b_value': float(csareader.get_b_value(csa)),
+        'b_value': None if b is None else float(b),
         'gradient': None if g is None else list(map(float, g)),
         'b_matrix': None if bm is None else list(map(float, bm)),
         'slice_normal': None if sn is None else list(map(float, sn)),
