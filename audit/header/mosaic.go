@@ -1,18 +1,21 @@
 package header
 
-// This file splits a Siemens MOSAIC image into its slices. A mosaic
-// holds NumberOfImagesInMosaic slices (CSA image header) as tiles of
-// one image, row by row in a square grid of ceil(sqrt(n)) tiles per
-// side, the last tiles blank (nibabel's dicom_mosaic.rst and
-// MosaicWrapper.get_data; common practice). Its Image Position
-// (Patient) is not that of any slice: it is the corner of a "slice" the
-// size of the whole mosaic centred on the first slice (nibabel's
-// dicom_mosaic.rst, after SPM; common practice).
+// This file lays out a Siemens MOSAIC image's slices. A mosaic holds
+// NumberOfImagesInMosaic slices (CSA image header) as tiles of one
+// image, row by row in a square grid of ceil(sqrt(n)) tiles per side,
+// the last tiles blank (nibabel's dicom_mosaic.rst and
+// MosaicWrapper.get_data; common practice). Its Image Position (Patient)
+// is not that of any slice: it is the corner of a "slice" the size of
+// the whole mosaic centred on the first slice (nibabel's
+// dicom_mosaic.rst, after SPM; common practice). Extraction cuts the
+// tiles (splitMosaics in makers.go).
 
 import (
 	"fmt"
 	"math"
 	"strings"
+
+	"dwiaudit/audit/dwi"
 )
 
 // maxMosaicImages caps NumberOfImagesInMosaic. A mosaic holds the slices
@@ -20,14 +23,6 @@ import (
 // (common practice). 1024 leaves room and keeps a hostile count from
 // making a Frame per tile.
 const maxMosaicImages = 1024
-
-// Mosaic is the tile layout of a mosaic image.
-type Mosaic struct {
-	Images             int // slices held: NumberOfImagesInMosaic
-	Grid               int // tiles per row and per column: ceil(sqrt(Images))
-	Rows, Columns      int // of the whole mosaic image
-	TileRows, TileCols int // of one slice
-}
 
 // IsMosaic says whether Image Type (0008,0008) marks a mosaic: one of
 // its values is MOSAIC (common practice; nibabel tells a mosaic by the
@@ -44,6 +39,9 @@ func IsMosaic(imageType []string) bool {
 // MosaicGrid returns the tiles per side of a mosaic of n slices:
 // ceil(sqrt(n)).
 func MosaicGrid(n int) int {
+	if n < 1 {
+		return 0
+	}
 	g := int(math.Sqrt(float64(n)))
 	for g*g < n {
 		g++
@@ -54,37 +52,8 @@ func MosaicGrid(n int) int {
 	return g
 }
 
-// NewMosaic checks that a rows x columns image can hold images slices
-// as a square grid of equal tiles. Errors wrap ErrMosaic.
-func NewMosaic(rows, columns, images int) (Mosaic, error) {
-	if images < 1 || images > maxMosaicImages {
-		return Mosaic{}, mosaicErrorf("%d images in the mosaic (want 1..%d)", images, maxMosaicImages)
-	}
-	g := MosaicGrid(images)
-	if rows <= 0 || columns <= 0 || rows%g != 0 || columns%g != 0 {
-		return Mosaic{}, mosaicErrorf("a %dx%d image is no grid of %dx%d equal tiles for %d images", rows, columns, g, g, images)
-	}
-	return Mosaic{Images: images, Grid: g, Rows: rows, Columns: columns, TileRows: rows / g, TileCols: columns / g}, nil
-}
-
 func mosaicErrorf(format string, args ...any) error {
 	return fmt.Errorf("%w: %s", ErrMosaic, fmt.Sprintf(format, args...))
-}
-
-// Tile copies slice k (0-based, in the order of the mosaic: tile rows
-// top to bottom, tiles left to right in each) out of the mosaic's
-// pixels, row-major, Rows*Columns long. It returns nil when k is out of
-// range or pixels is not the mosaic's size.
-func (m Mosaic) Tile(pixels []float32, k int) []float32 {
-	if k < 0 || k >= m.Images || len(pixels) != m.Rows*m.Columns {
-		return nil
-	}
-	r0, c0 := (k/m.Grid)*m.TileRows, (k%m.Grid)*m.TileCols
-	out := make([]float32, m.TileRows*m.TileCols)
-	for r := range m.TileRows {
-		copy(out[r*m.TileCols:(r+1)*m.TileCols], pixels[(r0+r)*m.Columns+c0:])
-	}
-	return out
 }
 
 // SliceNormal is the normal of the slices: the cross product of the row
@@ -105,31 +74,53 @@ func SliceNormal(orientation [6]float64, csaNormal [3]float64, ok bool) [3]float
 	return n
 }
 
-// Positions returns the Image Position (Patient) of each slice of the
-// mosaic, from the mosaic's own position, orientation and Pixel Spacing
-// (row spacing, column spacing), the slice normal (SliceNormal) and the
-// distance between slices (Spacing Between Slices, else Slice
-// Thickness, as nibabel's voxel_sizes does).
+// MosaicLayout lays out the images slices of a mosaic image of geometry
+// g: the grid, the tile size and each slice's Image Position (Patient).
+// csaNormal (ok when given) is the CSA SliceNormalVector, which decides
+// the slice order (SliceNormal). The distance between slices is Spacing
+// Between Slices, else Slice Thickness (as nibabel's voxel_sizes reads
+// it). Errors wrap ErrMosaic: a count out of range, a grid that does not
+// divide the image, no geometry or no slice distance.
 //
 // The first slice's corner is the mosaic's corner moved by half the
 // difference between mosaic and tile size: (Rows-TileRows)/2 rows along
 // the column direction cosine times the row spacing, and
-// (Columns-TileCols)/2 columns along the row direction cosine times the
-// column spacing (nibabel's MosaicWrapper.image_position and
+// (Columns-TileColumns)/2 columns along the row direction cosine times
+// the column spacing (nibabel's MosaicWrapper.image_position and
 // dicom_mosaic.rst; common practice). Slice k is the first moved k
-// times the slice spacing along the normal.
-func (m Mosaic) Positions(position [3]float64, orientation [6]float64, pixelSpacing [2]float64, normal [3]float64, sliceSpacing float64) [][3]float64 {
-	dr := float64(m.Rows-m.TileRows) / 2 * pixelSpacing[0]
-	dc := float64(m.Columns-m.TileCols) / 2 * pixelSpacing[1]
+// times the slice distance along the normal.
+func MosaicLayout(g dwi.Geometry, images int, csaNormal [3]float64, ok bool) (Mosaic, error) {
+	if images < 1 || images > maxMosaicImages {
+		return Mosaic{}, mosaicErrorf("%d images in the mosaic (want 1..%d)", images, maxMosaicImages)
+	}
+	n := MosaicGrid(images)
+	if g.Rows <= 0 || g.Columns <= 0 || g.Rows%n != 0 || g.Columns%n != 0 {
+		return Mosaic{}, mosaicErrorf("a %dx%d image is no grid of %dx%d equal tiles for %d images", g.Rows, g.Columns, n, n, images)
+	}
+	if !g.Known {
+		return Mosaic{}, mosaicErrorf("no Image Position and Orientation (Patient) to place the slices with")
+	}
+	spacing := g.SpacingBetweenSlices
+	if spacing <= 0 {
+		spacing = g.SliceThickness
+	}
+	if !(spacing > 0) || math.IsInf(spacing, 0) {
+		return Mosaic{}, mosaicErrorf("neither Spacing Between Slices nor Slice Thickness to place the slices with")
+	}
+	m := Mosaic{Slices: images, TilesAcross: n, TileRows: g.Rows / n, TileColumns: g.Columns / n}
+	normal := SliceNormal(g.Orientation, csaNormal, ok)
+	o := g.Orientation
+	dr := float64(g.Rows-m.TileRows) / 2 * g.PixelSpacing[0]
+	dc := float64(g.Columns-m.TileColumns) / 2 * g.PixelSpacing[1]
 	var p0 [3]float64
 	for i := range 3 {
-		p0[i] = position[i] + orientation[3+i]*dr + orientation[i]*dc
+		p0[i] = g.Position[i] + o[3+i]*dr + o[i]*dc
 	}
-	out := make([][3]float64, m.Images)
-	for k := range out {
+	m.Positions = make([][3]float64, images)
+	for k := range m.Positions {
 		for i := range 3 {
-			out[k][i] = p0[i] + float64(k)*sliceSpacing*normal[i]
+			m.Positions[k][i] = p0[i] + float64(k)*spacing*normal[i]
 		}
 	}
-	return out
+	return m, nil
 }

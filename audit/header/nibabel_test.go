@@ -16,6 +16,7 @@ import (
 	"github.com/suyashkumar/dicom/pkg/tag"
 	"github.com/suyashkumar/dicom/pkg/uid"
 
+	"dwiaudit/audit/dwi"
 	"dwiaudit/scp/part10"
 )
 
@@ -71,35 +72,40 @@ func testDataSet(t testing.TB, data []byte) ([]*dicom.Element, binary.ByteOrder,
 	return ds.Elements, bo, layout
 }
 
-// floatsOf reads a decimal-string attribute of the test file.
+// floatsOf reads a numeric attribute of the test file.
 func floatsOf(t testing.TB, elems []*dicom.Element, tg tag.Tag, n int) []float64 {
 	t.Helper()
-	v := elementFloats(findElement(elems, tg.Group, tg.Element), binary.LittleEndian, 8)
-	if len(v) != n {
-		t.Fatalf("%v: %v, want %d values", tg, v, n)
+	e := level(elems).find(tg)
+	if e == nil {
+		t.Fatalf("%v absent", tg)
+	}
+	v, err := numbers(e, ValueDS, binary.LittleEndian)
+	if err != nil || len(v) != n {
+		t.Fatalf("%v: %v %v, want %d values", tg, v, err, n)
 	}
 	return v
 }
 
-// mosaicOf is the mosaic layout and slice positions of a test file, as
-// the package computes them.
-func mosaicOf(t testing.TB, elems []*dicom.Element, d SiemensDiffusion) (Mosaic, [][3]float64) {
+// extractSlices runs the extraction (with the built-in maker readers)
+// over a mosaic file and checks that it became the given number of
+// slices of one mosaic.
+func extractSlices(t testing.TB, data []byte, pixels bool, slices int) []dwi.Frame {
 	t.Helper()
-	rows := floatsOf(t, elems, tag.Rows, 1)[0]
-	cols := floatsOf(t, elems, tag.Columns, 1)[0]
-	m, err := NewMosaic(int(rows), int(cols), d.MosaicImages)
+	frames, err := Extract(data, ExtractOptions{LoadPixels: pixels})
 	if err != nil {
 		t.Fatal(err)
 	}
-	var pos [3]float64
-	var ori [6]float64
-	var ps [2]float64
-	copy(pos[:], floatsOf(t, elems, tag.ImagePositionPatient, 3))
-	copy(ori[:], floatsOf(t, elems, tag.ImageOrientationPatient, 6))
-	copy(ps[:], floatsOf(t, elems, tag.PixelSpacing, 2))
-	spacing := floatsOf(t, elems, tag.SpacingBetweenSlices, 1)[0]
-	n := SliceNormal(ori, d.SliceNormal, d.HasSliceNormal)
-	return m, m.Positions(pos, ori, ps, n, spacing)
+	if len(frames) != slices {
+		t.Fatalf("%d frames, want %d slices", len(frames), slices)
+	}
+	ids := map[string]bool{}
+	for k, f := range frames {
+		if f.Tile != k+1 || ids[f.ID()] {
+			t.Fatalf("frame %d: tile %d, ID %q (seen before: %v)", k, f.Tile, f.ID(), ids[f.ID()])
+		}
+		ids[f.ID()] = true
+	}
+	return frames
 }
 
 func near(a, b []float64, tol float64) bool {
@@ -122,7 +128,8 @@ func TestReadSiemensNibabelMosaics(t *testing.T) {
 		b    float64
 	}{{nibabelB0, 0}, {nibabelB1000, 1000}} {
 		t.Run(c.file+" gives its b-value, mosaic and geometry", func(t *testing.T) {
-			elems, bo, _ := testDataSet(t, gunzipFile(t, needNibabelFile(t, c.file)))
+			data := gunzipFile(t, needNibabelFile(t, c.file))
+			elems, bo, _ := testDataSet(t, data)
 			d, found, err := ReadSiemens(elems, bo)
 			if err != nil || !found {
 				t.Fatalf("found %v, %v", found, err)
@@ -180,16 +187,35 @@ func TestReadSiemensNibabelMosaics(t *testing.T) {
 			// column (0, -0.01570896, 2.99995887) in nibabel's DPCS_TO_TAL
 			// axes, diag(-1, -1, 1) of the patient axes
 			// (dicomreaders.py), with its columns 0 and 1 swapped.
-			m, pos := mosaicOf(t, elems, d)
-			if m.Grid != 7 || m.TileRows != 128 || m.TileCols != 128 {
-				t.Errorf("mosaic %+v, want a 7x7 grid of 128x128 tiles", m)
+			//
+			// Extraction splits the mosaic into its 48 slices of
+			// 128x128 (a 7x7 grid of the 896x896 image), each with the
+			// b-value, the direction and its own position.
+			frames := extractSlices(t, data, false, 48)
+			for k, f := range frames {
+				if f.Geometry.Rows != 128 || f.Geometry.Columns != 128 || !f.HasBValue || f.BValue != c.b || f.BValueSource != "maker:siemens" {
+					t.Fatalf("slice %d: %dx%d, b %v %v from %q", k, f.Geometry.Rows, f.Geometry.Columns, f.BValue, f.HasBValue, f.BValueSource)
+				}
+				if f.HasGradient != (c.b > 0) || f.HasGradient && !near(f.Gradient[:], d.Gradient[:], 1e-6) {
+					t.Fatalf("slice %d: gradient %v %v, want the CSA's %v", k, f.Gradient, f.HasGradient, d.Gradient)
+				}
+				wantDir := dwi.DirectionalityDirectional
+				if c.b == 0 {
+					wantDir = dwi.DirectionalityNone // PS3.3 C.8.13.5.9: NONE for b = 0
+				}
+				if f.Directionality != wantDir {
+					t.Fatalf("slice %d: directionality %v, want %v", k, f.Directionality, wantDir)
+				}
 			}
-			if !near(pos[0][:], []float64{-115, -135.028779, -78.710481}, 1e-5) {
-				t.Errorf("slice 0 at %v, want (-115, -135.028779, -78.710481)", pos[0])
+			pos := func(k int) []float64 { return frames[k].Geometry.Position[:] }
+			if !near(pos(0), []float64{-115, -135.028779, -78.710481}, 1e-5) {
+				t.Errorf("slice 0 at %v, want (-115, -135.028779, -78.710481)", pos(0))
 			}
-			step := []float64{pos[1][0] - pos[0][0], pos[1][1] - pos[0][1], pos[1][2] - pos[0][2]}
-			if !near(step, []float64{0, 0.01570896, 2.99995887}, 1e-5) {
-				t.Errorf("slice step %v, want (0, 0.01570896, 2.99995887)", step)
+			for k := 1; k < 48; k++ {
+				step := []float64{pos(k)[0] - pos(k - 1)[0], pos(k)[1] - pos(k - 1)[1], pos(k)[2] - pos(k - 1)[2]}
+				if !near(step, []float64{0, 0.01570896, 2.99995887}, 1e-5) {
+					t.Errorf("slice %d: step %v, want (0, 0.01570896, 2.99995887)", k, step)
+				}
 			}
 		})
 	}
@@ -250,22 +276,20 @@ func runNibabel(t testing.TB, files ...string) map[string]nibabelView {
 
 // patterned returns a copy of a 16-bit mosaic file whose pixel values
 // are a pattern that differs in every tile (nibabel's test mosaics carry
-// zero pixels), and the pattern as the mosaic's pixels.
-func patterned(t testing.TB, data []byte, layout PixelDataLayout, rows, cols int) ([]byte, []float32) {
+// zero pixels).
+func patterned(t testing.TB, data []byte, layout PixelDataLayout, rows, cols int) []byte {
 	t.Helper()
 	if layout.Length != int64(rows*cols*2) {
 		t.Fatalf("pixel data length %d for %dx%d 16-bit", layout.Length, rows, cols)
 	}
 	out := bytes.Clone(data)
-	px := make([]float32, rows*cols)
 	for r := range rows {
 		for c := range cols {
 			v := uint16((r*31 + c*7 + (r/17)*(c/13)) % 4001)
 			binary.LittleEndian.PutUint16(out[layout.ValueOffset+int64(2*(r*cols+c)):], v)
-			px[r*cols+c] = float32(v)
 		}
 	}
-	return out, px
+	return out
 }
 
 // TestMosaicMatchesNibabelWrapper compares the CSA values, the mosaic
@@ -281,7 +305,7 @@ func TestMosaicMatchesNibabelWrapper(t *testing.T) {
 	elems, _, layout := testDataSet(t, raw)
 	rows := int(floatsOf(t, elems, tag.Rows, 1)[0])
 	cols := int(floatsOf(t, elems, tag.Columns, 1)[0])
-	pat, mosaicPixels := patterned(t, raw, layout, rows, cols)
+	pat := patterned(t, raw, layout, rows, cols)
 	patPath := filepath.Join(t.TempDir(), "patterned.dcm")
 	if err := os.WriteFile(patPath, pat, 0o644); err != nil {
 		t.Fatal(err)
@@ -322,30 +346,28 @@ func TestMosaicMatchesNibabelWrapper(t *testing.T) {
 			if !near(d.SliceNormal[:], want.SliceNormal, 1e-12) {
 				t.Errorf("slice normal %v; nibabel %v", d.SliceNormal, want.SliceNormal)
 			}
-			m, pos := mosaicOf(t, elems, d)
-			if m.Images != want.NMosaic || m.TileRows != want.TileRows || m.TileCols != want.TileCols {
-				t.Fatalf("mosaic %+v; nibabel %d slices of %dx%d", m, want.NMosaic, want.TileRows, want.TileCols)
-			}
-			for k := range pos {
-				if !near(pos[k][:], want.Positions[k][:], 1e-6) {
-					t.Errorf("slice %d at %v; nibabel's affine puts it at %v", k, pos[k], want.Positions[k])
+			frames := extractSlices(t, data, true, want.NMosaic)
+			for k, f := range frames {
+				if f.Geometry.Rows != want.TileRows || f.Geometry.Columns != want.TileCols {
+					t.Fatalf("slice %d: %dx%d; nibabel %dx%d", k, f.Geometry.Rows, f.Geometry.Columns, want.TileRows, want.TileCols)
 				}
-			}
-			if p != patPath {
-				return
-			}
-			// nibabel's get_data: slice k is data[:, :, k] (rows,
-			// columns); its sum and the probe at (rows/2, columns/3).
-			for k := range m.Images {
-				tile := m.Tile(mosaicPixels, k)
+				if !near(f.Geometry.Position[:], want.Positions[k][:], 1e-6) {
+					t.Errorf("slice %d at %v; nibabel's affine puts it at %v", k, f.Geometry.Position, want.Positions[k])
+				}
+				// nibabel's get_data: slice k is data[:, :, k] (rows,
+				// columns); its sum and the value at (rows/2,
+				// columns/3).
 				var sum float64
-				for _, v := range tile {
+				for _, v := range f.Pixels {
 					sum += float64(v)
 				}
-				probe := float64(tile[(m.TileRows/2)*m.TileCols+m.TileCols/3])
+				probe := float64(f.Pixels[(want.TileRows/2)*want.TileCols+want.TileCols/3])
 				if sum != want.SliceSums[k] || probe != want.SliceProbe[k] {
 					t.Errorf("slice %d: sum %v, probe %v; nibabel %v, %v", k, sum, probe, want.SliceSums[k], want.SliceProbe[k])
 				}
+			}
+			if p == patPath && want.SliceSums[0] == 0 {
+				t.Error("the patterned mosaic reads as zeros")
 			}
 		})
 	}

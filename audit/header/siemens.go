@@ -10,11 +10,13 @@ package header
 
 import (
 	"encoding/binary"
+	"fmt"
 	"math"
-	"strconv"
 	"strings"
 
 	"github.com/suyashkumar/dicom"
+
+	"dwiaudit/audit/dwi"
 )
 
 // Private creators and element offsets of the Siemens blocks. The
@@ -28,15 +30,13 @@ const (
 	SiemensCSACreator = "SIEMENS CSA HEADER"
 	SiemensMRCreator  = "SIEMENS MR HEADER"
 
-	csaGroup           = 0x0029
-	csaImageOffset     = 0x10 // CSA Image Header Info, OB
-	csaSeriesOffset    = 0x20 // CSA Series Header Info, OB
-	mrGroup            = 0x0019
-	mrBValueOffset     = 0x0C // IS, s/mm^2
-	mrDirectionality   = 0x0D // CS: DIRECTIONAL, NONE, ...
-	mrGradientOffset   = 0x0E // FD x3
-	privateCreatorLow  = 0x0010
-	privateCreatorHigh = 0x00FF
+	csaGroup         = 0x0029
+	csaImageOffset   = 0x10 // CSA Image Header Info, OB
+	csaSeriesOffset  = 0x20 // CSA Series Header Info, OB
+	mrGroup          = 0x0019
+	mrBValueOffset   = 0x0C // IS, s/mm^2
+	mrDirectionality = 0x0D // CS: DIRECTIONAL, NONE, ...
+	mrGradientOffset = 0x0E // FD x3
 )
 
 // Names of the CSA image header elements read here (nibabel's
@@ -93,13 +93,47 @@ type SiemensDiffusion struct {
 // top-level elements of a data set; bo is the byte order of its transfer
 // syntax (binary values of elements the parser kept as bytes are in
 // it). found is false when neither Siemens block is present. A CSA
-// header that is present but malformed is an error wrapping ErrCSA.
+// header that is present but malformed is an error wrapping ErrCSA (and
+// ErrPrivateSource).
 func ReadSiemens(elems []*dicom.Element, bo binary.ByteOrder) (d SiemensDiffusion, found bool, err error) {
-	csa, csaFound, err := ReadCSA(elems, false)
+	return readSiemens(&MakerImage{Frame: &dwi.Frame{}, levels: []level{elems}, bo: bo, reader: siemensName})
+}
+
+// ReadCSA finds and parses the CSA image header (series false) or the
+// CSA series header (series true) among the top-level elements. found
+// is false when the block or the element is absent (an anonymiser may
+// drop the element and keep its creator; nibabel's get_csa_header then
+// returns None too).
+func ReadCSA(elems []*dicom.Element, series bool) (h *CSAHeader, found bool, err error) {
+	off := uint8(csaImageOffset)
+	if series {
+		off = csaSeriesOffset
+	}
+	return readCSA(&MakerImage{Frame: &dwi.Frame{}, levels: []level{elems}, bo: binary.LittleEndian, reader: siemensName}, off)
+}
+
+func readCSA(im *MakerImage, off uint8) (*CSAHeader, bool, error) {
+	e, _ := im.Private(SiemensCSACreator, csaGroup, off)
+	if e == nil {
+		return nil, false, nil
+	}
+	b := e.Bytes()
+	if len(b) == 0 {
+		return nil, false, nil
+	}
+	h, err := ParseCSA(b)
+	if err != nil {
+		return nil, true, fmt.Errorf("%w: %w", im.Fail(e, "CSA header"), err)
+	}
+	return h, true, nil
+}
+
+func readSiemens(im *MakerImage) (d SiemensDiffusion, found bool, err error) {
+	csa, csaFound, err := readCSA(im, csaImageOffset)
 	if err != nil {
 		return d, true, err
 	}
-	mr, mrFound := privateBlock(elems, mrGroup, SiemensMRCreator)
+	_, mrFound := im.Private(SiemensMRCreator, mrGroup, mrBValueOffset)
 	if !csaFound && !mrFound {
 		return d, false, nil
 	}
@@ -126,22 +160,29 @@ func ReadSiemens(elems []*dicom.Element, bo binary.ByteOrder) (d SiemensDiffusio
 		d.HasSliceNormal = true
 	}
 
-	if mrFound {
-		if !d.HasBValue {
-			if v := elementFloats(findElement(elems, mrGroup, mr|mrBValueOffset), bo, 8); len(v) > 0 && v[0] >= 0 {
-				d.BValue, d.HasBValue, d.BValueSource = v[0], true, "mr-header"
-			}
+	if !mrFound {
+		return d, true, nil
+	}
+	if e, _ := im.Private(SiemensMRCreator, mrGroup, mrBValueOffset); e != nil && !d.HasBValue {
+		v, err := e.Numbers(ValueIS)
+		if err != nil || len(v) != 1 || v[0] < 0 {
+			return d, true, im.Fail(e, "b-value %v: %v", v, err)
 		}
-		if !d.HasGradient {
-			if v := elementFloats(findElement(elems, mrGroup, mr|mrGradientOffset), bo, 8); len(v) == 3 && unitish(v) {
-				copy(d.Gradient[:], v)
-				d.HasGradient = true
-			}
+		d.BValue, d.HasBValue, d.BValueSource = v[0], true, "mr-header"
+	}
+	if e, _ := im.Private(SiemensMRCreator, mrGroup, mrGradientOffset); e != nil && !d.HasGradient {
+		v, err := e.Numbers(ValueFD)
+		if err != nil || len(v) != 3 {
+			return d, true, im.Fail(e, "gradient direction %v: %v", v, err)
 		}
-		if d.Directionality == "" {
-			if s := elementText(findElement(elems, mrGroup, mr|mrDirectionality)); len(s) > 0 {
-				d.Directionality = s[0]
-			}
+		if unitish(v) { // a zero vector is "no direction"
+			copy(d.Gradient[:], v)
+			d.HasGradient = true
+		}
+	}
+	if e, _ := im.Private(SiemensMRCreator, mrGroup, mrDirectionality); e != nil && d.Directionality == "" {
+		if s := e.Strings(); len(s) > 0 {
+			d.Directionality = s[0]
 		}
 	}
 	return d, true, nil
@@ -160,149 +201,74 @@ func unitish(v []float64) bool {
 	return math.Abs(math.Sqrt(n)-1) < 1e-3
 }
 
-// ReadCSA finds and parses the CSA image header (series false) or the
-// CSA series header (series true) among the top-level elements. found
-// is false when the block or the element is absent (an anonymiser may
-// drop the element and keep its creator; nibabel's get_csa_header then
-// returns None too).
-func ReadCSA(elems []*dicom.Element, series bool) (h *CSAHeader, found bool, err error) {
-	block, ok := privateBlock(elems, csaGroup, SiemensCSACreator)
-	if !ok {
-		return nil, false, nil
+// siemensName is the maker reader's name: Frame.BValueSource is
+// "maker:siemens" for the b-values it gives.
+const siemensName = "siemens"
+
+// SiemensReader is the built-in maker reader for Siemens images: the
+// b-value, gradient direction and directionality from the CSA image
+// header, else from the "SIEMENS MR HEADER" elements, and the split of
+// MOSAIC images into their slices. It applies to any image that carries
+// either private block, whatever its Manufacturer says (a converter or
+// an anonymiser may change that attribute and keep the blocks).
+func SiemensReader() MakerReader {
+	return MakerReader{
+		Name:     siemensName,
+		Creators: []string{SiemensCSACreator, SiemensMRCreator},
+		Read:     siemensMakerRead,
+		Split:    siemensSplit,
 	}
-	off := uint16(csaImageOffset)
-	if series {
-		off = csaSeriesOffset
+}
+
+func siemensMakerRead(im *MakerImage) (MakerDiffusion, error) {
+	d, found, err := readSiemens(im)
+	if err != nil || !found {
+		return MakerDiffusion{}, err
 	}
-	e := findElement(elems, csaGroup, block|off)
-	if e == nil || e.Value == nil {
-		return nil, false, nil
+	m := MakerDiffusion{BValue: d.BValue, HasBValue: d.HasBValue, Gradient: d.Gradient, HasGradient: d.HasGradient}
+	switch strings.ToUpper(d.Directionality) {
+	case "NONE":
+		m.Directionality = dwi.DirectionalityNone
+	case "DIRECTIONAL":
+		m.Directionality = dwi.DirectionalityDirectional
+	case "ISOTROPIC":
+		m.Directionality = dwi.DirectionalityIsotropic
+	case "BMATRIX":
+		m.Directionality = dwi.DirectionalityBMatrix
 	}
-	b, ok := e.Value.GetValue().([]byte)
-	if !ok || len(b) == 0 {
-		return nil, false, nil
+	if d.HasBValue && d.BValue == 0 {
+		// A b0 is no direction, whatever the header says (nibabel's
+		// siemens_dwi_0 has B_value 0 and DiffusionDirectionality
+		// DIRECTIONAL; PS3.3 C.8.13.5.9: NONE for b = 0).
+		m.Directionality = dwi.DirectionalityNone
+		m.HasGradient = false
 	}
-	h, err = ParseCSA(b)
+	return m, nil
+}
+
+// siemensSplit says whether an image is a mosaic (Image Type MOSAIC)
+// and lays out its slices from NumberOfImagesInMosaic and
+// SliceNormalVector of its CSA header (mosaic.go).
+func siemensSplit(im *MakerImage) (Mosaic, bool, error) {
+	if !IsMosaic(im.Frame.ImageType) {
+		return Mosaic{}, false, nil
+	}
+	csa, _, err := readCSA(im, csaImageOffset)
 	if err != nil {
-		return nil, true, err
+		return Mosaic{}, false, err
 	}
-	return h, true, nil
-}
-
-// privateBlock returns the reserved block of private creator creator
-// in group: bb<<8 for the creator element (group,00bb), PS3.5 7.8.1.
-func privateBlock(elems []*dicom.Element, group uint16, creator string) (uint16, bool) {
-	for _, e := range elems {
-		if e.Tag.Group != group || e.Tag.Element < privateCreatorLow || e.Tag.Element > privateCreatorHigh {
-			continue
-		}
-		if v := elementText(e); len(v) == 1 && v[0] == creator {
-			return e.Tag.Element << 8, true
-		}
+	n, ok := csa.Int(CSAMosaicImages)
+	if !ok {
+		return Mosaic{}, false, fmt.Errorf("%w: a MOSAIC image without NumberOfImagesInMosaic in a CSA image header", ErrMosaic)
 	}
-	return 0, false
-}
-
-func findElement(elems []*dicom.Element, group, element uint16) *dicom.Element {
-	for _, e := range elems {
-		if e.Tag.Group == group && e.Tag.Element == element {
-			return e
-		}
+	var normal [3]float64
+	v, hasNormal := csa.Vector(CSASliceNormal, 3)
+	if hasNormal {
+		copy(normal[:], v)
 	}
-	return nil
-}
-
-// elementText returns the values of a text element, padding removed
-// (PS3.5 6.2); an element kept as bytes (UN in an implicit VR data set,
-// or a private element written as OB) is read as its text.
-func elementText(e *dicom.Element) []string {
-	if e == nil || e.Value == nil {
-		return nil
+	m, err := MosaicLayout(im.Frame.Geometry, n, normal, hasNormal && unitish(v))
+	if err != nil {
+		return Mosaic{}, false, err
 	}
-	var v []string
-	switch x := e.Value.GetValue().(type) {
-	case []string:
-		v = x
-	case []byte:
-		v = strings.Split(string(x), `\`)
-	default:
-		return nil
-	}
-	out := make([]string, len(v))
-	for i, s := range v {
-		out[i] = strings.Trim(s, " \x00")
-	}
-	return out
-}
-
-// elementFloats returns the numbers of a numeric element: parsed
-// values, decimal text, or bytes. Bytes are read as text when they look
-// like text (an IS or DS kept as UN), else as binary values of size
-// bytes each (8: FD, 4: FL) in byte order bo. nil when unreadable.
-func elementFloats(e *dicom.Element, bo binary.ByteOrder, size int) []float64 {
-	if e == nil || e.Value == nil {
-		return nil
-	}
-	switch x := e.Value.GetValue().(type) {
-	case []float64:
-		return x
-	case []int:
-		out := make([]float64, len(x))
-		for i, v := range x {
-			out[i] = float64(v)
-		}
-		return out
-	case []string:
-		return decimals(x)
-	case []byte:
-		if isDecimalText(x) {
-			return decimals(strings.Split(string(x), `\`))
-		}
-		if len(x) == 0 || len(x)%size != 0 {
-			return nil
-		}
-		out := make([]float64, 0, len(x)/size)
-		for i := 0; i < len(x); i += size {
-			var v float64
-			if size == 8 {
-				v = math.Float64frombits(bo.Uint64(x[i:]))
-			} else {
-				v = float64(math.Float32frombits(bo.Uint32(x[i:])))
-			}
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil
-			}
-			out = append(out, v)
-		}
-		return out
-	}
-	return nil
-}
-
-func decimals(s []string) []float64 {
-	out := make([]float64, 0, len(s))
-	for _, t := range s {
-		v, err := strconv.ParseFloat(strings.Trim(t, " \x00"), 64)
-		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil
-		}
-		out = append(out, v)
-	}
-	return out
-}
-
-// isDecimalText says whether b is the text of IS or DS values (PS3.5
-// 6.2: digits, sign, point, exponent, space padding, backslash).
-func isDecimalText(b []byte) bool {
-	digit := false
-	for _, c := range b {
-		switch {
-		case c >= '0' && c <= '9':
-			digit = true
-		case c == '+' || c == '-' || c == '.' || c == 'e' || c == 'E' || c == ' ' || c == '\\' || c == 0:
-		default:
-			return false
-		}
-	}
-	return digit
+	return m, true, nil
 }

@@ -9,11 +9,13 @@ import (
 
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
+
+	"dwiaudit/audit/dwi"
 )
 
 // el is an element as the parser leaves it: private elements of an
 // implicit VR data set come as bytes (VR UN).
-func el(t testing.TB, group, element uint16, value any) *dicom.Element {
+func rawEl(t testing.TB, group, element uint16, value any) *dicom.Element {
 	t.Helper()
 	v, err := dicom.NewValue(value)
 	if err != nil {
@@ -22,7 +24,7 @@ func el(t testing.TB, group, element uint16, value any) *dicom.Element {
 	return &dicom.Element{Tag: tag.Tag{Group: group, Element: element}, RawValueRepresentation: "UN", Value: v}
 }
 
-func fd(v ...float64) []byte {
+func fdBytes(v ...float64) []byte {
 	var b []byte
 	for _, x := range v {
 		b = binary.LittleEndian.AppendUint64(b, math.Float64bits(x))
@@ -46,7 +48,7 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 		{
 			name: "the CSA header in block 10 is read",
 			elems: func(t testing.TB) []*dicom.Element {
-				return []*dicom.Element{el(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")), el(t, 0x29, 0x1010, csa)}
+				return []*dicom.Element{rawEl(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")), rawEl(t, 0x29, 0x1010, csa)}
 			},
 			found: true, b: 1000, source: "csa", grad: []float64{0.6, -0.8, 0}, mosaic: 30,
 		},
@@ -54,10 +56,10 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 			name: "a CSA header in another reserved block is found through its creator (PS3.5 7.8.1)",
 			elems: func(t testing.TB) []*dicom.Element {
 				return []*dicom.Element{
-					el(t, 0x29, 0x10, []byte("OTHER MAKER ")),
-					el(t, 0x29, 0x12, []byte("SIEMENS CSA HEADER")),
-					el(t, 0x29, 0x1010, b0), // the other creator's element: not read
-					el(t, 0x29, 0x1210, csa),
+					rawEl(t, 0x29, 0x10, []byte("OTHER MAKER ")),
+					rawEl(t, 0x29, 0x12, []byte("SIEMENS CSA HEADER")),
+					rawEl(t, 0x29, 0x1010, b0), // the other creator's element: not read
+					rawEl(t, 0x29, 0x1210, csa),
 				}
 			},
 			found: true, b: 1000, source: "csa", grad: []float64{0.6, -0.8, 0}, mosaic: 30,
@@ -65,17 +67,17 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 		{
 			name: "(0029,1010) without the Siemens creator is not read",
 			elems: func(t testing.TB) []*dicom.Element {
-				return []*dicom.Element{el(t, 0x29, 0x10, []byte("OTHER MAKER ")), el(t, 0x29, 0x1010, csa)}
+				return []*dicom.Element{rawEl(t, 0x29, 0x10, []byte("OTHER MAKER ")), rawEl(t, 0x29, 0x1010, csa)}
 			},
 		},
 		{
 			name: "the MR header gives b-value and direction where there is no CSA header",
 			elems: func(t testing.TB) []*dicom.Element {
 				return []*dicom.Element{
-					el(t, 0x19, 0x11, []byte("SIEMENS MR HEADER ")),
-					el(t, 0x19, 0x110C, []byte("700 ")),
-					el(t, 0x19, 0x110D, []byte("DIRECTIONAL ")),
-					el(t, 0x19, 0x110E, fd(0, 0.6, 0.8)),
+					rawEl(t, 0x19, 0x11, []byte("SIEMENS MR HEADER ")),
+					rawEl(t, 0x19, 0x110C, []byte("700 ")),
+					rawEl(t, 0x19, 0x110D, []byte("DIRECTIONAL ")),
+					rawEl(t, 0x19, 0x110E, fdBytes(0, 0.6, 0.8)),
 				}
 			},
 			found: true, b: 700, source: "mr-header", grad: []float64{0, 0.6, 0.8},
@@ -84,9 +86,9 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 			name: "MR header values parsed by VR (explicit VR) are read too",
 			elems: func(t testing.TB) []*dicom.Element {
 				return []*dicom.Element{
-					el(t, 0x19, 0x10, []string{"SIEMENS MR HEADER"}),
-					el(t, 0x19, 0x100C, []string{"1500"}),
-					el(t, 0x19, 0x100E, []float64{1, 0, 0}),
+					rawEl(t, 0x19, 0x10, []string{"SIEMENS MR HEADER"}),
+					rawEl(t, 0x19, 0x100C, []string{"1500"}),
+					rawEl(t, 0x19, 0x100E, []float64{1, 0, 0}),
 				}
 			},
 			found: true, b: 1500, source: "mr-header", grad: []float64{1, 0, 0},
@@ -95,11 +97,11 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 			name: "the CSA header wins over the MR header",
 			elems: func(t testing.TB) []*dicom.Element {
 				return []*dicom.Element{
-					el(t, 0x19, 0x10, []byte("SIEMENS MR HEADER")),
-					el(t, 0x19, 0x100C, []byte("700 ")),
-					el(t, 0x19, 0x100E, fd(0, 0.6, 0.8)),
-					el(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")),
-					el(t, 0x29, 0x1010, csa),
+					rawEl(t, 0x19, 0x10, []byte("SIEMENS MR HEADER")),
+					rawEl(t, 0x19, 0x100C, []byte("700 ")),
+					rawEl(t, 0x19, 0x100E, fdBytes(0, 0.6, 0.8)),
+					rawEl(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")),
+					rawEl(t, 0x29, 0x1010, csa),
 				}
 			},
 			found: true, b: 1000, source: "csa", grad: []float64{0.6, -0.8, 0}, mosaic: 30,
@@ -108,9 +110,9 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 			name: "a zero gradient is no direction",
 			elems: func(t testing.TB) []*dicom.Element {
 				return []*dicom.Element{
-					el(t, 0x19, 0x10, []byte("SIEMENS MR HEADER")),
-					el(t, 0x19, 0x100C, []byte("0 ")),
-					el(t, 0x19, 0x100E, fd(0, 0, 0)),
+					rawEl(t, 0x19, 0x10, []byte("SIEMENS MR HEADER")),
+					rawEl(t, 0x19, 0x100C, []byte("0 ")),
+					rawEl(t, 0x19, 0x100E, fdBytes(0, 0, 0)),
 				}
 			},
 			found: true, b: 0, source: "mr-header",
@@ -118,14 +120,14 @@ func TestReadSiemensFindsBlocksByTheirCreator(t *testing.T) {
 		{
 			name: "a creator without its CSA element (anonymised) is no CSA header",
 			elems: func(t testing.TB) []*dicom.Element {
-				return []*dicom.Element{el(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER"))}
+				return []*dicom.Element{rawEl(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER"))}
 			},
 			found: false,
 		},
 		{
 			name: "a malformed CSA header is an error",
 			elems: func(t testing.TB) []*dicom.Element {
-				return []*dicom.Element{el(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")), el(t, 0x29, 0x1010, csa[:100])}
+				return []*dicom.Element{rawEl(t, 0x29, 0x10, []byte("SIEMENS CSA HEADER")), rawEl(t, 0x29, 0x1010, csa[:100])}
 			},
 			found: true, wantErr: ErrCSA,
 		},
@@ -160,31 +162,27 @@ func TestMosaicGeometry(t *testing.T) {
 			}
 		}
 	})
-	t.Run("an image the grid does not divide is refused", func(t *testing.T) {
-		for _, c := range [][3]int{{100, 96, 9}, {96, 96, 0}, {96, 96, -1}, {96, 96, maxMosaicImages + 1}, {0, 0, 4}} {
-			if _, err := NewMosaic(c[0], c[1], c[2]); !errors.Is(err, ErrMosaic) {
-				t.Errorf("NewMosaic%v: %v, want ErrMosaic", c, err)
+	t.Run("an image the grid does not divide, or without geometry, is refused", func(t *testing.T) {
+		good := dwi.Geometry{Rows: 96, Columns: 96, PixelSpacing: [2]float64{1, 1}, Orientation: [6]float64{1, 0, 0, 0, 1, 0}, SliceThickness: 3, Known: true}
+		for _, c := range []struct {
+			name   string
+			g      dwi.Geometry
+			images int
+		}{
+			{"rows not a multiple of the grid", dwi.Geometry{Rows: 100, Columns: 96, Known: true, SliceThickness: 3}, 9},
+			{"no images", good, 0},
+			{"a negative count", good, -1},
+			{"more images than the cap", good, maxMosaicImages + 1},
+			{"an empty image", dwi.Geometry{Known: true, SliceThickness: 3}, 4},
+			{"no position and orientation", dwi.Geometry{Rows: 96, Columns: 96, SliceThickness: 3}, 4},
+			{"no slice distance", dwi.Geometry{Rows: 96, Columns: 96, Known: true}, 4},
+		} {
+			if _, err := MosaicLayout(c.g, c.images, [3]float64{}, false); !errors.Is(err, ErrMosaic) {
+				t.Errorf("%s: %v, want ErrMosaic", c.name, err)
 			}
 		}
-	})
-	t.Run("tiles are cut row by row and blank tiles are left out", func(t *testing.T) {
-		m, err := NewMosaic(6, 9, 7) // a 3x3 grid of 2x3 tiles
-		if err != nil {
-			t.Fatal(err)
-		}
-		px := make([]float32, 6*9)
-		for i := range px {
-			px[i] = float32(i)
-		}
-		// Tile 4 is grid row 1, column 1: mosaic rows 2-3, columns 3-5.
-		if got := m.Tile(px, 4); !slices.Equal(got, []float32{21, 22, 23, 30, 31, 32}) {
-			t.Errorf("tile 4 = %v", got)
-		}
-		if got := m.Tile(px, 6); !slices.Equal(got, []float32{36, 37, 38, 45, 46, 47}) {
-			t.Errorf("tile 6 = %v", got)
-		}
-		if m.Tile(px, 7) != nil || m.Tile(px[:10], 0) != nil {
-			t.Error("a tile past the images, or of short pixels, was cut")
+		if _, err := MosaicLayout(good, 9, [3]float64{}, false); err != nil {
+			t.Errorf("a good mosaic: %v", err)
 		}
 	})
 	t.Run("the CSA slice normal decides the order of the slices", func(t *testing.T) {
@@ -197,17 +195,27 @@ func TestMosaicGeometry(t *testing.T) {
 		}
 	})
 	t.Run("a non-square tile moves its corner by half the size difference on each axis", func(t *testing.T) {
-		m, err := NewMosaic(40, 60, 4) // 2x2 tiles of 20x30
+		// 2x2 tiles of 20x30 in a 40x60 image; rows along y (column
+		// cosine), columns along x (row cosine), row spacing 2 mm,
+		// column spacing 1 mm, slices 5 mm apart (Spacing Between
+		// Slices wins over Slice Thickness).
+		g := dwi.Geometry{Rows: 40, Columns: 60, PixelSpacing: [2]float64{2, 1}, Orientation: [6]float64{1, 0, 0, 0, 1, 0},
+			SliceThickness: 4, SpacingBetweenSlices: 5, Known: true}
+		m, err := MosaicLayout(g, 4, [3]float64{0, 0, 1}, true)
 		if err != nil {
 			t.Fatal(err)
 		}
-		// Rows along y (column cosine), columns along x (row cosine),
-		// row spacing 2 mm, column spacing 1 mm.
-		pos := m.Positions([3]float64{0, 0, 0}, [6]float64{1, 0, 0, 0, 1, 0}, [2]float64{2, 1}, [3]float64{0, 0, 1}, 5)
+		if m.Slices != 4 || m.TilesAcross != 2 || m.TileRows != 20 || m.TileColumns != 30 {
+			t.Errorf("layout %+v", m)
+		}
 		// x: (60-30)/2 columns of 1 mm; y: (40-20)/2 rows of 2 mm.
 		want := [][3]float64{{15, 20, 0}, {15, 20, 5}, {15, 20, 10}, {15, 20, 15}}
-		if !slices.Equal(pos, want) {
-			t.Errorf("positions %v, want %v", pos, want)
+		if !slices.Equal(m.Positions, want) {
+			t.Errorf("positions %v, want %v", m.Positions, want)
+		}
+		m, _ = MosaicLayout(g, 4, [3]float64{0, 0, -1}, true)
+		if m.Positions[1] != [3]float64{15, 20, -5} {
+			t.Errorf("a reversed CSA normal puts slice 1 at %v, want (15, 20, -5)", m.Positions[1])
 		}
 	})
 }
