@@ -248,7 +248,9 @@ func siemensMakerRead(im *MakerImage) (MakerDiffusion, error) {
 
 // siemensSplit says whether an image is a mosaic (Image Type MOSAIC)
 // and lays out its slices from NumberOfImagesInMosaic and
-// SliceNormalVector of its CSA header (mosaic.go).
+// SliceNormalVector of its CSA header (mosaic.go). A mosaic that cannot
+// be laid out is malformed (ErrMalformed and ErrMosaic): the image is
+// unreadable, never a false single slice.
 func siemensSplit(im *MakerImage) (Mosaic, bool, error) {
 	if !IsMosaic(im.Frame.ImageType) {
 		return Mosaic{}, false, nil
@@ -259,7 +261,7 @@ func siemensSplit(im *MakerImage) (Mosaic, bool, error) {
 	}
 	n, ok := csa.Int(CSAMosaicImages)
 	if !ok {
-		return Mosaic{}, false, fmt.Errorf("%w: a MOSAIC image without NumberOfImagesInMosaic in a CSA image header", ErrMosaic)
+		return Mosaic{}, false, fmt.Errorf("%w: %w: a MOSAIC image without NumberOfImagesInMosaic in a CSA image header", ErrMalformed, ErrMosaic)
 	}
 	var normal [3]float64
 	v, hasNormal := csa.Vector(CSASliceNormal, 3)
@@ -268,7 +270,7 @@ func siemensSplit(im *MakerImage) (Mosaic, bool, error) {
 	}
 	m, err := MosaicLayout(im.Frame.Geometry, n, normal, hasNormal && unitish(v))
 	if err != nil {
-		return Mosaic{}, false, err
+		return Mosaic{}, false, fmt.Errorf("%w: %w", ErrMalformed, err)
 	}
 	return m, true, nil
 }

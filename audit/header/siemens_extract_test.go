@@ -119,8 +119,8 @@ func TestSiemensReaderExtractsMosaicsAndClassicImages(t *testing.T) {
 		m    img
 		want []error
 	}{
-		{"a mosaic the grid does not divide", siemensMosaic(siemensCSA("1000", "9", []string{"1", "0", "0"}, up)), []error{ErrMosaic}},
-		{"a mosaic without NumberOfImagesInMosaic", siemensMosaic(siemensCSA("1000", "", []string{"1", "0", "0"}, up)), []error{ErrMosaic}},
+		{"a mosaic the grid does not divide", siemensMosaic(siemensCSA("1000", "9", []string{"1", "0", "0"}, up)), []error{ErrMalformed, ErrMosaic}},
+		{"a mosaic without NumberOfImagesInMosaic", siemensMosaic(siemensCSA("1000", "", []string{"1", "0", "0"}, up)), []error{ErrMalformed, ErrMosaic}},
 		{"a truncated CSA header", siemensMosaic(siemensCSA("1000", "4", nil, up)[:40]), []error{ErrCSA, ErrPrivateSource}},
 	}
 	for _, c := range bad {
