@@ -57,7 +57,10 @@ const (
 // (PS3.3 C.7.6.2.1.1), as the CSA header and (0019,xx0E) store them
 // (from memory; nibabel's dicomwrappers.py treats the CSA B_matrix as
 // "the space of the DICOM patient coordinate space" and rotates it into
-// voxel axes itself).
+// voxel axes itself; TestReadSiemensNibabelMosaics turns the direction of
+// nibabel's siemens_dwi_1000 into nibabel's voxel axes and meets its
+// EXPECTED_PARAMS within 1e-5, where reading it as image axes would miss
+// by 2.6e-5).
 type SiemensDiffusion struct {
 	BValue    float64
 	HasBValue bool
