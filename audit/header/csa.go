@@ -19,6 +19,7 @@ package header
 // text; numbers are read from the text where asked.
 
 import (
+	"bytes"
 	"encoding/binary"
 	"fmt"
 	"math"
@@ -216,6 +217,17 @@ func csaText(b []byte) string {
 			b = b[:i]
 			break
 		}
+	}
+	b = bytes.TrimSpace(b)
+	ascii := true
+	for _, c := range b {
+		if c >= 0x80 {
+			ascii = false
+			break
+		}
+	}
+	if ascii {
+		return string(b)
 	}
 	var s strings.Builder
 	for _, c := range b {

@@ -323,3 +323,23 @@ func FuzzCSA(f *testing.F) {
 		}
 	})
 }
+
+// BenchmarkParseCSA parses nibabel's CSA image header of a Siemens DWI
+// mosaic (csa2_b1000.bin, 83 tags) and reads the diffusion values.
+func BenchmarkParseCSA(b *testing.B) {
+	data, err := os.ReadFile(needNibabelFile(b, "csa2_b1000.bin"))
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		h, err := ParseCSA(data)
+		if err != nil {
+			b.Fatal(err)
+		}
+		if _, ok := h.Float(CSABValue); !ok {
+			b.Fatal("no B_value")
+		}
+		h.Vector(CSAGradient, 3)
+	}
+}
