@@ -257,6 +257,7 @@ const makerSource = "maker:"
 // they read and the sources.
 func DefaultMakers() []MakerReader {
 	return []MakerReader{
+		SiemensReader(),
 		geReader(),
 		philipsReader(),
 		canonReader(),
