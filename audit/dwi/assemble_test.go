@@ -116,7 +116,9 @@ func TestBValuesWithinToleranceFormOneVolume(t *testing.T) {
 		{"895 and 905 only", []img{{b: 895, dir: x, slice: 0}, {b: 905, dir: x, slice: 1}}, []float64{900}, []int{2}, 0},
 		// IVIM protocols step by 10 s/mm^2 at the low end (common practice).
 		{"IVIM b-values 0, 10, 20", []img{{b: 0}, {b: 10, dir: x}, {b: 20, dir: x}}, []float64{0, 10, 20}, []int{1, 1, 1}, 0},
-		{"a b0 written as 0 and as 4", []img{{b: 0, slice: 0}, {b: 4, directionality: "NONE", slice: 1}}, []float64{2}, []int{2}, 0},
+		// Within the b-value tolerance of 0, a b0 reads 0 (DefaultTolerances).
+		{"a b0 written as 0 and as 4", []img{{b: 0, slice: 0}, {b: 4, directionality: "NONE", slice: 1}}, []float64{0}, []int{2}, 0},
+		{"a b0 written as 0.002 and b 999.998", []img{{b: 0.0020000000717118383, directionality: "NONE"}, {b: 999.9979999999283, dir: x}}, []float64{0, 1000}, []int{1, 1}, 0},
 		{"800 and 1000", []img{{b: 800, dir: x}, {b: 1000, dir: x}}, []float64{800, 1000}, []int{1, 1}, 0},
 		{"a b-matrix whose trace is not the b-value", []img{{b: 1000, directionality: "BMATRIX", bmatrix: &[6]float64{700, 0, 0, 0, 0, 0}}}, []float64{1000}, []int{1}, 1},
 	}
@@ -212,12 +214,20 @@ func TestAssemblyReportsWhatIsWrongAsFacts(t *testing.T) {
 					t.Errorf("missing %+v, want one per volume", f.MissingSlices)
 				}
 			}},
-		{"an image sent twice", append(slices.Clone(four), img{b: 1000, dir: x, slice: 1}), nil,
+		{"a second image of one b-value, direction and slice", append(slices.Clone(four), img{b: 1000, dir: x, slice: 1}), nil,
 			func(t *testing.T, f Facts, s *Series) {
-				if len(f.Duplicates) != 1 || !strings.HasSuffix(f.Duplicates[0], ".17") {
-					t.Errorf("duplicates %v, want the later image (.17)", f.Duplicates)
+				if len(f.Repeats) != 1 || !strings.HasSuffix(f.Repeats[0], ".17") || f.Duplicates != nil {
+					t.Errorf("repeats %v, duplicates %v; want the later image (.17) as a repeat", f.Repeats, f.Duplicates)
 				}
 			}},
+		{"an image met twice", four, func(fs []Frame) {
+			// The same file read twice: the same SOP Instance UID.
+			fs[len(fs)-1] = fs[0]
+		}, func(t *testing.T, f Facts, s *Series) {
+			if len(f.Duplicates) != 1 || f.Repeats != nil {
+				t.Errorf("duplicates %v, repeats %v; want one duplicate and no repeat", f.Duplicates, f.Repeats)
+			}
+		}},
 		{"an image whose b-value is far from its volume's", four, func(fs []Frame) {
 			// Chained 1000 -> 1015 -> 1030 -> 1045 keeps one cluster of
 			// mean 1022.5; 1000 and 1045 are beyond 2% of it.

@@ -281,6 +281,11 @@ const (
 	tFloatPixelData  = 0x7FE00008
 )
 
+// omitDirectionality as img.directionality writes neither Diffusion
+// Directionality nor a gradient: a weighted image that says nothing of
+// its direction.
+const omitDirectionality = "-"
+
 // img is one image of a test series.
 type img struct {
 	b              float64
@@ -395,6 +400,9 @@ func diffusion(m img) []el {
 		default:
 			dir = "DIRECTIONAL"
 		}
+	}
+	if dir == omitDirectionality {
+		return out
 	}
 	out = append(out, txt(tDirectionality, "CS", dir))
 	if dir == "DIRECTIONAL" {
