@@ -162,8 +162,11 @@ type SeriesReport struct {
 	Scanner string
 	// Protocol names the matched protocol or phantom profile ("" when
 	// none matched).
-	Protocol      string
-	BValues       []float64 // nominal b-values present, s/mm², ascending
+	Protocol string
+	BValues  []float64 // nominal b-values present, s/mm², ascending
+	// Volumes is the series' gradient table (dwi.Series.GradientTable):
+	// one row per acquired volume, repeats counted in its images.
+	Volumes       []dwi.TableRow
 	Measures      analysis.Measures
 	CannotCompute string
 	// PhantomADC is the central-region ADC of a phantom series
@@ -568,6 +571,7 @@ func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.I
 	if s := sa.Series; s != nil {
 		r.SeriesUID, r.SeriesNumber, r.SeriesDescription = s.SeriesInstanceUID, s.SeriesNumber, s.SeriesDescription
 		r.Scanner, r.BValues = scannerOf(s.Scanner), slices.Clone(s.Facts.BValues)
+		r.Volumes = s.GradientTable()
 	} else {
 		var se *dwi.SeriesError
 		if errors.As(sa.Err, &se) {

@@ -13,6 +13,7 @@ import (
 	"sync"
 	"time"
 
+	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 	"dwiaudit/store"
@@ -522,9 +523,27 @@ func measuresJSON(r *SeriesReport) json.RawMessage {
 		CannotCompute:          r.CannotCompute,
 		PhantomADC:             fin(r.PhantomADC),
 		PhantomExpectedADC:     fin(r.PhantomExpectedADC),
+		Volumes:                VolumeRecords(r.Volumes),
 	})
 	if err != nil {
 		return nil
 	}
 	return b
+}
+
+// VolumeRecords is a gradient table as it is stored and printed
+// (record.Volume); nil for none.
+func VolumeRecords(rows []dwi.TableRow) []record.Volume {
+	if len(rows) == 0 {
+		return nil
+	}
+	out := make([]record.Volume, len(rows))
+	for i, r := range rows {
+		out[i] = record.Volume{BValue: r.BValue, BValueMeasured: r.BValueMeasured, Kind: r.Weighting.String(), Images: r.Images, Slices: r.Slices}
+		if r.Direction != nil {
+			d := [3]float64(*r.Direction)
+			out[i].Direction = &d
+		}
+	}
+	return out
 }

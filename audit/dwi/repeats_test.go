@@ -170,3 +170,45 @@ func TestNominalBValuesKeepTheMeasuredOnes(t *testing.T) {
 		})
 	}
 }
+
+func TestTheGradientTableListsEveryAcquiredVolume(t *testing.T) {
+	x, y := [3]float64{1, 0, 0}, [3]float64{0, 1, 0}
+	var images []img
+	for z := range 2 {
+		sl := float64(z)
+		images = append(images,
+			img{b: 0.0020000000717118383, directionality: "NONE", slice: sl}, img{b: 0, slice: sl}, // two b0 averages
+			img{b: 999.9979999999283, dir: x, slice: sl}, img{b: 1000, dir: y, slice: sl},
+			img{b: 1000, iso: true, slice: sl},
+			img{b: 1000, iso: true, slice: sl, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}})
+	}
+	s, err := AssembleSeries(framesOf(t, newSeries("table", images...)), DefaultTolerances())
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := s.GradientTable()
+	type row struct {
+		b    float64
+		w    Weighting
+		dir  *Direction
+		imgs int
+		sl   int
+	}
+	dx, dy := Direction(x), Direction(y)
+	// Diffusion Directionality NONE, DIRECTIONAL with a gradient, and
+	// ISOTROPIC (PS3.3 C.8.13.5.9); the ADC map is no acquisition.
+	want := []row{{0, WeightingB0, nil, 4, 2}, {1000, WeightingTrace, nil, 2, 2}, {1000, WeightingDirection, &dy, 2, 2}, {1000, WeightingDirection, &dx, 2, 2}}
+	if len(got) != len(want) {
+		t.Fatalf("table %+v, want %d rows", got, len(want))
+	}
+	for i, w := range want {
+		g := got[i]
+		sameDir := (g.Direction == nil) == (w.dir == nil) && (w.dir == nil || *g.Direction == *w.dir)
+		if g.BValue != w.b || g.Weighting != w.w || !sameDir || g.Images != w.imgs || g.Slices != w.sl {
+			t.Errorf("row %d: %+v (direction %v), want %+v", i, g, g.Direction, w)
+		}
+	}
+	if got[0].BValueMeasured == 0 || got[0].Combined != CombinedMean {
+		t.Errorf("b0 row %+v: want the measured mean kept and the averages combined", got[0])
+	}
+}

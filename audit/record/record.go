@@ -24,6 +24,27 @@ type Measures struct {
 	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
 	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
 	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
+	// Volumes is the series' gradient table; absent in audits stored
+	// before it was kept.
+	Volumes []Volume `json:"volumes,omitempty"`
+}
+
+// Volume is one row of a series' gradient table, as `dwiaudit check
+// --format json` prints it and the study page shows it.
+type Volume struct {
+	// BValue is the nominal b-value (0, 1000), BValueMeasured the mean of
+	// what the images carry, s/mm².
+	BValue         float64 `json:"bvalue"`
+	BValueMeasured float64 `json:"bvalue_measured"`
+	// Kind is "b0", "direction", "trace" or "isotropic" (dwi.Weighting).
+	Kind string `json:"kind"`
+	// Direction is the unit gradient direction in patient axes; null
+	// for a kind without one.
+	Direction *[3]float64 `json:"direction"`
+	// Images counts the images, repeats included; Slices the slice
+	// positions they cover.
+	Images int `json:"images"`
+	Slices int `json:"slices"`
 }
 
 // Finite returns a pointer to v, or nil when v is NaN or infinite (JSON

@@ -32,6 +32,12 @@ type measureView struct {
 	Name, Value string
 }
 
+// volumeView is one row of a series' gradient table.
+type volumeView struct {
+	BValue, Measured, Kind, Direction string
+	Images, Slices                    int
+}
+
 // findingView is one finding on the study page.
 type findingView struct {
 	Rule, Severity, Message, Measured, Expected string
@@ -53,6 +59,7 @@ type seriesView struct {
 	Audits      int // how many audits the series has had
 	Test        bool
 	Measures    []measureView
+	Volumes     []volumeView // the gradient table
 	Findings    []findingView
 	Worst       string // the highest severity among the findings, "" for none
 	Preview     string // the preview's URL, "" when there is none to show
@@ -163,6 +170,16 @@ func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.Raw
 			bs[i] = strconv.FormatFloat(b, 'f', -1, 64)
 		}
 		sv.BValues = strings.Join(bs, ", ") + " s/mm²"
+	}
+	for _, v := range m.Volumes {
+		vv := volumeView{
+			BValue: strconv.FormatFloat(v.BValue, 'f', -1, 64), Kind: v.Kind, Direction: "—",
+			Measured: strconv.FormatFloat(v.BValueMeasured, 'f', 3, 64), Images: v.Images, Slices: v.Slices,
+		}
+		if d := v.Direction; d != nil {
+			vv.Direction = fmt.Sprintf("(%.3f, %.3f, %.3f)", d[0], d[1], d[2])
+		}
+		sv.Volumes = append(sv.Volumes, vv)
 	}
 	sv.Measures = []measureView{
 		{"Parenchyma median ADC", formatADC(m.TissueADCMedian)},
