@@ -31,8 +31,10 @@ const (
 // (Patient) projected on the normal of the row and column direction
 // cosines (PS3.3 C.7.6.2.1.1), positions within tol.SlicePosition being
 // one slice. A gradient g and its opposite -g are two directions: they
-// are two acquisitions, even though they weight diffusion alike. Scanner ADC and eADC maps go to Series.Maps, other derived
-// images (FA) are left out. The Series points into frames, which must not
+// are two acquisitions, even though they weight diffusion alike. Scanner
+// ADC and eADC maps go to Series.Maps; other derived images (FA, colour
+// FA, tensor b0: MapKind.Audited false) are left out, and AssembleStudy
+// lists a series made only of them in Study.Derived. The Series points into frames, which must not
 // change while it is in use.
 //
 // Errors: ErrNoImages when no image can be placed, ErrMixedSeries,
@@ -72,11 +74,11 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 	s := &Series{SeriesInstanceUID: seriesUID}
 	var placed []*Frame
 	for _, f := range sorted {
+		if !f.Kind.Audited() {
+			continue // a derived map the audit does not use (FA, ...): listed, not placed
+		}
 		if f.Encapsulated {
 			s.Facts.Encapsulated = true
-		}
-		if f.Kind == KindOtherDerived {
-			continue
 		}
 		if !f.Geometry.Known {
 			return nil, fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())

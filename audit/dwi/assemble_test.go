@@ -442,6 +442,34 @@ func TestAssembleStudyLinksSeries(t *testing.T) {
 			t.Errorf("maps %v", attached)
 		}
 	})
+	t.Run("FA and tensor b0 series are listed with their kind, not failed, and the scanner ADC stays attached", func(t *testing.T) {
+		// Image Type value 4 DIFFUSION_ANISO (PS3.3 C.8.13.1.1.1) and
+		// TENSOR_B0 (common practice, from memory).
+		fa := newSeries("fa", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}, slice: 0},
+			img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}, slice: 1})
+		fa.number = 7
+		tb0 := newSeries("tb0", img{b: 0, imageType: []string{"DERIVED", "PRIMARY", "TENSOR_B0"}, slice: 0})
+		tb0.number = 8
+		st, err := AssembleStudy(collect(b0(0), dwi(), adcMap(), fa, tb0), DefaultTolerances())
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := []DerivedSeries{
+			{SeriesInstanceUID: fa.series, SeriesNumber: 7, SeriesDescription: "DWI test", Kind: KindFA, Images: 2},
+			{SeriesInstanceUID: tb0.series, SeriesNumber: 8, SeriesDescription: "DWI test", Kind: KindTensorB0, Images: 1},
+		}
+		slices.SortFunc(st.Derived, func(a, b DerivedSeries) int { return a.SeriesNumber - b.SeriesNumber })
+		if !slices.Equal(st.Derived, want) || st.Failed != nil || len(st.Series) != 2 {
+			t.Errorf("derived %+v, failed %v, %d series; want %+v, none failed, b0 and DWI", st.Derived, st.Failed, len(st.Series), want)
+		}
+		var attached int
+		for _, s := range st.Series {
+			attached += len(s.Maps)
+		}
+		if attached != 1 {
+			t.Errorf("%d maps attached, want the scanner ADC", attached)
+		}
+	})
 	t.Run("a map series matching nothing stays a series of its own", func(t *testing.T) {
 		m := adcMap()
 		m.frameOfRef = "2.25.100.78"

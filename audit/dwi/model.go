@@ -43,8 +43,20 @@ const (
 	KindAcquired     MapKind = iota // DWI or b0 as acquired (or a scanner-made trace)
 	KindADC                         // scanner ADC map (value 4 ADC, or Real World Value Mapping in mm2/s, um2/s, 10-6.mm2/s)
 	KindEADC                        // scanner eADC map (DIFFUSION_ATTNTD)
-	KindOtherDerived                // FA and other derived images the audit does not use
+	KindOtherDerived                // other derived images the audit does not use
+	KindFA                          // fractional anisotropy map (FA, DIFFUSION_ANISO)
+	KindColourFA                    // colour FA: an RGB map of the principal direction (Samples per Pixel 3)
+	KindTensorB0                    // the b0 a tensor fit writes out (TENSOR_B0)
+	KindNonImage                    // not an image the audit reads (another SOP Class, e.g. a private non-image object)
 )
+
+// Audited says whether images of this kind take part in the audit:
+// acquired images and the scanner's ADC and eADC maps (which
+// scanner-adc-disagrees compares). Other derived maps are listed with
+// their kind and not audited.
+func (k MapKind) Audited() bool {
+	return k == KindAcquired || k == KindADC || k == KindEADC
+}
 
 func (k MapKind) String() string {
 	switch k {
@@ -56,6 +68,14 @@ func (k MapKind) String() string {
 		return "eADC map"
 	case KindOtherDerived:
 		return "other derived map"
+	case KindFA:
+		return "FA map"
+	case KindColourFA:
+		return "colour FA map"
+	case KindTensorB0:
+		return "tensor b0"
+	case KindNonImage:
+		return "non-image object"
 	}
 	return "MapKind(" + strconv.Itoa(int(k)) + ")"
 }
@@ -366,4 +386,18 @@ type Study struct {
 	// Failed lists the diffusion series that could not be assembled,
 	// each with its error; the other series are still in Series.
 	Failed []*SeriesError
+	// Derived lists the series made only of derived maps the audit does
+	// not use (FA, colour FA, tensor b0, ...: MapKind.Audited false):
+	// known, not audited.
+	Derived []DerivedSeries
+}
+
+// DerivedSeries is a series of derived maps the audit lists and does
+// not audit.
+type DerivedSeries struct {
+	SeriesInstanceUID string
+	SeriesNumber      int
+	SeriesDescription string
+	Kind              MapKind // the kind most of its images are
+	Images            int
 }
