@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"io/fs"
 	"log/slog"
 	"math"
@@ -458,4 +459,105 @@ func TestPhantomSeriesReportTheirCentralADC(t *testing.T) {
 			t.Errorf("phantom ADC %v expected %v, want NaN for a brain series", s.PhantomADC, s.PhantomExpectedADC)
 		}
 	})
+}
+
+// copyPatched copies src into dir with every old byte string replaced by
+// its new one of the same length (the element lengths stay right).
+// The name of the copy says how many strings were replaced.
+func copyPatched(t *testing.T, src, dir string, pairs ...string) string {
+	t.Helper()
+	b, err := os.ReadFile(src)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := 0; i < len(pairs); i += 2 {
+		if len(pairs[i]) != len(pairs[i+1]) || !bytes.Contains(b, []byte(pairs[i])) {
+			t.Fatalf("cannot patch %q into %q in %s", pairs[i], pairs[i+1], src)
+		}
+		b = bytes.ReplaceAll(b, []byte(pairs[i]), []byte(pairs[i+1]))
+	}
+	dst := filepath.Join(dir, fmt.Sprintf("patched-%d-%s", len(pairs), filepath.Base(src)))
+	if err := os.WriteFile(dst, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return dst
+}
+
+func TestDerivedSeriesAndNonImageObjectsAreListedNeverFailed(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	// An FA series beside the DWI: Image Type value 4 FA (common
+	// practice; dwi.Classify), another Series Instance UID of the same
+	// length.
+	faUID := dwiInfo.UID[:len(dwiInfo.UID)-1] + string("12"[(dwiInfo.UID[len(dwiInfo.UID)-1]-'0')%2])
+	for _, p := range dwiInfo.Files[:3] {
+		copyPatched(t, p, st.Dir, `ORIGINAL\PRIMARY\DIFFUSION\NONE `, `DERIVED\PRIMARY\DIFFUSION\FA    `, dwiInfo.UID, faUID)
+	}
+	// A private non-image object in the DWI series: MR Image Storage
+	// (PS3.4 B.5) replaced by a private SOP Class of the same length.
+	copyPatched(t, dwiInfo.Files[0], st.Dir, "1.2.840.10008.5.1.4.1.1.4\x00", "1.3.12.2.1107.5.9.1.0.0.1\x00")
+
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Derived) != 1 || rep.Derived[0].SeriesUID != faUID || rep.Derived[0].Kind != "FA map" || rep.Derived[0].Images != 3 {
+		t.Errorf("derived %+v, want the FA series with its 3 images", rep.Derived)
+	}
+	if len(rep.Ignored) != 1 || rep.Ignored[0].SOPClassUID != "1.3.12.2.1107.5.9.1.0.0.1" || rep.Ignored[0].SeriesUID != dwiInfo.UID {
+		t.Errorf("ignored %+v, want the non-image object", rep.Ignored)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].SeriesUID != dwiInfo.UID || rep.Series[0].CannotCompute != "" {
+		t.Errorf("series %+v, want the DWI series computed", rep.Series)
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("%s %s on series %s: %s", f.Severity, f.Rule, f.SeriesUID, f.Message)
+		}
+	}
+}
+
+func TestAnUnreadableImageFailsOnlyItself(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	p := dwiInfo.Files[len(dwiInfo.Files)/3]
+	info, err := os.Stat(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Truncate(p, info.Size()-10); err != nil {
+		t.Fatal(err)
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].CannotCompute != "" || math.IsNaN(rep.Series[0].Measures.ParenchymaMedianADC) {
+		t.Fatalf("series %+v, want the DWI series computed from the images that read", rep.Series)
+	}
+	var failed, incomplete int
+	for _, f := range rep.Findings {
+		switch f.Rule {
+		case rules.IDAuditFailed:
+			failed++
+			if !strings.Contains(f.Message, filepath.Base(p)) || !strings.Contains(f.Message, "left out") {
+				t.Errorf("audit-failed %q does not name the unreadable file as left out", f.Message)
+			}
+		case rules.IDIncompleteSeries:
+			incomplete++
+		}
+	}
+	if failed != 1 || incomplete != 1 {
+		t.Errorf("%d audit-failed and %d incomplete-series findings, want one each: %+v", failed, incomplete, rep.Findings)
+	}
 }
