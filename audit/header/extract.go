@@ -306,9 +306,13 @@ func (x *extraction) frame(f *dwi.Frame, per, shared level, rows, cols int) (*Mo
 	}
 	pos := pick(tag.PlanePositionSequence, tag.ImagePositionPatient, 3)
 	ori := pick(tag.PlaneOrientationSequence, tag.ImageOrientationPatient, 6)
+	if ori != nil {
+		// Kept without a position too: a mosaic's slices get theirs
+		// from a maker reader (makers.go).
+		copy(g.Orientation[:], ori)
+	}
 	if pos != nil && ori != nil {
 		copy(g.Position[:], pos)
-		copy(g.Orientation[:], ori)
 		g.Known = true
 	}
 	if v := pick(tag.PixelMeasuresSequence, tag.PixelSpacing, 2); v != nil {
