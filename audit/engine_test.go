@@ -561,3 +561,109 @@ func TestAnUnreadableImageFailsOnlyItself(t *testing.T) {
 		t.Errorf("%d audit-failed and %d incomplete-series findings, want one each: %+v", failed, incomplete, rep.Findings)
 	}
 }
+
+// dwiSeriesOf is the phantom's DWI series.
+func dwiSeriesOf(t *testing.T, st *phantom.Study) phantom.SeriesInfo {
+	t.Helper()
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			return si
+		}
+	}
+	t.Fatal("the phantom has no DWI series")
+	return phantom.SeriesInfo{}
+}
+
+func TestRepeatedImagesAreAveragedIntoTheADCNeverDropped(t *testing.T) {
+	dir := t.TempDir()
+	st := writeStudy(t, filepath.Join(dir, "study"), phantom.Options{})
+	single, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// A second average of every image: the same b-value, direction and
+	// slice under another SOP Instance UID (of the same length).
+	dwiInfo := dwiSeriesOf(t, st)
+	for _, p := range dwiInfo.Files {
+		id, err := header.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		uid := id.SOPInstanceUID
+		other := uid[:len(uid)-1] + string("12"[(uid[len(uid)-1]-'0')%2])
+		copyPatched(t, p, st.Dir, uid, other)
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || len(single.Series) != 1 {
+		t.Fatalf("%d and %d series, want the DWI series", len(rep.Series), len(single.Series))
+	}
+	got, want := rep.Series[0], single.Series[0]
+	if len(got.Volumes) != len(want.Volumes) || len(got.Volumes) == 0 {
+		t.Fatalf("gradient table %+v, want the rows of %+v", got.Volumes, want.Volumes)
+	}
+	for i, v := range got.Volumes {
+		if v.Images != 2*want.Volumes[i].Images || v.Slices != want.Volumes[i].Slices {
+			t.Errorf("row %d: %d images on %d slices, want %d on %d (every repeat counted)", i, v.Images, v.Slices, 2*want.Volumes[i].Images, want.Volumes[i].Slices)
+		}
+	}
+	// Identical repeats average to the same images: the same ADC.
+	if a, b := got.Measures.ParenchymaMedianADC, want.Measures.ParenchymaMedianADC; math.IsNaN(a) || math.Abs(a-b) > 1e-12 {
+		t.Errorf("tissue ADC %v with repeats, %v without", a, b)
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("%s %s: %s", f.Severity, f.Rule, f.Message)
+		}
+	}
+}
+
+func TestImagesThatLostTheirDirectionGetUnknownDirections(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	// Diffusion Gradient Orientation (0018,9089), PS3.3 C.8.13.5.9,
+	// moved to group 0019 (Explicit VR Little Endian tag bytes): the
+	// images keep their b-value and DIRECTIONAL but give no direction.
+	dwiInfo := dwiSeriesOf(t, st)
+	moved := 0
+	for _, p := range dwiInfo.Files {
+		b, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Contains(b, []byte("\x18\x00\x89\x90FD")) {
+			continue
+		}
+		if err := os.WriteFile(p, bytes.ReplaceAll(b, []byte("\x18\x00\x89\x90FD"), []byte("\x19\x00\x89\x90FD")), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		moved++
+	}
+	if moved == 0 {
+		t.Fatal("no image of the phantom carries a Diffusion Gradient Orientation to remove")
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var found []rules.Finding
+	for _, f := range rep.Findings {
+		if f.Rule == rules.IDUnknownDirections {
+			found = append(found, f)
+		}
+	}
+	if len(found) != 1 || found[0].Measured != float64(moved) || !strings.Contains(found[0].Message, "b = 1000 s/mm²") {
+		t.Errorf("unknown-directions findings %+v, want one counting the %d images", found, moved)
+	}
+	if len(rep.Series) != 1 {
+		t.Fatalf("%d series", len(rep.Series))
+	}
+	kinds := map[string]int{}
+	for _, v := range rep.Series[0].Volumes {
+		kinds[v.Weighting.String()] += v.Images
+	}
+	if kinds["isotropic"] != moved {
+		t.Errorf("gradient table %+v: want the %d images without direction kept in one isotropic volume", rep.Series[0].Volumes, moved)
+	}
+}
