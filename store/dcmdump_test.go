@@ -8,6 +8,8 @@ import (
 	"regexp"
 	"strings"
 	"testing"
+
+	"dwiaudit/scp/part10"
 )
 
 // needDCMTK returns the path of a DCMTK tool. A missing tool fails the test
@@ -58,8 +60,8 @@ func TestFilesAreReadByDCMTK(t *testing.T) {
 				"0002,0002": mrImageStorage, // Media Storage SOP Class UID
 				"0002,0003": ti.SOP,         // Media Storage SOP Instance UID
 				"0002,0010": ts,             // Transfer Syntax UID
-				"0002,0012": implementationClassUID,
-				"0002,0013": implementationVersionName,
+				"0002,0012": part10.ImplementationClassUID,
+				"0002,0013": part10.ImplementationVersionName,
 				"0002,0016": "OSTMIRE_MR1",  // Source Application Entity Title
 				"0010,0010": "TEST^PHANTOM", // from the data set, read in its transfer syntax
 				"0020,0013": "7",            // Instance Number

@@ -179,8 +179,7 @@ func TestReconcile(t *testing.T) {
 		v2 := v1
 		v2.Seed = 9
 		rel := strings.TrimSuffix(ref.Path, ".dcm") + ".v2.dcm"
-		data := append(encodeFileMeta(fileMeta{SOPClassUID: mrImageStorage, SOPInstanceUID: v2.SOP,
-			TransferSyntaxUID: explicitVRLE, SourceAETitle: "OSTMIRE_MR1"}), v2.dataSet()...)
+		data := append(mustFileMeta(t, v2.SOP, explicitVRLE, "OSTMIRE_MR1"), v2.dataSet()...)
 		if err := os.WriteFile(filepath.Join(opts.Dir, rel), data, 0o600); err != nil {
 			t.Fatal(err)
 		}

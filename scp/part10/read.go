@@ -191,21 +191,29 @@ func ReadMetaFile(path string) (Meta, int64, error) {
 	return m, off, nil
 }
 
-// vrLength says how an explicit VR header encodes the value length (PS3.5
-// 7.1.2, Table 7.1-1): long VRs have two reserved bytes and a 32-bit length,
-// the others a 16-bit length. ok is false for a VR PS3.5 does not define.
-func vrLength(vr string) (long, ok bool) {
+// LongLengthVR reports whether an explicit VR element header with vr has
+// two reserved bytes and a 32-bit value length rather than a 16-bit one
+// (PS3.5 7.1.2, Table 7.1-1). It is the one table of them in the module.
+func LongLengthVR(vr string) bool {
 	switch vr {
 	case "OB", "OD", "OF", "OL", "OV", "OW", "SQ", "SV", "UC", "UN", "UR", "UT", "UV":
-		return true, true
-	case "AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
-		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US":
-		return false, true
+		return true
 	}
-	return false, false
+	return false
 }
 
-// valueLimit is the largest value ReadMeta and WriteHeader accept for vr:
+// KnownVR reports whether vr is one of the value representations PS3.5 6.2
+// Table 6.2-1 defines.
+func KnownVR(vr string) bool {
+	switch vr {
+	case "AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
+		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US":
+		return true
+	}
+	return LongLengthVR(vr)
+}
+
+// valueLimit is the largest value ReadMeta and AppendHeader accept for vr:
 // binary VRs may carry up to MaxBinaryValueLength bytes, the rest
 // MaxValueLength.
 func valueLimit(vr string) int {
@@ -226,11 +234,10 @@ func readElement(s *source) (Element, error) {
 	tag := Tag(uint32(binary.LittleEndian.Uint16(h[0:2]))<<16 | uint32(binary.LittleEndian.Uint16(h[2:4])))
 	vr := string(h[4:6])
 	var length uint32
-	long, ok := vrLength(vr)
 	switch {
-	case !ok:
+	case !KnownVR(vr):
 		return Element{}, &ElementError{Tag: tag, Offset: at, Err: fmt.Errorf("%w %q", ErrBadVR, vr)}
-	case !long:
+	case !LongLengthVR(vr):
 		length = uint32(binary.LittleEndian.Uint16(h[6:8]))
 	default:
 		var l [4]byte

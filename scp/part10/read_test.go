@@ -301,8 +301,7 @@ func TestReadMetaLeavesAPeekableReaderAtTheDataSet(t *testing.T) {
 // element encodes one Explicit VR Little Endian element for crafted inputs,
 // without the limits WriteHeader applies (PS3.5 7.1.2).
 func element(tag Tag, vr string, value []byte) []byte {
-	long, _ := vrLength(vr)
-	if long {
+	if LongLengthVR(vr) {
 		return append(longHeader(tag, vr, uint32(len(value))), value...)
 	}
 	b := binary.LittleEndian.AppendUint16(nil, tag.Group())

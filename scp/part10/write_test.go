@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -198,7 +199,6 @@ func TestWriteHeaderRejectsInvalidMeta(t *testing.T) {
 		{"a UID of 65 characters", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25." + strings.Repeat("1", 60) })},
 		{"a UID with a letter", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25.1a" })},
 		{"a UID with an empty component", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25..1" })},
-		{"a UID with a leading zero", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25.01" })},
 		{"a UID with its padding", with(func(m *Meta) { m.TransferSyntaxUID = "1.2.840.10008.1.2\x00" })},
 		{"a version name of 17 characters", with(func(m *Meta) { m.ImplementationVersionName = strings.Repeat("V", 17) })},
 		{"an AE title of 17 characters", with(func(m *Meta) { m.SourceApplicationEntityTitle = strings.Repeat("A", 17) })},
@@ -306,5 +306,135 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 				t.Errorf("offset %d, header was %d bytes", off, b.Len()-len(c.dataset))
 			}
 		})
+	}
+}
+
+func TestAppendHeaderIsWriteHeader(t *testing.T) {
+	var w bytes.Buffer
+	if err := WriteHeader(&w, minimalMeta); err != nil {
+		t.Fatal(err)
+	}
+	prefix := []byte("kept")
+	got, err := AppendHeader(prefix, minimalMeta)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(got[:len(prefix)], prefix) || !bytes.Equal(got[len(prefix):], w.Bytes()) {
+		t.Errorf("AppendHeader gave %d bytes after the prefix, WriteHeader %d; they differ", len(got)-len(prefix), w.Len())
+	}
+	bad := minimalMeta
+	bad.TransferSyntaxUID = ""
+	if out, err := AppendHeader(prefix, bad); !errors.Is(err, ErrInvalidMeta) || !bytes.Equal(out, prefix) {
+		t.Errorf("AppendHeader of an invalid meta = %q, %v; want the prefix alone and ErrInvalidMeta", out, err)
+	}
+}
+
+// TestAppendHeaderBytes pins the envelope byte for byte: the store writes
+// every received instance with it, and files already stored must keep
+// reading the same. The layout is PS3.10 7.1 Table 7.1-1 in Explicit VR
+// Little Endian (PS3.5 7.1.2): zero preamble, "DICM", (0002,0000) UL,
+// (0002,0001) OB with reserved bytes and a 32-bit length, then UI, SH and
+// AE values padded to even length (PS3.5 7.1.1: NUL after UI, space after
+// text).
+func TestAppendHeaderBytes(t *testing.T) {
+	got, err := AppendHeader(nil, Meta{
+		MediaStorageSOPClassUID:      "1.2.840.10008.5.1.4.1.1.4",
+		MediaStorageSOPInstanceUID:   "2.25.123",
+		TransferSyntaxUID:            "1.2.840.10008.1.2.1",
+		SourceApplicationEntityTitle: "QOH_MR1",
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var want []byte
+	want = append(want, make([]byte, 128)...)
+	want = append(want, "DICM"...)
+	want = append(want, 0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0, 178, 0, 0, 0)
+	want = append(want, 0x02, 0x00, 0x01, 0x00, 'O', 'B', 0, 0, 2, 0, 0, 0, 0x00, 0x01)
+	want = append(want, 0x02, 0x00, 0x02, 0x00, 'U', 'I', 26, 0)
+	want = append(want, "1.2.840.10008.5.1.4.1.1.4\x00"...)
+	want = append(want, 0x02, 0x00, 0x03, 0x00, 'U', 'I', 8, 0)
+	want = append(want, "2.25.123"...)
+	want = append(want, 0x02, 0x00, 0x10, 0x00, 'U', 'I', 20, 0)
+	want = append(want, "1.2.840.10008.1.2.1\x00"...)
+	want = append(want, 0x02, 0x00, 0x12, 0x00, 'U', 'I', 42, 0)
+	want = append(want, "2.25.5539447777562070585615222628860829091"...)
+	want = append(want, 0x02, 0x00, 0x13, 0x00, 'S', 'H', 12, 0)
+	want = append(want, "DWIAUDIT_010"...)
+	want = append(want, 0x02, 0x00, 0x16, 0x00, 'A', 'E', 8, 0)
+	want = append(want, "QOH_MR1 "...)
+	if !bytes.Equal(got, want) {
+		t.Errorf("AppendHeader:\n got %q\nwant %q", got, want)
+	}
+}
+
+func TestWriteHeaderToleratesLeadingZeros(t *testing.T) {
+	// PS3.5 9.1 forbids a leading zero in a component, but senders in the
+	// field produce them and the store keeps such instances (as scp/pdu
+	// lets them through); re-wrapping one must work.
+	m := minimalMeta
+	m.MediaStorageSOPInstanceUID = "2.25.01"
+	w := writtenFile(t, m)
+	got, off, err := ReadMeta(bytes.NewReader(w.data))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.MediaStorageSOPInstanceUID != "2.25.01" || off != w.offset {
+		t.Errorf("read back %q at %d, want 2.25.01 at %d", got.MediaStorageSOPInstanceUID, off, w.offset)
+	}
+}
+
+func TestValidAETitle(t *testing.T) {
+	cases := []struct {
+		ae string
+		ok bool
+	}{
+		{"QOH_MR1", true},
+		{"A_TITLE_OF_16CHR", true}, // 16 characters: the AE limit (PS3.5 6.2 Table 6.2-1)
+		{"A_TITLE_OF_17_CHR", false},
+		{"", false},
+		{`BAD\AE`, false}, // backslash separates values (PS3.5 6.2)
+		{"TAB\tAE", false},
+		{"ÄE", false},
+	}
+	for _, c := range cases {
+		t.Run("the title "+strconvQuote(c.ae)+" is judged correctly", func(t *testing.T) {
+			if got := ValidAETitle(c.ae); got != c.ok {
+				t.Errorf("ValidAETitle(%q) = %v, want %v", c.ae, got, c.ok)
+			}
+			if c.ae == "" {
+				return
+			}
+			m := minimalMeta
+			m.SourceApplicationEntityTitle = c.ae
+			if _, err := AppendHeader(nil, m); (err == nil) != c.ok {
+				t.Errorf("AppendHeader with %q: %v, want ok=%v", c.ae, err, c.ok)
+			}
+		})
+	}
+}
+
+func strconvQuote(s string) string { return strings.Trim(fmt.Sprintf("%q", s), `"`) }
+
+func TestVRTable(t *testing.T) {
+	// PS3.5 7.1.2 Table 7.1-1: the VRs with reserved bytes and a 32-bit
+	// length; PS3.5 6.2 Table 6.2-1: every VR.
+	long := []string{"OB", "OD", "OF", "OL", "OV", "OW", "SQ", "SV", "UC", "UN", "UR", "UT", "UV"}
+	short := []string{"AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
+		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US"}
+	for _, vr := range long {
+		if !LongLengthVR(vr) || !KnownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want both", vr, LongLengthVR(vr), KnownVR(vr))
+		}
+	}
+	for _, vr := range short {
+		if LongLengthVR(vr) || !KnownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want short and known", vr, LongLengthVR(vr), KnownVR(vr))
+		}
+	}
+	for _, vr := range []string{"NA", "XX", "ob", ""} {
+		if KnownVR(vr) || LongLengthVR(vr) {
+			t.Errorf("%q is taken for a VR", vr)
+		}
 	}
 }
