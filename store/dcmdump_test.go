@@ -2,29 +2,15 @@ package store
 
 import (
 	"bytes"
-	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
 
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/part10"
 )
-
-// needDCMTK returns the path of a DCMTK tool. A missing tool fails the test
-// under CI (CI=true) and skips it elsewhere, naming the package to install.
-func needDCMTK(t *testing.T, tool string) string {
-	t.Helper()
-	path, err := exec.LookPath(tool)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH; CI must install Debian package dcmtk", tool)
-		}
-		t.Skipf("%s not found on PATH: install Debian package dcmtk", tool)
-	}
-	return path
-}
 
 // dumpLine matches one element line of dcmdump output, for example
 // `(0002,0010) UI =LittleEndianExplicit  #  20, 1 TransferSyntaxUID` or,
@@ -33,7 +19,7 @@ func needDCMTK(t *testing.T, tool string) string {
 var dumpLine = regexp.MustCompile(`^\s*\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\) ([A-Z][A-Z]) (.*?)\s+#\s*\d+,`)
 
 func TestFilesAreReadByDCMTK(t *testing.T) {
-	tool := needDCMTK(t, "dcmdump")
+	tool := testtool.Path(t, "dcmdump", "dcmtk")
 	for _, ts := range []string{explicitVRLE, implicitVRLE} {
 		t.Run("DCMTK dcmdump reads a file with data set in "+ts+" without warnings", func(t *testing.T) {
 			s, opts := newTestStore(t)

@@ -27,20 +27,6 @@ import (
 // the exact bytes it read. With DWIAUDIT_UPDATE_SEEDS=1 the captured PDUs are
 // written to testdata/ as fuzz and regression seeds (see testdata/README).
 
-// requireDCMTK returns the path of a DCMTK tool, skipping the test when it is
-// missing, or failing it under CI.
-func requireDCMTK(t *testing.T, tool string) string {
-	t.Helper()
-	path, err := exec.LookPath(tool)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found; install the Debian package dcmtk", tool)
-		}
-		t.Skipf("%s not found; install the Debian package dcmtk to run this test", tool)
-	}
-	return path
-}
-
 // capturedPDU is one PDU seen by the proxy.
 type capturedPDU struct {
 	dir string // "rq" from the SCU, "rp" from the SCP
@@ -140,7 +126,7 @@ func freePort(t *testing.T) int {
 // returns its address.
 func startStorescp(t *testing.T, extra ...string) string {
 	t.Helper()
-	bin := requireDCMTK(t, "storescp")
+	bin := scptest.NeedDCMTK(t, "storescp")
 	port := freePort(t)
 	ctx, cancel := context.WithCancel(context.Background())
 	args := append([]string{"-aet", "DWIPEER", "-od", t.TempDir(), "--ignore"}, extra...)
@@ -179,7 +165,7 @@ func startStorescp(t *testing.T, extra ...string) string {
 // returns what the proxy saw.
 func runThroughProxy(t *testing.T, upstream, tool string, args []string, tail ...string) []capturedPDU {
 	t.Helper()
-	bin := requireDCMTK(t, tool)
+	bin := scptest.NeedDCMTK(t, tool)
 	ln, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		t.Fatal(err)
@@ -337,7 +323,7 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 	})
 
 	t.Run("storescu with user identity sends sub-item 58H", func(t *testing.T) {
-		requireDCMTK(t, "dump2dcm")
+		scptest.NeedDCMTK(t, "dump2dcm")
 		file := syntheticMRFile(t)
 		got := runThroughProxy(t, scp, "storescu",
 			[]string{"-aet", calling, "-aec", "DWIAUDIT", "--user", "quellvander-tech", "--password", "not-a-secret"}, file)

@@ -6,29 +6,17 @@ package scptest
 
 import (
 	"os"
-	"os/exec"
 	"testing"
+
+	"dwiaudit/internal/testtool"
 )
 
-// NeedTool returns the path of an outside program the test needs. A
-// missing program fails the test when CI=true (CI installs everything the
-// tests need) and skips it elsewhere with the Debian package to install.
-func NeedTool(t testing.TB, name, debianPackage string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH (CI=true): CI must install Debian package %s", name, debianPackage)
-		}
-		t.Skipf("%s not found on PATH: install Debian package %s", name, debianPackage)
-	}
-	return path
-}
-
-// NeedDCMTK is NeedTool for a DCMTK program.
+// NeedDCMTK returns the path of a DCMTK program (Debian package dcmtk),
+// through testtool.Path: missing, it fails the test under CI=true and
+// skips it elsewhere.
 func NeedDCMTK(t testing.TB, name string) string {
 	t.Helper()
-	return NeedTool(t, name, "dcmtk")
+	return testtool.Path(t, name, "dcmtk")
 }
 
 // DCMTKEnv is the environment for a DCMTK process. Debian's DCMTK leaves
