@@ -136,13 +136,13 @@ func TestReadMetaAgreesWithDCMDump(t *testing.T) {
 			if err := os.WriteFile(path, v.data, 0o644); err != nil {
 				t.Fatal(err)
 			}
-			d := runDCMDump(t, path)
+			d := scptest.DCMDump(t, path)
 			m, off, err := ReadMeta(bytes.NewReader(v.data))
 			if err != nil {
 				t.Fatal(err)
 			}
 			checkAgainstDump(t, m, d)
-			if gl, ok := d.values["0002,0000"]; ok && v.ahead == 0 {
+			if gl, ok := d.Values["0002,0000"]; ok && v.ahead == 0 {
 				n, err := strconv.Atoi(gl)
 				if err != nil {
 					t.Fatal(err)
@@ -157,7 +157,7 @@ func TestReadMetaAgreesWithDCMDump(t *testing.T) {
 }
 
 // checkAgainstDump compares the named fields of m with dcmdump's values.
-func checkAgainstDump(t *testing.T, m Meta, d dcmDump) {
+func checkAgainstDump(t *testing.T, m Meta, d scptest.Dump) {
 	t.Helper()
 	fields := []struct {
 		tag, got string
@@ -170,7 +170,7 @@ func checkAgainstDump(t *testing.T, m Meta, d dcmDump) {
 		{"0002,0016", m.SourceApplicationEntityTitle}, // DCMTK dcmdump output
 	}
 	for _, f := range fields {
-		if want := d.values[f.tag]; f.got != want {
+		if want := d.Values[f.tag]; f.got != want {
 			t.Errorf("(%s) = %q, dcmdump says %q", f.tag, f.got, want)
 		}
 	}
@@ -198,7 +198,7 @@ func TestReadMetaReadsFreshDCMTKFiles(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			checkAgainstDump(t, m, runDCMDump(t, out))
+			checkAgainstDump(t, m, scptest.DCMDump(t, out))
 			data, err := os.ReadFile(out)
 			if err != nil {
 				t.Fatal(err)

@@ -10,6 +10,8 @@ import (
 	"reflect"
 	"strings"
 	"testing"
+
+	"dwiaudit/scp/scptest"
 )
 
 // written is a header made by WriteHeader and the meta ReadMeta should find.
@@ -281,9 +283,9 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			if err := os.WriteFile(path, b.Bytes(), 0o644); err != nil {
 				t.Fatal(err)
 			}
-			d := runDCMDump(t, path)
-			if d.stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
-				t.Fatalf("dcmdump complained:\n%s", d.stderr)
+			d := scptest.DCMDump(t, path)
+			if d.Stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
+				t.Fatalf("dcmdump complained:\n%s", d.Stderr)
 			}
 			m, off, err := ReadMetaFile(path)
 			if err != nil {
@@ -293,14 +295,14 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			// DCMTK dcmdump output: the data set is decoded in the meta's
 			// transfer syntax, and the 3rd of its elements from the dump
 			// (testdata/*.dump) is found.
-			if !strings.Contains(d.text, "# Used TransferSyntax: "+c.xfer) {
-				t.Errorf("dcmdump did not decode the data set as %s:\n%s", c.xfer, d.text)
+			if !strings.Contains(d.Text, "# Used TransferSyntax: "+c.xfer) {
+				t.Errorf("dcmdump did not decode the data set as %s:\n%s", c.xfer, d.Text)
 			}
-			if d.values["0008,0060"] != "MR" {
-				t.Errorf("dcmdump: Modality %q, want MR", d.values["0008,0060"])
+			if d.Values["0008,0060"] != "MR" {
+				t.Errorf("dcmdump: Modality %q, want MR", d.Values["0008,0060"])
 			}
-			if d.values["0002,0012"] != ImplementationClassUID || d.values["0002,0013"] != ImplementationVersionName {
-				t.Errorf("dcmdump: implementation %q %q", d.values["0002,0012"], d.values["0002,0013"])
+			if d.Values["0002,0012"] != ImplementationClassUID || d.Values["0002,0013"] != ImplementationVersionName {
+				t.Errorf("dcmdump: implementation %q %q", d.Values["0002,0012"], d.Values["0002,0013"])
 			}
 			if off != int64(b.Len()-len(c.dataset)) {
 				t.Errorf("offset %d, header was %d bytes", off, b.Len()-len(c.dataset))
