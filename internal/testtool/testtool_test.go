@@ -3,6 +3,7 @@ package testtool
 import (
 	"os"
 	"os/exec"
+	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -57,4 +58,46 @@ func TestPythonChecksItsModules(t *testing.T) {
 	if err == nil || !strings.Contains(string(out), "python3-dwiaudit_no_such_module") {
 		t.Errorf("a missing module passed under CI=true, or its package is not named:\n%s", out)
 	}
+}
+
+func TestGoldenComparesAndUpdates(t *testing.T) {
+	if dir := os.Getenv("TESTTOOL_GOLDEN_DIR"); dir != "" {
+		Golden(t, filepath.Join(dir, "sub", "out.golden"), []byte("new"))
+		return
+	}
+	dir := t.TempDir()
+	golden := filepath.Join(dir, "sub", "out.golden")
+	run := func(args ...string) (string, error) {
+		cmd := exec.Command(os.Args[0], append([]string{"-test.run", "^TestGoldenComparesAndUpdates$", "-test.v"}, args...)...)
+		cmd.Env = append(os.Environ(), "TESTTOOL_GOLDEN_DIR="+dir)
+		out, err := cmd.CombinedOutput()
+		return string(out), err
+	}
+	t.Run("a missing golden file fails and says how to make it", func(t *testing.T) {
+		out, err := run()
+		if err == nil || !strings.Contains(out, "-update") {
+			t.Errorf("missing golden file: err %v\n%s", err, out)
+		}
+	})
+	t.Run("-update writes it and passes", func(t *testing.T) {
+		if out, err := run("-update"); err != nil {
+			t.Fatalf("%v\n%s", err, out)
+		}
+		if b, err := os.ReadFile(golden); err != nil || string(b) != "new" {
+			t.Errorf("golden file %q, %v", b, err)
+		}
+	})
+	t.Run("the same bytes pass", func(t *testing.T) {
+		if out, err := run(); err != nil {
+			t.Errorf("%v\n%s", err, out)
+		}
+	})
+	t.Run("other bytes fail", func(t *testing.T) {
+		if err := os.WriteFile(golden, []byte("old"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if out, err := run(); err == nil || !strings.Contains(out, "differs") {
+			t.Errorf("a stale golden file passed:\n%s", out)
+		}
+	})
 }

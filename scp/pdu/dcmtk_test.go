@@ -18,14 +18,16 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/scptest"
 )
 
 // The tests in this file put a recording proxy between DCMTK's echoscu or
 // storescu and DCMTK's storescp. The proxy reads each direction with our
 // Reader, so every PDU the two exchange passes through Next, and forwards
-// the exact bytes it read. With DWIAUDIT_UPDATE_SEEDS=1 the captured PDUs are
-// written to testdata/ as fuzz and regression seeds (see testdata/README).
+// the exact bytes it read. With -update (`go test ./scp/pdu -update`) the
+// captured PDUs are written to testdata/ as fuzz and regression seeds (see
+// testdata/README).
 
 // capturedPDU is one PDU seen by the proxy.
 type capturedPDU struct {
@@ -221,7 +223,7 @@ func checkCapture(t *testing.T, name string, got []capturedPDU, want []Type) {
 			t.Errorf("PDU %d %s: our encoding differs from DCMTK's\nDCMTK: %x\nours:  %x", i, c.p.Type(), c.raw, enc)
 		}
 	}
-	if os.Getenv("DWIAUDIT_UPDATE_SEEDS") == "1" {
+	if testtool.Update() {
 		have := map[[32]byte]string{}
 		entries, err := os.ReadDir("testdata")
 		if err != nil {

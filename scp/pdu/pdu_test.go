@@ -11,6 +11,8 @@ import (
 	"strings"
 	"testing"
 	"testing/iotest"
+
+	"dwiaudit/internal/testtool"
 )
 
 // Test values. Every name, AE title and credential is invented; UIDs are
@@ -982,26 +984,13 @@ func syntheticSeeds() map[string]PDU {
 }
 
 func TestSyntheticSeedsAreCurrent(t *testing.T) {
-	update := os.Getenv("DWIAUDIT_UPDATE_SEEDS") == "1"
 	for name, p := range syntheticSeeds() {
 		t.Run(name+" matches the encoder", func(t *testing.T) {
 			b, err := Encode(p)
 			if err != nil {
 				t.Fatal(err)
 			}
-			path := filepath.Join("testdata", name)
-			if update {
-				if err := os.WriteFile(path, b, 0o644); err != nil {
-					t.Fatal(err)
-				}
-			}
-			have, err := os.ReadFile(path)
-			if err != nil {
-				t.Fatalf("%v; regenerate with DWIAUDIT_UPDATE_SEEDS=1 go test -run TestSyntheticSeeds ./scp/pdu/", err)
-			}
-			if !bytes.Equal(have, b) {
-				t.Errorf("testdata/%s is stale; regenerate with DWIAUDIT_UPDATE_SEEDS=1", name)
-			}
+			testtool.Golden(t, filepath.Join("testdata", name), b)
 		})
 	}
 }
