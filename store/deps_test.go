@@ -6,9 +6,9 @@ import (
 	"testing"
 )
 
-// part10 is the one package of ours the store may import: the Part 10
+// codecPkg is the one package of ours the store may import: the Part 10
 // codec, a leaf of the standard library alone (scp/part10's deps test).
-const part10 = "dwiaudit/scp/part10"
+const codecPkg = "dwiaudit/scp/part10"
 
 // TestStoreImportsOnlyStdlibBboltAndPart10 keeps the arrows pointing one
 // way: store is below scp, audit, rules and cmd, and depends on nothing but
@@ -25,9 +25,9 @@ func TestStoreImportsOnlyStdlibBboltAndPart10(t *testing.T) {
 	for _, imp := range imports {
 		std := !strings.Contains(strings.Split(imp, "/")[0], ".")
 		bbolt := imp == "go.etcd.io/bbolt" || strings.HasPrefix(imp, "go.etcd.io/bbolt/")
-		ours := imp == part10 || imp == "dwiaudit/store" || strings.HasPrefix(imp, "dwiaudit/store/")
+		ours := imp == codecPkg || imp == "dwiaudit/store" || strings.HasPrefix(imp, "dwiaudit/store/")
 		if strings.HasPrefix(imp, "dwiaudit/") && !ours || !std && !bbolt {
-			t.Errorf("store imports %s; only the standard library, bbolt and %s are allowed", imp, part10)
+			t.Errorf("store imports %s; only the standard library, bbolt and %s are allowed", imp, codecPkg)
 		}
 	}
 
@@ -36,7 +36,7 @@ func TestStoreImportsOnlyStdlibBboltAndPart10(t *testing.T) {
 		t.Fatalf("go list -deps: %v\n%s", err, out)
 	}
 	for _, dep := range strings.Fields(string(out)) {
-		if dep == part10 {
+		if dep == codecPkg {
 			continue
 		}
 		for _, f := range []string{"dwiaudit/scp", "dwiaudit/audit", "dwiaudit/rules", "dwiaudit/cmd"} {
