@@ -351,16 +351,16 @@ func TestWriteSeriesRejectsInvalidSeries(t *testing.T) {
 		series Series
 		want   error
 	}{
-		{"negative rows", Series{Rows: -1}, ErrInvalidSeries},
-		{"a matrix above MaxMatrix", Series{Columns: MaxMatrix + 1}, ErrInvalidSeries},
-		{"negative slices", Series{Slices: -2}, ErrInvalidSeries},
-		{"more slices than MaxSlices", Series{Slices: MaxSlices + 1}, ErrInvalidSeries},
-		{"a negative b-value", Series{BValues: []float64{0, -5}}, ErrInvalidSeries},
-		{"a NaN b-value", Series{BValues: []float64{math.NaN()}}, ErrInvalidSeries},
-		{"a study UID with letters", Series{StudyInstanceUID: "2.25.abc"}, ErrInvalidSeries},
-		{"a series UID of 65 characters", Series{SeriesInstanceUID: "2.25." + strings.Repeat("9", 60)}, ErrInvalidSeries},
-		{"a compressed transfer syntax", Series{TransferSyntaxUID: "1.2.840.10008.1.2.4.50"}, ErrUnsupportedTransferSyntax},
-		{"explicit VR big endian", Series{TransferSyntaxUID: "1.2.840.10008.1.2.2"}, ErrUnsupportedTransferSyntax},
+		{"negative rows", Series{Rows: -1}, errInvalidSeries},
+		{"a matrix above MaxMatrix", Series{Columns: maxMatrix + 1}, errInvalidSeries},
+		{"negative slices", Series{Slices: -2}, errInvalidSeries},
+		{"more slices than MaxSlices", Series{Slices: maxSlices + 1}, errInvalidSeries},
+		{"a negative b-value", Series{BValues: []float64{0, -5}}, errInvalidSeries},
+		{"a NaN b-value", Series{BValues: []float64{math.NaN()}}, errInvalidSeries},
+		{"a study UID with letters", Series{StudyInstanceUID: "2.25.abc"}, errInvalidSeries},
+		{"a series UID of 65 characters", Series{SeriesInstanceUID: "2.25." + strings.Repeat("9", 60)}, errInvalidSeries},
+		{"a compressed transfer syntax", Series{TransferSyntaxUID: "1.2.840.10008.1.2.4.50"}, errUnsupportedTransferSyntax},
+		{"explicit VR big endian", Series{TransferSyntaxUID: "1.2.840.10008.1.2.2"}, errUnsupportedTransferSyntax},
 	}
 	for _, c := range cases {
 		t.Run("it rejects "+c.name, func(t *testing.T) {
