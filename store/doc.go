@@ -89,7 +89,7 @@
 // buckets ("findings", "measures", "daily") beside these. Adding a bucket
 // is compatible with older readers; changing what an existing key or
 // record means requires raising schemaVersion, and Open refuses an index
-// whose version is newer than the code (ErrSchema).
+// whose version is newer than the code (errSchema).
 //
 // # Startup and maintenance
 //

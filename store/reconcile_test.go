@@ -106,7 +106,7 @@ func TestReconcile(t *testing.T) {
 		if err != nil || !in.Missing || in.Pruned {
 			t.Errorf("Instance = %+v, %v; want Missing", in, err)
 		}
-		if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, ErrMissingFile) {
+		if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, errMissingFile) {
 			t.Errorf("OpenInstance = %v, want ErrMissingFile", err)
 		}
 		if in, _ := s.Instance(keep.SOPInstanceUID); in.Missing {
