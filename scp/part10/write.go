@@ -41,7 +41,7 @@ func WriteHeader(w io.Writer, m Meta) error {
 // Elements in m.Other are written too, except the group length, the version
 // and the tags Meta has fields for, which AppendHeader always makes itself.
 // A Meta lacking one of the three Type 1 UIDs, or holding a value that does
-// not fit its VR, gives ErrInvalidMeta and b unchanged.
+// not fit its VR, gives errInvalidMeta and b unchanged.
 func AppendHeader(b []byte, m Meta) ([]byte, error) {
 	if m.ImplementationClassUID == "" {
 		m.ImplementationClassUID = ImplementationClassUID
@@ -60,14 +60,14 @@ func AppendHeader(b []byte, m Meta) ([]byte, error) {
 			return b, err
 		}
 	}
-	if group.Len() > MaxMetaLength {
+	if group.Len() > maxMetaLength {
 		// Keep what we write readable by ReadMeta.
-		return b, fmt.Errorf("%w: %d bytes of file meta information", ErrInvalidMeta, group.Len())
+		return b, fmt.Errorf("%w: %d bytes of file meta information", errInvalidMeta, group.Len())
 	}
 
-	out := slices.Grow(b, HeaderStart+12+group.Len())
-	out = append(out, make([]byte, PreambleLength)...)
-	out = append(out, Prefix...)
+	out := slices.Grow(b, headerStart+12+group.Len())
+	out = append(out, make([]byte, preambleLength)...)
+	out = append(out, prefix...)
 	// (0002,0000) UL: bytes after this element up to the end of group 0002.
 	out = binary.LittleEndian.AppendUint16(out, metaGroup)
 	out = binary.LittleEndian.AppendUint16(out, 0x0000)
@@ -102,18 +102,18 @@ func (m Meta) elements() ([]Element, error) {
 	elems := []Element{{Tag: TagFileMetaInformationVersion, VR: "OB", Value: []byte{0x00, 0x01}}}
 	for _, r := range required {
 		if err := checkUID(r.value); err != nil {
-			return nil, fmt.Errorf("%w: %v: %v", ErrInvalidMeta, r.tag, err)
+			return nil, fmt.Errorf("%w: %v: %v", errInvalidMeta, r.tag, err)
 		}
 		elems = append(elems, Element{Tag: r.tag, VR: "UI", Value: pad([]byte(r.value), 0x00)})
 	}
 	if err := checkText(m.ImplementationVersionName, maxSHLength); err != nil {
-		return nil, fmt.Errorf("%w: %v: %v", ErrInvalidMeta, TagImplementationVersionName, err)
+		return nil, fmt.Errorf("%w: %v: %v", errInvalidMeta, TagImplementationVersionName, err)
 	}
 	elems = append(elems, Element{Tag: TagImplementationVersionName, VR: "SH",
 		Value: pad([]byte(m.ImplementationVersionName), ' ')})
 	if m.SourceApplicationEntityTitle != "" {
 		if err := checkText(m.SourceApplicationEntityTitle, maxAELength); err != nil {
-			return nil, fmt.Errorf("%w: %v: %v", ErrInvalidMeta, TagSourceApplicationEntityTitle, err)
+			return nil, fmt.Errorf("%w: %v: %v", errInvalidMeta, TagSourceApplicationEntityTitle, err)
 		}
 		elems = append(elems, Element{Tag: TagSourceApplicationEntityTitle, VR: "AE",
 			Value: pad([]byte(m.SourceApplicationEntityTitle), ' ')})
@@ -127,8 +127,8 @@ func (m Meta) elements() ([]Element, error) {
 		if made[e.Tag] {
 			continue
 		}
-		if e.Tag.Group() != metaGroup {
-			return nil, fmt.Errorf("%w: %v is not in group 0002", ErrInvalidMeta, e.Tag)
+		if e.Tag.group() != metaGroup {
+			return nil, fmt.Errorf("%w: %v is not in group 0002", errInvalidMeta, e.Tag)
 		}
 		made[e.Tag] = true // a tag appears once in a data set (PS3.5 7.1)
 		e.Value = pad(e.Value, padByte(e.VR))
@@ -149,14 +149,14 @@ func (m Meta) elements() ([]Element, error) {
 // appendElement encodes e in Explicit VR Little Endian (PS3.5 7.1.2).
 func appendElement(buf *bytes.Buffer, e Element) error {
 	var h []byte
-	h = binary.LittleEndian.AppendUint16(h, e.Tag.Group())
-	h = binary.LittleEndian.AppendUint16(h, e.Tag.Element())
-	if !KnownVR(e.VR) || e.VR == "SQ" {
-		return fmt.Errorf("%w: %v: cannot write VR %q", ErrInvalidMeta, e.Tag, e.VR)
+	h = binary.LittleEndian.AppendUint16(h, e.Tag.group())
+	h = binary.LittleEndian.AppendUint16(h, e.Tag.element())
+	if !knownVR(e.VR) || e.VR == "SQ" {
+		return fmt.Errorf("%w: %v: cannot write VR %q", errInvalidMeta, e.Tag, e.VR)
 	}
 	// The reader's limits, so that ReadMeta accepts whatever we write.
 	if limit := valueLimit(e.VR); len(e.Value) > limit {
-		return fmt.Errorf("%w: %v: %d bytes of %s, limit %d", ErrInvalidMeta, e.Tag, len(e.Value), e.VR, limit)
+		return fmt.Errorf("%w: %v: %d bytes of %s, limit %d", errInvalidMeta, e.Tag, len(e.Value), e.VR, limit)
 	}
 	h = append(h, e.VR...)
 	if LongLengthVR(e.VR) {

@@ -116,28 +116,28 @@ func TestWriteHeaderLayout(t *testing.T) {
 	h := b.Bytes()
 	t.Run("the preamble is 128 zero bytes", func(t *testing.T) {
 		// PS3.10 7.1: all 128 bytes 00H when the preamble is not used.
-		if !bytes.Equal(h[:PreambleLength], make([]byte, PreambleLength)) {
+		if !bytes.Equal(h[:preambleLength], make([]byte, preambleLength)) {
 			t.Fatal("preamble is not zero")
 		}
 	})
 	t.Run("the prefix is DICM", func(t *testing.T) {
-		if string(h[PreambleLength:HeaderStart]) != "DICM" { // PS3.10 7.1
-			t.Fatalf("prefix %q", h[PreambleLength:HeaderStart])
+		if string(h[preambleLength:headerStart]) != "DICM" { // PS3.10 7.1
+			t.Fatalf("prefix %q", h[preambleLength:headerStart])
 		}
 	})
 	t.Run("the group length counts the bytes after it", func(t *testing.T) {
 		// PS3.10 7.1 Table 7.1-1 (0002,0000).
-		if want := []byte{0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0}; !bytes.Equal(h[HeaderStart:HeaderStart+8], want) {
-			t.Fatalf("group length header % x", h[HeaderStart:HeaderStart+8])
+		if want := []byte{0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0}; !bytes.Equal(h[headerStart:headerStart+8], want) {
+			t.Fatalf("group length header % x", h[headerStart:headerStart+8])
 		}
-		if n := binary.LittleEndian.Uint32(h[HeaderStart+8:]); int(n) != len(h)-HeaderStart-12 {
-			t.Fatalf("group length %d, %d bytes follow", n, len(h)-HeaderStart-12)
+		if n := binary.LittleEndian.Uint32(h[headerStart+8:]); int(n) != len(h)-headerStart-12 {
+			t.Fatalf("group length %d, %d bytes follow", n, len(h)-headerStart-12)
 		}
 	})
 	t.Run("elements are in ascending tag order, once each, with even lengths", func(t *testing.T) {
-		s := &source{r: bytes.NewReader(h[HeaderStart:])}
+		s := &source{r: bytes.NewReader(h[headerStart:])}
 		var tags []Tag
-		for int(s.pos) < len(h)-HeaderStart {
+		for int(s.pos) < len(h)-headerStart {
 			e, err := readElement(s)
 			if err != nil {
 				t.Fatal(err)
@@ -163,8 +163,8 @@ func TestWriteHeaderLayout(t *testing.T) {
 	t.Run("the version is 00 01", func(t *testing.T) {
 		// PS3.10 7.1 Table 7.1-1 (0002,0001): OB 00H 01H.
 		want := []byte{0x02, 0x00, 0x01, 0x00, 'O', 'B', 0, 0, 2, 0, 0, 0, 0x00, 0x01}
-		if !bytes.Equal(h[HeaderStart+12:HeaderStart+26], want) {
-			t.Fatalf("version element % x", h[HeaderStart+12:HeaderStart+26])
+		if !bytes.Equal(h[headerStart+12:headerStart+26], want) {
+			t.Fatalf("version element % x", h[headerStart+12:headerStart+26])
 		}
 	})
 }
@@ -215,17 +215,17 @@ func TestWriteHeaderRejectsInvalidMeta(t *testing.T) {
 			m.Other = []Element{{Tag: 0x00020100, VR: "SQ"}}
 		})},
 		{"an other UI element above MaxValueLength", with(func(m *Meta) {
-			m.Other = []Element{{Tag: 0x00020100, VR: "UI", Value: bytes.Repeat([]byte("1"), MaxValueLength+2)}}
+			m.Other = []Element{{Tag: 0x00020100, VR: "UI", Value: bytes.Repeat([]byte("1"), maxValueLength+2)}}
 		})},
 		{"an other OB element above MaxBinaryValueLength", with(func(m *Meta) {
-			m.Other = []Element{{Tag: 0x00020102, VR: "OB", Value: make([]byte, MaxBinaryValueLength+2)}}
+			m.Other = []Element{{Tag: 0x00020102, VR: "OB", Value: make([]byte, maxBinaryValueLength+2)}}
 		})},
 	}
 	for _, c := range cases {
 		t.Run("it rejects "+c.name, func(t *testing.T) {
 			var b bytes.Buffer
 			err := WriteHeader(&b, c.meta)
-			if !errors.Is(err, ErrInvalidMeta) {
+			if !errors.Is(err, errInvalidMeta) {
 				t.Fatalf("err = %v, want ErrInvalidMeta", err)
 			}
 			if b.Len() != 0 {
@@ -261,7 +261,7 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			MediaStorageSOPInstanceUID:   explicitMeta.MediaStorageSOPInstanceUID,
 			TransferSyntaxUID:            "1.2.840.10008.1.2.1",
 			SourceApplicationEntityTitle: "DWIAUDIT",
-		}, explicit[HeaderStart+12+groupLength(explicit):], "Little Endian Explicit"},
+		}, explicit[headerStart+12+groupLength(explicit):], "Little Endian Explicit"},
 		{"an implicit VR file with private information", Meta{
 			MediaStorageSOPClassUID:    implicitMeta.MediaStorageSOPClassUID,
 			MediaStorageSOPInstanceUID: implicitMeta.MediaStorageSOPInstanceUID,
@@ -270,7 +270,7 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 				{Tag: 0x00020100, VR: "UI", Value: []byte("2.25.6")},
 				{Tag: 0x00020102, VR: "OB", Value: []byte("synthetic")},
 			},
-		}, implicit[HeaderStart+12+groupLength(implicit):], "Little Endian Implicit"},
+		}, implicit[headerStart+12+groupLength(implicit):], "Little Endian Implicit"},
 	}
 	for _, c := range cases {
 		t.Run("dcmdump reads "+c.name+" without warnings", func(t *testing.T) {
@@ -326,7 +326,7 @@ func TestAppendHeaderIsWriteHeader(t *testing.T) {
 	}
 	bad := minimalMeta
 	bad.TransferSyntaxUID = ""
-	if out, err := AppendHeader(prefix, bad); !errors.Is(err, ErrInvalidMeta) || !bytes.Equal(out, prefix) {
+	if out, err := AppendHeader(prefix, bad); !errors.Is(err, errInvalidMeta) || !bytes.Equal(out, prefix) {
 		t.Errorf("AppendHeader of an invalid meta = %q, %v; want the prefix alone and ErrInvalidMeta", out, err)
 	}
 }
@@ -425,17 +425,17 @@ func TestVRTable(t *testing.T) {
 	short := []string{"AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
 		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US"}
 	for _, vr := range long {
-		if !LongLengthVR(vr) || !KnownVR(vr) {
-			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want both", vr, LongLengthVR(vr), KnownVR(vr))
+		if !LongLengthVR(vr) || !knownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want both", vr, LongLengthVR(vr), knownVR(vr))
 		}
 	}
 	for _, vr := range short {
-		if LongLengthVR(vr) || !KnownVR(vr) {
-			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want short and known", vr, LongLengthVR(vr), KnownVR(vr))
+		if LongLengthVR(vr) || !knownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want short and known", vr, LongLengthVR(vr), knownVR(vr))
 		}
 	}
 	for _, vr := range []string{"NA", "XX", "ob", ""} {
-		if KnownVR(vr) || LongLengthVR(vr) {
+		if knownVR(vr) || LongLengthVR(vr) {
 			t.Errorf("%q is taken for a VR", vr)
 		}
 	}
