@@ -288,7 +288,7 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 		if rq.UserInfo.MaxLength != 16384 { // echoscu --help: "-pdu ... (default: 16384)"
 			t.Errorf("max length %d", rq.UserInfo.MaxLength)
 		}
-		if err := CheckUID(rq.UserInfo.ImplementationClassUID); err != nil {
+		if err := checkUID(rq.UserInfo.ImplementationClassUID); err != nil {
 			t.Errorf("implementation class UID: %v", err)
 		}
 		ac := got[1].p.(*AssociateAC)
@@ -318,7 +318,7 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 		if len(rq.PresentationContexts) != 128 || len(rq.PresentationContexts[127].TransferSyntaxes) != 38 { // echoscu -ppc 128 -pts 38
 			t.Errorf("%d contexts", len(rq.PresentationContexts))
 		}
-		if len(got[0].raw) > MaxAssociatePDULength/2 {
+		if len(got[0].raw) > maxAssociatePDULength/2 {
 			t.Errorf("RQ of %d bytes; the MaxAssociatePDULength comment says about half of the limit", len(got[0].raw))
 		}
 		t.Logf("A-ASSOCIATE-RQ of 128 contexts x 38 transfer syntaxes: %d bytes", len(got[0].raw))
@@ -331,7 +331,7 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 			[]string{"-aet", calling, "-aec", "DWIAUDIT", "--user", "quellvander-tech", "--password", "not-a-secret"}, file)
 		checkCapture(t, "store", got, []Type{TypeAssociateRQ, TypeAssociateAC, TypePDataTF, TypePDataTF, TypePDataTF, TypeReleaseRQ, TypeReleaseRP})
 		id := got[0].p.(*AssociateRQ).UserInfo.UserIdentity
-		if id == nil || id.Type != UserIdentityUsernamePasscode || string(id.Primary) != "quellvander-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
+		if id == nil || id.Type != userIdentityUsernamePasscode || string(id.Primary) != "quellvander-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
 			t.Errorf("user identity %+v", id)
 		}
 	})
