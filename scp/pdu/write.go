@@ -32,7 +32,7 @@ func write(w io.Writer, p PDU) error {
 	return nil
 }
 
-// writer writes PDUs to a stream like Write, one Write call each, but
+// writer writes PDUs to a stream like write, one Write call each, but
 // encodes into a buffer it keeps, so that a steady stream of P-DATA-TF
 // costs no allocation. It is not safe for concurrent use.
 type writer struct {
