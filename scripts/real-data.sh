@@ -51,8 +51,9 @@ folders=()
 if [ $# -gt 0 ]; then
   for f in "$@"; do folders+=("${f%/}"); done
 else
-  while IFS= read -r f; do folders+=("${f#"$dir/In/"}"); done < <(
-    find "$dir/In" -type f -printf '%h\n' | sort -u)
+  while IFS= read -r f; do
+    if [ "$f" = "$dir/In" ]; then folders+=("."); else folders+=("${f#"$dir/In/"}"); fi
+  done < <(find "$dir/In" -type f -printf '%h\n' | sort -u)
 fi
 
 mkdir -p "$work/out"

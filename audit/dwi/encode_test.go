@@ -282,6 +282,11 @@ const (
 	tPixelData       = 0x7FE00010
 )
 
+// omitDirectionality as img.directionality writes neither Diffusion
+// Directionality nor a gradient: a weighted image that says nothing of
+// its direction.
+const omitDirectionality = "-"
+
 // img is one image of a test series.
 type img struct {
 	b              float64
@@ -396,6 +401,9 @@ func diffusion(m img) []el {
 		default:
 			dir = "DIRECTIONAL"
 		}
+	}
+	if dir == omitDirectionality {
+		return out
 	}
 	out = append(out, txt(tDirectionality, "CS", dir))
 	if dir == "DIRECTIONAL" {

@@ -26,6 +26,10 @@ type Tolerances struct {
 	// Direction (degrees) is the largest angle between two diffusion
 	// gradient directions counted as one direction.
 	Direction float64
+	// B0Max (s/mm²) is the largest b-value that is a reference (b0)
+	// weighting: its images need no gradient direction, and several of
+	// them on one slice are repeats.
+	B0Max float64
 }
 
 // DefaultTolerances returns the tolerances the audit uses unless
@@ -49,6 +53,11 @@ type Tolerances struct {
 //     (PS3.3 C.8.13.5.9), differences from rounding are far smaller, and
 //     even 256-direction schemes keep directions several degrees apart
 //     (common practice).
+//   - b0: b-values up to 50 s/mm² are the reference weighting (common
+//     practice: body protocols use b 50 as their b0 to suppress
+//     perfusion, DOMAIN.md). Only values within the b-value tolerance of
+//     0 (5 s/mm²: a scanner's "b0" stored as 0.002 or 5) are shown as
+//     0; a b 50 stays 50, since the ADC is computed against it.
 func DefaultTolerances() Tolerances {
 	return Tolerances{
 		BValue:         5,
@@ -57,6 +66,7 @@ func DefaultTolerances() Tolerances {
 		Orientation:    1e-3,
 		Spacing:        1e-3,
 		Direction:      1,
+		B0Max:          50,
 	}
 }
 
@@ -68,7 +78,7 @@ func (t Tolerances) Validate() error {
 		v    float64
 	}{
 		{"BValue", t.BValue}, {"BValueRelative", t.BValueRelative}, {"SlicePosition", t.SlicePosition},
-		{"Orientation", t.Orientation}, {"Spacing", t.Spacing}, {"Direction", t.Direction},
+		{"Orientation", t.Orientation}, {"Spacing", t.Spacing}, {"Direction", t.Direction}, {"B0Max", t.B0Max},
 	} {
 		if f.v < 0 || math.IsNaN(f.v) || math.IsInf(f.v, 0) {
 			errs = append(errs, fmt.Errorf("%w: tolerance %s = %v", ErrInvalidOptions, f.name, f.v))

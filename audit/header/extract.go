@@ -161,6 +161,7 @@ type extraction struct {
 	layout PixelDataLayout
 	ra     io.ReaderAt
 	size   int64
+	kind   dwi.MapKind // of the instance (dwi.Classify); a map not audited is read for its header only
 }
 
 func (x *extraction) frames() ([]dwi.Frame, error) {
@@ -194,9 +195,17 @@ func (x *extraction) frames() ([]dwi.Frame, error) {
 			return nil, fmt.Errorf("%w: Number of Frames %d and no pixel data", ErrPixelData, n)
 		}
 	}
-	pf, err := x.checkPixelData(rows, cols, n)
-	if err != nil {
-		return nil, err
+	// Derived maps the audit does not use (FA, colour FA, tensor b0) are
+	// read for their header only: their pixels may be of a kind the
+	// audit does not decode (RGB), and are never computed on.
+	spp, _ := top.integer(tag.SamplesPerPixel, ValueUS, x.bo)
+	x.kind = dwi.Classify(dwi.ClassifyInput{SOPClassUID: top.str(tag.SOPClassUID), SamplesPerPixel: spp, ImageType: top.strs(tag.ImageType)})
+	var pf *pixelFormat
+	if x.kind.Audited() {
+		var err error
+		if pf, err = x.checkPixelData(rows, cols, n); err != nil {
+			return nil, err
+		}
 	}
 
 	shared := top.item(tag.SharedFunctionalGroupsSequence)
@@ -213,6 +222,7 @@ func (x *extraction) frames() ([]dwi.Frame, error) {
 		if multi {
 			f.FrameNumber = i + 1
 		}
+		var err error
 		if mosaics[i], err = x.frame(f, per, shared, rows, cols); err != nil {
 			return nil, err
 		}
@@ -358,7 +368,10 @@ func (x *extraction) frame(f *dwi.Frame, per, shared level, rows, cols int) (*Mo
 		m.Units = it.item(tag.MeasurementUnitsCodeSequence).str(tag.CodeValue)
 		f.RealWorld = append(f.RealWorld, m)
 	}
-	f.Kind = kindOf(f.ImageType, f.RealWorld)
+	f.Kind = dwi.Classify(dwi.ClassifyInput{SOPClassUID: f.SOPClassUID, ImageType: f.ImageType, RealWorld: f.RealWorld})
+	if !x.kind.Audited() {
+		f.Kind = x.kind
+	}
 
 	x.diffusion(f, per, shared)
 	if !f.HasBValue {
@@ -448,42 +461,6 @@ func parseDirectionality(s string) dwi.Directionality {
 		return dwi.DirectionalityIsotropic
 	}
 	return dwi.DirectionalityUnknown
-}
-
-// Units codes (UCUM, in Measurement Units Code Sequence of a Real World
-// Value Mapping) of a diffusion coefficient: DOMAIN.md, PS3.16 CID 7181
-// (from memory).
-func adcUnits(u string) bool {
-	switch u {
-	case "mm2/s", "um2/s", "10-6.mm2/s":
-		return true
-	}
-	return false
-}
-
-// kindOf says whether an image is acquired or a scanner map. Image Type
-// or Frame Type value 4 (Derived Pixel Contrast, PS3.3 C.8.16.1 and the
-// Enhanced MR defined terms of C.8.13.1.1.1: ADC, DIFFUSION_ATTNTD,
-// DIFFUSION_ANISO; dicom3tools' EnhancedMRImageType4 list has them too),
-// else a Real World Value Mapping in units of a diffusion coefficient.
-// "FA" for an anisotropy map is common practice in classic images.
-func kindOf(imageType []string, rwv []dwi.RealWorldValue) dwi.MapKind {
-	if len(imageType) >= 4 {
-		switch strings.ToUpper(imageType[3]) {
-		case "ADC":
-			return dwi.KindADC
-		case "DIFFUSION_ATTNTD":
-			return dwi.KindEADC
-		case "DIFFUSION_ANISO", "FA":
-			return dwi.KindOtherDerived
-		}
-	}
-	for _, m := range rwv {
-		if adcUnits(m.Units) {
-			return dwi.KindADC
-		}
-	}
-	return dwi.KindAcquired
 }
 
 // private tries the configured private sources, in order, for a frame

@@ -282,8 +282,6 @@ func TestExtractRefusesBrokenFilesWithAClearError(t *testing.T) {
 		{"no pixel data when pixels are wanted", part10File(t, tsExplicitLE, mrImage, "2.25.7", classicEls()), ExtractOptions{LoadPixels: true}, ErrPixelData},
 		{"undefined-length pixel data in a native syntax", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(classicEls(), el{tag: tPixelData, vr: "OB", raw: frag, undefined: true})), ExtractOptions{}, ErrPixelData},
-		{"three samples per pixel", part10File(t, tsExplicitLE, mrImage, "2.25.7",
-			with(slices.DeleteFunc(classicEls(), func(e el) bool { return e.tag == tSamples }), us(tSamples, 3), raw(tPixelData, "OW", pix))), ExtractOptions{}, ErrPixelData},
 		{"a header string claiming 3 GiB", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(classicEls(), el{tag: tProtocol + 2, vr: "UT", strs: []string{"x"}, lie: ptr(uint32(3 << 30))})), ExtractOptions{}, ErrMalformed},
 		{"a per-frame functional group count that is not the frame count", bytesReplace(t, good, "\x08\x00IS\x02\x002 ", "\x08\x00IS\x02\x001 "), ExtractOptions{}, ErrMalformed},
@@ -517,6 +515,41 @@ func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	})
 }
 
+// RGB images (Samples per Pixel 3, PS3.3 C.7.6.3.1.1) are derived maps:
+// read for their header, never decoded, never an error.
+func TestRGBMapsAreReadForTheirHeaderOnly(t *testing.T) {
+	s := newSeries("rgb", img{b: 0})
+	pix := make([]byte, 8*8*3)
+	rgb := func(imageType ...string) []el {
+		base := s.common(mrImage, "2.25.7")
+		p := s.position(s.images[0])
+		base = append(base, ds(tIPP, p[:]...), ds(tIOP, s.orientation[:]...))
+		els := slices.DeleteFunc(base, func(e el) bool {
+			return e.tag == tSamples || e.tag == tImageType || e.tag == tBitsAllocated || e.tag == tBitsStored || e.tag == tHighBit || e.tag == tPhotometric
+		})
+		return append(els, us(tSamples, 3), txt(tPhotometric, "CS", "RGB"), us(tBitsAllocated, 8), us(tBitsStored, 8), us(tHighBit, 7),
+			txt(tImageType, "CS", imageType...), raw(tPixelData, "OB", pix))
+	}
+	for _, tt := range []struct {
+		name string
+		els  []el
+		want dwi.MapKind
+	}{
+		{"a colour FA map", rgb("DERIVED", "PRIMARY", "DIFFUSION", "FA"), dwi.KindColourFA},
+		{"another RGB image", rgb("DERIVED", "SECONDARY", "OTHER"), dwi.KindOtherDerived},
+	} {
+		t.Run(tt.name+" is a "+tt.want.String(), func(t *testing.T) {
+			frames, err := Extract(part10File(t, tsExplicitLE, mrImage, "2.25.7", tt.els), ExtractOptions{LoadPixels: true})
+			if err != nil || len(frames) != 1 {
+				t.Fatalf("%d frames, error %v; want one and no error", len(frames), err)
+			}
+			if f := frames[0]; f.Kind != tt.want || f.Pixels != nil || f.Kind.Audited() {
+				t.Errorf("kind %v, %d pixels; want %v, not decoded, not audited", f.Kind, len(f.Pixels), tt.want)
+			}
+		})
+	}
+}
+
 func TestDerivedMapsAreRecognised(t *testing.T) {
 	tests := []struct {
 		name string
@@ -525,7 +558,10 @@ func TestDerivedMapsAreRecognised(t *testing.T) {
 	}{
 		{"Image Type value 4 ADC (PS3.17 DERIVED\\PRIMARY\\DIFFUSION\\ADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}}, dwi.KindADC},
 		{"Image Type value 4 DIFFUSION_ATTNTD (eADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ATTNTD"}}, dwi.KindEADC},
-		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, dwi.KindOtherDerived},
+		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, dwi.KindFA},
+		// Common practice (from memory): classic FA and tensor b0 maps say so in Image Type.
+		{"Image Type FA", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "FA", "DIS2D"}}, dwi.KindFA},
+		{"Image Type TENSOR_B0", img{b: 0, imageType: []string{"DERIVED", "PRIMARY", "TENSOR_B0", "DIS2D"}}, dwi.KindTensorB0},
 		{"Real World Value Mapping in um2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY"}, rwvUnits: "um2/s"}, dwi.KindADC},
 		{"Real World Value Mapping in 10-6.mm2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "OTHER"}, rwvUnits: "10-6.mm2/s"}, dwi.KindADC},
 		{"an acquired trace", img{b: 1000, iso: true}, dwi.KindAcquired},
