@@ -11,23 +11,10 @@ import (
 	"strings"
 	"testing"
 
+	"dwiaudit/internal/testtool"
+
 	"go.yaml.in/yaml/v3"
 )
-
-// needPromtool returns promtool's path. Without it the test fails when
-// CI=true and skips otherwise, naming the Debian package.
-func needPromtool(t *testing.T) string {
-	t.Helper()
-	p, err := exec.LookPath("promtool")
-	if err == nil {
-		return p
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("promtool not found; CI must install the Debian package prometheus")
-	}
-	t.Skip("promtool not found; install the Debian package prometheus to run this test")
-	return ""
-}
 
 // ruleTestFiles are the promtool unit-test files of alerts.yml.
 var ruleTestFiles = []string{"alerts_test.yml", "alerts_days_test.yml"}
@@ -41,7 +28,7 @@ func runPromtool(t *testing.T, promtool, dir string, args ...string) (string, er
 }
 
 func TestPromtoolAcceptsTheConfigTheRulesAndTheirTests(t *testing.T) {
-	promtool := needPromtool(t)
+	promtool := testtool.Path(t, "promtool", "prometheus")
 	for _, c := range []struct {
 		name string
 		args []string
@@ -133,7 +120,7 @@ func TestEveryAlertHasAFiringAndAQuietCase(t *testing.T) {
 // with one that never fires and runs the unit tests: they must fail, so
 // that the firing cases are known to be checked, not only written.
 func TestTheFiringCasesCatchASilencedAlert(t *testing.T) {
-	promtool := needPromtool(t)
+	promtool := testtool.Path(t, "promtool", "prometheus")
 	orig, err := os.ReadFile("alerts.yml")
 	if err != nil {
 		t.Fatal(err)
@@ -487,7 +474,7 @@ var grafanaVariables = strings.NewReplacer(
 )
 
 func TestPromtoolParsesEveryDashboardQuery(t *testing.T) {
-	promtool := needPromtool(t)
+	promtool := testtool.Path(t, "promtool", "prometheus")
 	qs, err := DashboardQueries()
 	if err != nil {
 		t.Fatal(err)

@@ -248,7 +248,7 @@ func (a *assoc) control(c *conn, p pdu.PDU) bool {
 		a.sum.Result = "released"
 		return true
 	case *pdu.Abort:
-		a.sum.Result, a.sum.Detail = "aborted-by-peer", (&AbortError{Abort: *p}).Error()
+		a.sum.Result, a.sum.Detail = "aborted-by-peer", (&abortError{Abort: *p}).Error()
 		return true
 	default:
 		// A-ASSOCIATE-* or A-RELEASE-RP here is an unexpected PDU (AA-8).

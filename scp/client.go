@@ -20,13 +20,13 @@ const (
 	DefaultCallingAETitle = "DWIAUDIT"
 	DefaultCalledAETitle  = DefaultAETitle // the node's own default, so echo and send reach a node on defaults
 
-	// DefaultResponseTimeout bounds the wait for a DIMSE response after
+	// defaultResponseTimeout bounds the wait for a DIMSE response after
 	// the request was sent: a peer that stores to a slow disk may take a
 	// few seconds, a minute means it is stuck.
-	DefaultResponseTimeout = time.Minute
+	defaultResponseTimeout = time.Minute
 
-	// DefaultDialTimeout bounds the TCP connect.
-	DefaultDialTimeout = 10 * time.Second
+	// defaultDialTimeout bounds the TCP connect.
+	defaultDialTimeout = 10 * time.Second
 
 	// maxProposedContexts is the number of presentation context IDs
 	// available: odd integers 1..255 (PS3.8 9.3.2.2).
@@ -117,7 +117,7 @@ func (d *Dialer) Dial(ctx context.Context, addr string, contexts []Context) (*As
 		})
 	}
 
-	nd := net.Dialer{Timeout: orDefault(d.DialTimeout, DefaultDialTimeout)}
+	nd := net.Dialer{Timeout: orDefault(d.DialTimeout, defaultDialTimeout)}
 	nc, err := nd.DialContext(ctx, "tcp", addr)
 	if err != nil {
 		return nil, fmt.Errorf("scp: connect to %s: %w", addr, err)
@@ -155,14 +155,14 @@ func (d *Dialer) Dial(ctx context.Context, addr string, contexts []Context) (*As
 			}
 		}
 		m.peerMax = p.UserInfo.MaxLength
-		m.idleTimeout = orDefault(d.ResponseTimeout, DefaultResponseTimeout)
+		m.idleTimeout = orDefault(d.ResponseTimeout, defaultResponseTimeout)
 		return a, nil
 	case *pdu.AssociateRJ:
 		nc.Close()
 		return nil, &RejectError{RJ: *p}
 	case *pdu.Abort:
 		nc.Close()
-		return nil, &AbortError{Abort: *p}
+		return nil, &abortError{Abort: *p}
 	default:
 		m.writePDU(&pdu.Abort{Source: pdu.AbortSourceServiceProvider, Reason: pdu.AbortReasonUnexpectedPDU})
 		nc.Close()
@@ -181,8 +181,8 @@ func (a *Association) Accepted(abstract, ts string) bool {
 	return ok
 }
 
-// AcceptedContexts returns how many proposed contexts were accepted.
-func (a *Association) AcceptedContexts() int { return len(a.ctx) }
+// acceptedContexts returns how many proposed contexts were accepted.
+func (a *Association) acceptedContexts() int { return len(a.ctx) }
 
 func (a *Association) nextMsgID() uint16 {
 	a.msgID++
@@ -199,7 +199,7 @@ func (a *Association) Echo(ctx context.Context) error {
 		return a.err
 	}
 	if a.verification == 0 {
-		return fmt.Errorf("%w for Verification", ErrNoContext)
+		return fmt.Errorf("%w for Verification", errNoContext)
 	}
 	rsp, err := a.roundTrip(ctx, a.verification, dimse.NewCEchoRQ(a.nextMsgID()), nil)
 	if err != nil {
@@ -226,7 +226,7 @@ func (a *Association) Store(ctx context.Context, sopClass, sopInstance, ts strin
 	}
 	id, ok := a.ctx[contextKey{sopClass, ts}]
 	if !ok {
-		return StoreResponse{}, fmt.Errorf("%w for SOP class %s in transfer syntax %s", ErrNoContext, sopClass, ts)
+		return StoreResponse{}, fmt.Errorf("%w for SOP class %s in transfer syntax %s", errNoContext, sopClass, ts)
 	}
 	rq := dimse.NewCStoreRQ(a.nextMsgID(), sopClass, sopInstance, dimse.PriorityMedium)
 	rsp, err := a.roundTrip(ctx, id, rq, data)
@@ -284,13 +284,13 @@ func (a *Association) roundTrip(ctx context.Context, ctxID byte, rq *dimse.Comma
 		rid, rsp, ctrl, err := a.m.readCommand(nil)
 		if err != nil {
 			if p, ok := a.m.pending.(*pdu.Abort); ok {
-				err = &AbortError{Abort: *p}
+				err = &abortError{Abort: *p}
 			}
 			return fail(err)
 		}
 		if ctrl != nil {
 			if p, ok := ctrl.(*pdu.Abort); ok {
-				return fail(&AbortError{Abort: *p})
+				return fail(&abortError{Abort: *p})
 			}
 			a.abort(pdu.AbortReasonUnexpectedPDU)
 			return fail(protocolErrorf(pdu.AbortReasonUnexpectedPDU, "unexpected %v while waiting for a response", ctrl.Type()))
@@ -320,7 +320,7 @@ func (a *Association) peerAbortOr(err error) error {
 			break
 		}
 		if ab, ok := p.(*pdu.Abort); ok {
-			return &AbortError{Abort: *ab}
+			return &abortError{Abort: *ab}
 		}
 	}
 	return err
@@ -343,7 +343,7 @@ func (a *Association) Release(ctx context.Context) error {
 	if a.err != nil {
 		return a.err
 	}
-	defer a.fail(ErrAssociationClosed)
+	defer a.fail(errAssociationClosed)
 	stop := context.AfterFunc(ctx, func() { a.m.nc.SetDeadline(time.Now()) })
 	defer stop()
 	if err := a.m.writePDU(&pdu.ReleaseRQ{}); err != nil {
@@ -359,7 +359,7 @@ func (a *Association) Release(ctx context.Context) error {
 		case *pdu.ReleaseRP:
 			return nil
 		case *pdu.Abort:
-			return &AbortError{Abort: *p}
+			return &abortError{Abort: *p}
 		case *pdu.PDataTF:
 			// PS3.8 9.2 allows P-DATA to arrive before the release
 			// answer; nothing is outstanding, so it is dropped.
@@ -381,7 +381,7 @@ func (a *Association) Abort() error {
 		return nil
 	}
 	err := a.m.writePDU(&pdu.Abort{Source: pdu.AbortSourceServiceUser, Reason: pdu.AbortReasonNotSpecified})
-	a.fail(ErrAssociationClosed)
+	a.fail(errAssociationClosed)
 	return err
 }
 

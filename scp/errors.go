@@ -18,26 +18,26 @@ var (
 	// connection. A handler that sees it must not keep what it read.
 	ErrIncomplete = errors.New("scp: data set incomplete")
 
-	// ErrAborted is returned (wrapped in *AbortError) when the peer sent
+	// errAborted is returned (wrapped in *abortError) when the peer sent
 	// A-ABORT.
-	ErrAborted = errors.New("scp: association aborted")
+	errAborted = errors.New("scp: association aborted")
 
-	// ErrRejected is returned (wrapped in *RejectError) when the acceptor
+	// errRejected is returned (wrapped in *RejectError) when the acceptor
 	// answered A-ASSOCIATE-RJ.
-	ErrRejected = errors.New("scp: association rejected")
+	errRejected = errors.New("scp: association rejected")
 
-	// ErrNoContext is returned by the requestor when no accepted
+	// errNoContext is returned by the requestor when no accepted
 	// presentation context fits the SOP class and transfer syntax of an
 	// object.
-	ErrNoContext = errors.New("scp: no accepted presentation context")
+	errNoContext = errors.New("scp: no accepted presentation context")
 
-	// ErrProtocol is wrapped by errors that describe a peer breaking
+	// errProtocol is wrapped by errors that describe a peer breaking
 	// PS3.8 or PS3.7 (an unexpected PDU, a fragment on the wrong context).
-	ErrProtocol = errors.New("scp: protocol error")
+	errProtocol = errors.New("scp: protocol error")
 
-	// ErrAssociationClosed is returned when a requestor association is
+	// errAssociationClosed is returned when a requestor association is
 	// used after Release, Abort or a failure.
-	ErrAssociationClosed = errors.New("scp: association closed")
+	errAssociationClosed = errors.New("scp: association closed")
 )
 
 // RejectError carries the A-ASSOCIATE-RJ the acceptor sent (PS3.8 9.3.4).
@@ -49,25 +49,25 @@ func (e *RejectError) Error() string {
 	return "association rejected: " + e.RJ.Describe()
 }
 
-// Unwrap makes errors.Is(err, ErrRejected) true.
-func (e *RejectError) Unwrap() error { return ErrRejected }
+// Unwrap makes errors.Is(err, errRejected) true.
+func (e *RejectError) Unwrap() error { return errRejected }
 
-// AbortError carries the A-ABORT the peer sent (PS3.8 9.3.8).
-type AbortError struct {
+// abortError carries the A-ABORT the peer sent (PS3.8 9.3.8).
+type abortError struct {
 	Abort pdu.Abort
 }
 
-func (e *AbortError) Error() string {
+func (e *abortError) Error() string {
 	if e.Abort.Source == pdu.AbortSourceServiceProvider {
 		return fmt.Sprintf("association aborted by service provider: %v", e.Abort.Reason)
 	}
 	return "association aborted by peer"
 }
 
-// Unwrap makes errors.Is(err, ErrAborted) true.
-func (e *AbortError) Unwrap() error { return ErrAborted }
+// Unwrap makes errors.Is(err, errAborted) true.
+func (e *abortError) Unwrap() error { return errAborted }
 
-// protocolError builds an error wrapping ErrProtocol with the A-ABORT
+// protocolError builds an error wrapping errProtocol with the A-ABORT
 // reason the acceptor or requestor sends for it.
 type protocolError struct {
 	reason pdu.AbortReason
@@ -75,7 +75,7 @@ type protocolError struct {
 }
 
 func (e *protocolError) Error() string { return "scp: protocol error: " + e.msg }
-func (e *protocolError) Unwrap() error { return ErrProtocol }
+func (e *protocolError) Unwrap() error { return errProtocol }
 
 func protocolErrorf(reason pdu.AbortReason, format string, args ...any) error {
 	return &protocolError{reason: reason, msg: fmt.Sprintf(format, args...)}

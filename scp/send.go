@@ -224,7 +224,7 @@ func sendWorker(ctx context.Context, opts SendOptions, files []sendFile, report 
 			}
 			res := SendResult{Path: f.path, Bytes: f.size}
 			if !a.Accepted(f.meta.MediaStorageSOPClassUID, f.meta.TransferSyntaxUID) {
-				res.Err = fmt.Errorf("%w: SOP class %s in %s was refused by the peer", ErrNoContext, f.meta.MediaStorageSOPClassUID, f.meta.TransferSyntaxUID)
+				res.Err = fmt.Errorf("%w: SOP class %s in %s was refused by the peer", errNoContext, f.meta.MediaStorageSOPClassUID, f.meta.TransferSyntaxUID)
 				report(res)
 				continue
 			}

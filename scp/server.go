@@ -220,7 +220,7 @@ func (s *Server) Validate() error {
 		}
 	}
 	for i, uid := range s.StorageSOPClasses {
-		if !IsStorageSOPClass(uid) {
+		if !isStorageSOPClass(uid) {
 			errs = append(errs, fmt.Errorf("StorageSOPClasses[%d]: %q is not a storage SOP class", i, uid))
 		}
 	}
@@ -254,7 +254,7 @@ func (s *Server) acceptsAbstract(abstract string) bool {
 		return false
 	}
 	if s.AcceptAllStorage {
-		return IsStorageSOPClass(abstract)
+		return isStorageSOPClass(abstract)
 	}
 	classes := s.StorageSOPClasses
 	if classes == nil {

@@ -13,9 +13,9 @@ const (
 	VerificationSOPClass             = "1.2.840.10008.1.1"
 	MRImageStorage                   = "1.2.840.10008.5.1.4.1.1.4"
 	EnhancedMRImageStorage           = "1.2.840.10008.5.1.4.1.1.4.1"
-	LegacyConvertedEnhancedMRStorage = "1.2.840.10008.5.1.4.1.1.4.4"
-	ParametricMapStorage             = "1.2.840.10008.5.1.4.1.1.30"
-	SecondaryCaptureImageStorage     = "1.2.840.10008.5.1.4.1.1.7"
+	legacyConvertedEnhancedMRStorage = "1.2.840.10008.5.1.4.1.1.4.4"
+	parametricMapStorage             = "1.2.840.10008.5.1.4.1.1.30"
+	secondaryCaptureImageStorage     = "1.2.840.10008.5.1.4.1.1.7"
 
 	// storageSOPClassRoot is the arc under which every storage SOP class
 	// of PS3.4 Annex B sits (common practice relies on it; PS3.6 Annex A
@@ -27,8 +27,8 @@ const (
 const (
 	ImplicitVRLittleEndian         = "1.2.840.10008.1.2"
 	ExplicitVRLittleEndian         = "1.2.840.10008.1.2.1"
-	DeflatedExplicitVRLittleEndian = "1.2.840.10008.1.2.1.99"
-	ExplicitVRBigEndian            = "1.2.840.10008.1.2.2"
+	deflatedExplicitVRLittleEndian = "1.2.840.10008.1.2.1.99"
+	explicitVRBigEndian            = "1.2.840.10008.1.2.2"
 )
 
 // DefaultStorageSOPClasses are the storage SOP classes a diffusion audit
@@ -37,9 +37,9 @@ const (
 var defaultStorageSOPClasses = []string{
 	MRImageStorage,
 	EnhancedMRImageStorage,
-	LegacyConvertedEnhancedMRStorage,
-	ParametricMapStorage,
-	SecondaryCaptureImageStorage,
+	legacyConvertedEnhancedMRStorage,
+	parametricMapStorage,
+	secondaryCaptureImageStorage,
 }
 
 // DefaultStorageSOPClasses returns a fresh copy of the storage SOP classes
@@ -48,8 +48,8 @@ func DefaultStorageSOPClasses() []string {
 	return append([]string(nil), defaultStorageSOPClasses...)
 }
 
-// IsStorageSOPClass reports whether uid names a storage SOP class.
-func IsStorageSOPClass(uid string) bool {
+// isStorageSOPClass reports whether uid names a storage SOP class.
+func isStorageSOPClass(uid string) bool {
 	return strings.HasPrefix(uid, storageSOPClassRoot) && len(uid) > len(storageSOPClassRoot)
 }
 
@@ -72,7 +72,7 @@ var decodableEncapsulated = map[string]bool{
 // ones package audit/codec decodes.
 func Decodable(ts string) bool {
 	switch ts {
-	case ExplicitVRLittleEndian, ImplicitVRLittleEndian, DeflatedExplicitVRLittleEndian, ExplicitVRBigEndian:
+	case ExplicitVRLittleEndian, ImplicitVRLittleEndian, deflatedExplicitVRLittleEndian, explicitVRBigEndian:
 		return true
 	}
 	_, ok := decodableEncapsulated[ts]
@@ -94,14 +94,14 @@ func transferSyntaxRank(ts string) int {
 		return 1
 	case ImplicitVRLittleEndian:
 		return 2
-	case DeflatedExplicitVRLittleEndian:
+	case deflatedExplicitVRLittleEndian:
 		return 3
-	case ExplicitVRBigEndian:
+	case explicitVRBigEndian:
 		return 4
 	}
 	lossless, decodable := decodableEncapsulated[ts]
 	switch {
-	case !KnownTransferSyntax(ts):
+	case !knownTransferSyntax(ts):
 		return 0
 	case decodable && lossless:
 		return 5
@@ -111,11 +111,11 @@ func transferSyntaxRank(ts string) int {
 	return 7
 }
 
-// KnownTransferSyntax reports whether the data-set library
+// knownTransferSyntax reports whether the data-set library
 // (github.com/suyashkumar/dicom) knows ts as a transfer syntax. Its parser
 // panics on transfer syntaxes it does not know, so only data sets in a
 // known syntax may ever reach it.
-func KnownTransferSyntax(ts string) bool {
+func knownTransferSyntax(ts string) bool {
 	_, err := uid.CanonicalTransferSyntaxUID(ts)
 	return err == nil
 }

@@ -32,7 +32,7 @@ func TestNegotiatePrefersSyntaxesTheAuditDecodes(t *testing.T) {
 		{"lossless compression is chosen over lossy", []string{tsJPEGLSNear, tsJPEGExt, tsRLE}, tsRLE, pdu.PCAcceptance},
 		{"JPEG Lossless SV1 is chosen over JPEG 2000", []string{tsJ2K, tsJPEGLLSV1}, tsJPEGLLSV1, pdu.PCAcceptance},
 		{"uncompressed stays first of all", []string{tsJPEGLL, tsJ2K, ExplicitVRLittleEndian}, ExplicitVRLittleEndian, pdu.PCAcceptance},
-		{"big endian, read natively, is chosen over JPEG 2000", []string{tsJ2KLossless, ExplicitVRBigEndian}, ExplicitVRBigEndian, pdu.PCAcceptance},
+		{"big endian, read natively, is chosen over JPEG 2000", []string{tsJ2KLossless, explicitVRBigEndian}, explicitVRBigEndian, pdu.PCAcceptance},
 		{"JPEG 2000 alone is still accepted, to be stored", []string{tsJ2KLossless}, tsJ2KLossless, pdu.PCAcceptance},
 		{"equal ranks keep the peer's order", []string{tsJPEGLL, tsJPEGLS}, tsJPEGLL, pdu.PCAcceptance},
 		{"an unknown syntax alone is refused", []string{"1.2.3.4.5.6"}, ImplicitVRLittleEndian, pdu.PCTransferSyntaxesNotSupported},
@@ -57,7 +57,7 @@ func TestNegotiatePrefersSyntaxesTheAuditDecodes(t *testing.T) {
 
 func TestDecodable(t *testing.T) {
 	for ts, want := range map[string]bool{
-		ExplicitVRLittleEndian: true, ImplicitVRLittleEndian: true, DeflatedExplicitVRLittleEndian: true, ExplicitVRBigEndian: true,
+		ExplicitVRLittleEndian: true, ImplicitVRLittleEndian: true, deflatedExplicitVRLittleEndian: true, explicitVRBigEndian: true,
 		tsRLE: true, tsJPEGBase: true, tsJPEGExt: true, tsJPEGLL: true, tsJPEGLLSV1: true, tsJPEGLS: true, tsJPEGLSNear: true,
 		tsJ2KLossless: false, tsJ2K: false, tsMPEG2: false,
 	} {

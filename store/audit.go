@@ -92,12 +92,12 @@ func (s *Store) auditUpdate(fn func(tx *bolt.Tx) error) error {
 	})
 }
 
-// MarkPending records that an instance of the series was committed at
+// markPending records that an instance of the series was committed at
 // at: the series waits for an audit. An older time than the one recorded
 // changes nothing. Put and Reconcile mark the series of every instance
 // they index in the same transaction (linkVersion), so a caller needs
 // this only for series the store did not receive itself.
-func (s *Store) MarkPending(seriesUID, studyUID string, at time.Time) error {
+func (s *Store) markPending(seriesUID, studyUID string, at time.Time) error {
 	return s.auditUpdate(func(tx *bolt.Tx) error {
 		return markPending(tx, seriesUID, studyUID, at)
 	})

@@ -11,13 +11,13 @@ import (
 func TestPendingSeriesSurviveReopenAndClearOnlyWhenNothingNewerArrived(t *testing.T) {
 	s, opts := newTestStore(t)
 	t0 := time.Date(2025, 3, 4, 9, 30, 0, 0, time.UTC)
-	if err := s.MarkPending("1.2.3.1", "1.2.3", t0); err != nil {
+	if err := s.markPending("1.2.3.1", "1.2.3", t0); err != nil {
 		t.Fatal(err)
 	}
-	if err := s.MarkPending("1.2.3.1", "1.2.3", t0.Add(-time.Second)); err != nil {
+	if err := s.markPending("1.2.3.1", "1.2.3", t0.Add(-time.Second)); err != nil {
 		t.Fatal(err)
 	}
-	if err := s.MarkPending("1.2.3.2", "1.2.3", t0.Add(time.Second)); err != nil {
+	if err := s.markPending("1.2.3.2", "1.2.3", t0.Add(time.Second)); err != nil {
 		t.Fatal(err)
 	}
 	s = reopen(t, s, opts)

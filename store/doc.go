@@ -19,8 +19,9 @@
 // make them, and they are harmless in a path.
 //
 // Each instance file is a complete Part 10 file (PS3.10 7.1): a 128-byte
-// zero preamble, "DICM", File Meta Information written here in Explicit VR
-// Little Endian, then the data set exactly as it arrived on the
+// zero preamble, "DICM", File Meta Information in Explicit VR Little
+// Endian written by scp/part10 (a leaf package of the standard library
+// alone), then the data set exactly as it arrived on the
 // association, byte for byte. The offset where the data set begins is kept
 // in the index (Instance.DataSetOffset), so a reader can stream the data
 // set without parsing the meta.
@@ -88,7 +89,7 @@
 // buckets ("findings", "measures", "daily") beside these. Adding a bucket
 // is compatible with older readers; changing what an existing key or
 // record means requires raising schemaVersion, and Open refuses an index
-// whose version is newer than the code (ErrSchema).
+// whose version is newer than the code (errSchema).
 //
 // # Startup and maintenance
 //

@@ -67,7 +67,7 @@ func TestDuplicates(t *testing.T) {
 	}
 
 	t.Run("every version is recorded with its time, size, hash and calling AE", func(t *testing.T) {
-		vs, err := s.InstanceVersions(a.SOP)
+		vs, err := s.instanceVersions(a.SOP)
 		if err != nil {
 			t.Fatal(err)
 		}

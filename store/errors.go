@@ -17,17 +17,17 @@ var (
 	// the index open for writing, so Open gave up after lockTimeout.
 	ErrLocked = errors.New("store: index is locked by another store")
 
-	// ErrSchema means the index was written by a newer dwiaudit (its schema
+	// errSchema means the index was written by a newer dwiaudit (its schema
 	// version is above schemaVersion), or is not a dwiaudit index.
-	ErrSchema = errors.New("store: unsupported index schema")
+	errSchema = errors.New("store: unsupported index schema")
 
 	// ErrNoIndex means a read-only Open found no index.db in the data
 	// folder: nothing was ever stored there.
 	ErrNoIndex = errors.New("store: no index in data folder")
 
-	// ErrNoDescribe means a writable Store was opened without
+	// errNoDescribe means a writable Store was opened without
 	// Options.Describe, which Put and Reconcile need.
-	ErrNoDescribe = errors.New("store: Options.Describe is required")
+	errNoDescribe = errors.New("store: Options.Describe is required")
 
 	// ErrInvalidUID means a UID that would become part of a path (SOP
 	// instance, study, series) or of the file meta (SOP class, transfer
@@ -47,13 +47,13 @@ var (
 	// ErrNotFound means no study, series or instance has that UID.
 	ErrNotFound = errors.New("store: not found")
 
-	// ErrPruned means the instance is indexed but its file was removed by
+	// errPruned means the instance is indexed but its file was removed by
 	// Prune after the retention period.
-	ErrPruned = errors.New("store: instance file pruned")
+	errPruned = errors.New("store: instance file pruned")
 
-	// ErrMissingFile means the instance is indexed but its file is gone
+	// errMissingFile means the instance is indexed but its file is gone
 	// for another reason (removed by hand, lost with a disk).
-	ErrMissingFile = errors.New("store: instance file missing")
+	errMissingFile = errors.New("store: instance file missing")
 
 	// ErrDailyListExists means a day already has a frozen daily list;
 	// it is kept, never replaced.

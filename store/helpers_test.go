@@ -256,12 +256,7 @@ func newTestStore(t testing.TB, mods ...func(*Options)) (*Store, Options) {
 	for _, m := range mods {
 		m(&opts)
 	}
-	s, err := Open(opts)
-	if err != nil {
-		t.Fatalf("Open: %v", err)
-	}
-	t.Cleanup(func() { s.Close() })
-	return s, opts
+	return openTestStore(t, opts), opts
 }
 
 // reopen closes s and opens its folder again with opts.
@@ -270,12 +265,20 @@ func reopen(t testing.TB, s *Store, opts Options) *Store {
 	if err := s.Close(); err != nil {
 		t.Fatalf("Close: %v", err)
 	}
-	s2, err := Open(opts)
+	return openTestStore(t, opts)
+}
+
+// openTestStore opens a Store with opts and closes it when the test ends.
+// It is storetest.Open for the store's own tests, which cannot import
+// storetest (it imports store).
+func openTestStore(t testing.TB, opts Options) *Store {
+	t.Helper()
+	s, err := Open(opts)
 	if err != nil {
-		t.Fatalf("reopen: %v", err)
+		t.Fatalf("Open %s: %v", opts.Dir, err)
 	}
-	t.Cleanup(func() { s2.Close() })
-	return s2
+	t.Cleanup(func() { s.Close() })
+	return s
 }
 
 // mustPut stores ti and fails the test on error.

@@ -224,7 +224,7 @@ func initSchema(tx *bolt.Tx) error {
 		empty := true
 		_ = tx.ForEach(func([]byte, *bolt.Bucket) error { empty = false; return nil })
 		if !empty {
-			return fmt.Errorf("%w: index has buckets but no schema version", ErrSchema)
+			return fmt.Errorf("%w: index has buckets but no schema version", errSchema)
 		}
 		for _, name := range allBuckets {
 			if _, err := tx.CreateBucket(name); err != nil {
@@ -248,14 +248,14 @@ func initSchema(tx *bolt.Tx) error {
 func checkSchema(tx *bolt.Tx) error {
 	meta := tx.Bucket(bucketMeta)
 	if meta == nil {
-		return fmt.Errorf("%w: no schema version", ErrSchema)
+		return fmt.Errorf("%w: no schema version", errSchema)
 	}
 	v, err := strconv.Atoi(string(meta.Get(keySchema)))
 	if err != nil {
-		return fmt.Errorf("%w: unreadable schema version %q", ErrSchema, meta.Get(keySchema))
+		return fmt.Errorf("%w: unreadable schema version %q", errSchema, meta.Get(keySchema))
 	}
 	if v > schemaVersion {
-		return fmt.Errorf("%w: index schema %d is newer than this program's %d", ErrSchema, v, schemaVersion)
+		return fmt.Errorf("%w: index schema %d is newer than this program's %d", errSchema, v, schemaVersion)
 	}
 	return nil
 }

@@ -44,7 +44,7 @@ type pruneTarget struct {
 
 // Prune removes instance files received before Now()-Retention. Their
 // records stay, marked Pruned, so that findings and measures keep their
-// context; OpenInstance then gives ErrPruned. Series and study folders
+// context; OpenInstance then gives errPruned. Series and study folders
 // left empty are removed. With Retention 0 it does nothing.
 func (s *Store) Prune(ctx context.Context) (PruneReport, error) {
 	var rep PruneReport

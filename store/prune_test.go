@@ -50,7 +50,7 @@ func TestPrune(t *testing.T) {
 			if err != nil || !in.Pruned || in.Missing {
 				t.Errorf("Instance = %+v, %v; want Pruned", in, err)
 			}
-			if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, ErrPruned) {
+			if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, errPruned) {
 				t.Errorf("OpenInstance = %v, want ErrPruned", err)
 			}
 		}

@@ -178,12 +178,10 @@ func (s *Store) receive(ctx context.Context, req PutRequest, data io.Reader) (p 
 		}
 	}()
 
-	meta := encodeFileMeta(fileMeta{
-		SOPClassUID:       req.SOPClassUID,
-		SOPInstanceUID:    req.SOPInstanceUID,
-		TransferSyntaxUID: req.TransferSyntaxUID,
-		SourceAETitle:     req.CallingAETitle,
-	})
+	meta, err := encodeFileMeta(req.SOPClassUID, req.SOPInstanceUID, req.TransferSyntaxUID, req.CallingAETitle)
+	if err != nil {
+		return nil, err
+	}
 	h := sha256.New()
 	n, err := s.copyData(ctx, f, meta, h, data)
 	if err != nil {

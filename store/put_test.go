@@ -43,8 +43,7 @@ func (l *eventLog) index(kind, path string) int {
 func TestPutOrdersItsDurabilitySteps(t *testing.T) {
 	log := &eventLog{}
 	ti := testInstance{SOP: uid(1, 1), InstanceNumber: 1, Payload: 300 << 10}
-	want := append(encodeFileMeta(fileMeta{SOPClassUID: mrImageStorage, SOPInstanceUID: ti.SOP,
-		TransferSyntaxUID: explicitVRLE, SourceAETitle: "OSTMIRE_MR1"}), ti.dataSet()...)
+	want := append(mustFileMeta(t, ti.SOP, explicitVRLE, "OSTMIRE_MR1"), ti.dataSet()...)
 	var describeErr, closeErr error
 	s, opts := newTestStore(t, func(o *Options) {
 		o.hooks = &hooks{

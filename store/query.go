@@ -270,9 +270,9 @@ func (s *Store) Instance(sopUID string) (Instance, error) {
 	return out, err
 }
 
-// InstanceVersions returns every recorded version of a SOP instance,
+// instanceVersions returns every recorded version of a SOP instance,
 // oldest first; the last is current.
-func (s *Store) InstanceVersions(sopUID string) ([]Instance, error) {
+func (s *Store) instanceVersions(sopUID string) ([]Instance, error) {
 	var out []Instance
 	err := s.view(func(tx *bolt.Tx) error {
 		r, err := s.record(tx, sopUID)
@@ -287,16 +287,16 @@ func (s *Store) InstanceVersions(sopUID string) ([]Instance, error) {
 	return out, err
 }
 
-// DataSetOffset returns where the data set begins in the current file of
+// dataSetOffset returns where the data set begins in the current file of
 // a SOP instance: a reader can seek there and stream the data set as it
 // was received.
-func (s *Store) DataSetOffset(sopUID string) (int64, error) {
+func (s *Store) dataSetOffset(sopUID string) (int64, error) {
 	in, err := s.Instance(sopUID)
 	return in.DataSetOffset, err
 }
 
 // OpenInstance opens the current Part 10 file of a SOP instance. It gives
-// ErrPruned after the retention period and ErrMissingFile if the file is
+// errPruned after the retention period and errMissingFile if the file is
 // gone otherwise.
 func (s *Store) OpenInstance(sopUID string) (io.ReadCloser, error) {
 	in, err := s.Instance(sopUID)
@@ -305,13 +305,13 @@ func (s *Store) OpenInstance(sopUID string) (io.ReadCloser, error) {
 	}
 	switch {
 	case in.Pruned:
-		return nil, fmt.Errorf("%w: %s", ErrPruned, in.Path)
+		return nil, fmt.Errorf("%w: %s", errPruned, in.Path)
 	case in.Missing:
-		return nil, fmt.Errorf("%w: %s", ErrMissingFile, in.Path)
+		return nil, fmt.Errorf("%w: %s", errMissingFile, in.Path)
 	}
 	f, err := os.Open(s.abs(in.Path))
 	if errors.Is(err, fs.ErrNotExist) {
-		return nil, fmt.Errorf("%w: %s", ErrMissingFile, in.Path)
+		return nil, fmt.Errorf("%w: %s", errMissingFile, in.Path)
 	}
 	if err != nil {
 		return nil, fmt.Errorf("store: opening instance: %w", err)

@@ -120,7 +120,7 @@ func TestReadOnly(t *testing.T) {
 
 func TestOpenRefuses(t *testing.T) {
 	t.Run("a writable store without Describe", func(t *testing.T) {
-		if _, err := Open(Options{Dir: t.TempDir()}); !errors.Is(err, ErrNoDescribe) {
+		if _, err := Open(Options{Dir: t.TempDir()}); !errors.Is(err, errNoDescribe) {
 			t.Errorf("Open = %v, want ErrNoDescribe", err)
 		}
 	})
@@ -131,11 +131,11 @@ func TestOpenRefuses(t *testing.T) {
 			t.Fatal(err)
 		}
 		s.Close()
-		if _, err := Open(opts); !errors.Is(err, ErrSchema) {
+		if _, err := Open(opts); !errors.Is(err, errSchema) {
 			t.Errorf("Open = %v, want ErrSchema", err)
 		}
 		opts.ReadOnly = true
-		if _, err := Open(opts); !errors.Is(err, ErrSchema) {
+		if _, err := Open(opts); !errors.Is(err, errSchema) {
 			t.Errorf("read-only Open = %v, want ErrSchema", err)
 		}
 	})

@@ -16,6 +16,8 @@ import (
 	"time"
 
 	bolt "go.etcd.io/bbolt"
+
+	"dwiaudit/scp/part10"
 )
 
 // reconcileChunk is how many records one Reconcile transaction writes:
@@ -118,7 +120,7 @@ func (s *Store) removeStaleTemps() (int, error) {
 type orphan struct {
 	rel         string
 	nameVersion int // from the file name, 0 if the name is not ours
-	meta        fileMeta
+	meta        part10.Meta
 	offset      int64
 	size        int64
 	sha256      string
@@ -185,11 +187,11 @@ func (s *Store) indexOrphans(ctx context.Context, rep *ReconcileReport) error {
 			rep.Unreadable = append(rep.Unreadable, rel)
 			return nil
 		}
-		if ok && o.meta.SOPInstanceUID != sop {
+		if ok && o.meta.MediaStorageSOPInstanceUID != sop {
 			ok, version = false, 0 // named for another instance: trust the meta
 		}
 		if !ok {
-			known, err := s.knowsPath(o.meta.SOPInstanceUID, rel)
+			known, err := s.knowsPath(o.meta.MediaStorageSOPInstanceUID, rel)
 			if err != nil || known {
 				return err
 			}
@@ -232,8 +234,8 @@ func (s *Store) inspect(abs, rel string) (orphan, error) {
 		return orphan{}, err
 	}
 	for _, c := range [][2]string{
-		{"SOP instance UID", meta.SOPInstanceUID},
-		{"SOP class UID", meta.SOPClassUID},
+		{"SOP instance UID", meta.MediaStorageSOPInstanceUID},
+		{"SOP class UID", meta.MediaStorageSOPClassUID},
 		{"transfer syntax UID", meta.TransferSyntaxUID},
 	} {
 		if err := checkUID(c[0], c[1]); err != nil {
@@ -277,7 +279,7 @@ func (s *Store) inspect(abs, rel string) (orphan, error) {
 // number from the file name when free (so a file renamed just before a
 // crash takes the number Put gave it), else takes the next one.
 func indexOrphan(tx *bolt.Tx, o *orphan) error {
-	sop := o.meta.SOPInstanceUID
+	sop := o.meta.MediaStorageSOPInstanceUID
 	r, err := getInstance(tx, sop)
 	if err != nil {
 		return err
@@ -295,7 +297,7 @@ func indexOrphan(tx *bolt.Tx, o *orphan) error {
 	nv := versionRecord{
 		Version:             version,
 		Path:                o.rel,
-		SOPClassUID:         o.meta.SOPClassUID,
+		SOPClassUID:         o.meta.MediaStorageSOPClassUID,
 		TransferSyntaxUID:   o.meta.TransferSyntaxUID,
 		StudyInstanceUID:    o.attrs.StudyInstanceUID,
 		SeriesInstanceUID:   o.attrs.SeriesInstanceUID,
@@ -304,7 +306,7 @@ func indexOrphan(tx *bolt.Tx, o *orphan) error {
 		Size:                o.size,
 		DataSetOffset:       o.offset,
 		SHA256:              o.sha256,
-		CallingAETitle:      o.meta.SourceAETitle,
+		CallingAETitle:      o.meta.SourceApplicationEntityTitle,
 		ReceivedAt:          o.modTime,
 		Reindexed:           true,
 	}

@@ -106,7 +106,7 @@ func TestReconcile(t *testing.T) {
 		if err != nil || !in.Missing || in.Pruned {
 			t.Errorf("Instance = %+v, %v; want Missing", in, err)
 		}
-		if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, ErrMissingFile) {
+		if _, err := s.OpenInstance(ti.SOP); !errors.Is(err, errMissingFile) {
 			t.Errorf("OpenInstance = %v, want ErrMissingFile", err)
 		}
 		if in, _ := s.Instance(keep.SOPInstanceUID); in.Missing {
@@ -179,8 +179,7 @@ func TestReconcile(t *testing.T) {
 		v2 := v1
 		v2.Seed = 9
 		rel := strings.TrimSuffix(ref.Path, ".dcm") + ".v2.dcm"
-		data := append(encodeFileMeta(fileMeta{SOPClassUID: mrImageStorage, SOPInstanceUID: v2.SOP,
-			TransferSyntaxUID: explicitVRLE, SourceAETitle: "OSTMIRE_MR1"}), v2.dataSet()...)
+		data := append(mustFileMeta(t, v2.SOP, explicitVRLE, "OSTMIRE_MR1"), v2.dataSet()...)
 		if err := os.WriteFile(filepath.Join(opts.Dir, rel), data, 0o600); err != nil {
 			t.Fatal(err)
 		}

@@ -104,7 +104,7 @@ func Open(opts Options) (*Store, error) {
 		return nil, errors.New("store: Options.Dir is empty")
 	}
 	if !opts.ReadOnly && opts.Describe == nil {
-		return nil, ErrNoDescribe
+		return nil, errNoDescribe
 	}
 	dir := filepath.Clean(opts.Dir)
 	s := &Store{

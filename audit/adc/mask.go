@@ -201,7 +201,7 @@ func maskThreshold(filtered Volume3, opt MaskOptions) float32 {
 	}
 	bg := cornerPixels(filtered.Rows, filtered.Cols, images)
 	if len(bg) == 0 {
-		return Otsu(filtered.Data)
+		return otsu(filtered.Data)
 	}
 	level := PercentileInPlace(bg, 50)
 	for i, v := range bg {
@@ -272,12 +272,12 @@ func median9(p *[9]float32) float32 {
 	return p[4]
 }
 
-// Otsu returns the threshold that maximises the between-class variance
+// otsu returns the threshold that maximises the between-class variance
 // of the histogram of the non-NaN values (Otsu, IEEE SMC 1979; from
 // memory), over otsuBins bins spanning their range. Values above the
 // returned threshold form the bright class. NaN when fewer than two
 // distinct values exist.
-func Otsu(vals []float32) float32 {
+func otsu(vals []float32) float32 {
 	lo, hi := float32(math.Inf(1)), float32(math.Inf(-1))
 	for _, v := range vals {
 		if v != v {

@@ -138,7 +138,7 @@ func TestOtsuSeparatesTwoLevels(t *testing.T) {
 	for i := range 1000 {
 		vals = append(vals, float32(10+i%5), float32(500+i%7))
 	}
-	if th := Otsu(vals); !(th > 14 && th < 500) {
+	if th := otsu(vals); !(th > 14 && th < 500) {
 		t.Errorf("Otsu threshold = %g, want between the classes 10..14 and 500..506", th)
 	}
 }

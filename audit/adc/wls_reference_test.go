@@ -8,11 +8,9 @@ import (
 	"os/exec"
 	"path/filepath"
 	"testing"
-)
 
-// referencePython is the interpreter of the Debian package python3-numpy,
-// not whatever python3 comes first on PATH.
-const referencePython = "/usr/bin/python3"
+	"dwiaudit/internal/testtool"
+)
 
 // TestFitWLSMatchesNumpyOnNoisyData compares FitWLS, voxel by voxel, with
 // an independent weighted least-squares fit in numpy
@@ -22,14 +20,7 @@ const referencePython = "/usr/bin/python3"
 // must agree to 1e-5 relative; the same data fitted unweighted must
 // differ from them, or the test could not tell the weights apart.
 func TestFitWLSMatchesNumpyOnNoisyData(t *testing.T) {
-	out, err := exec.Command(referencePython, "-c", "import numpy").CombinedOutput()
-	if err != nil {
-		msg := "the numpy reference needs " + referencePython + " with numpy: install the Debian package python3-numpy (" + err.Error() + ": " + string(out) + ")"
-		if os.Getenv("CI") == "true" {
-			t.Fatal(msg)
-		}
-		t.Skip(msg)
-	}
+	referencePython := testtool.Python(t, "numpy")
 
 	// A brain-like multi-b protocol with Gaussian noise of σ = 40 on
 	// S0 = 1000 (SNR 25): invented test signals, the model

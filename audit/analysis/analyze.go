@@ -14,11 +14,11 @@ import (
 // compressed pixels, one b-value) is not an error: it is a finding,
 // reported in Result.CannotCompute.
 var (
-	// ErrInvalidConfig: an AnalyzeConfig field is out of range; the
+	// errInvalidConfig: an AnalyzeConfig field is out of range; the
 	// message names every field at fault.
-	ErrInvalidConfig = errors.New("audit: invalid analysis configuration")
-	// ErrNoSeries: Analyze was given a nil series.
-	ErrNoSeries = errors.New("audit: no series")
+	errInvalidConfig = errors.New("audit: invalid analysis configuration")
+	// errNoSeries: Analyze was given a nil series.
+	errNoSeries = errors.New("audit: no series")
 )
 
 // AnalyzeConfig tunes Analyze. DefaultAnalyzeConfig gives the audit's
@@ -75,7 +75,7 @@ func DefaultAnalyzeConfig() AnalyzeConfig {
 func (c AnalyzeConfig) Validate() error {
 	var errs []error
 	bad := func(field string, v any, want string) {
-		errs = append(errs, fmt.Errorf("%w: %s = %v, want %s", ErrInvalidConfig, field, v, want))
+		errs = append(errs, fmt.Errorf("%w: %s = %v, want %s", errInvalidConfig, field, v, want))
 	}
 	positive := func(v float64) bool { return v > 0 && !math.IsInf(v, 0) }
 	if !positive(c.ParenchymaADCMax) {
@@ -94,7 +94,7 @@ func (c AnalyzeConfig) Validate() error {
 		bad("ReferenceBMax", c.ReferenceBMax, "a b-value >= 0 in s/mm²")
 	}
 	if err := c.Mask.Validate(); err != nil {
-		errs = append(errs, fmt.Errorf("%w: Mask: %w", ErrInvalidConfig, err))
+		errs = append(errs, fmt.Errorf("%w: Mask: %w", errInvalidConfig, err))
 	}
 	return errors.Join(errs...)
 }
@@ -240,7 +240,7 @@ type bGroup struct {
 // errors are for a nil series and an invalid cfg.
 func Analyze(s *dwi.Series, cfg AnalyzeConfig) (*Result, error) {
 	if s == nil {
-		return nil, ErrNoSeries
+		return nil, errNoSeries
 	}
 	if err := cfg.Validate(); err != nil {
 		return nil, err

@@ -231,13 +231,13 @@ func TestAnalyzeCannotCompute(t *testing.T) {
 }
 
 func TestAnalyzeErrors(t *testing.T) {
-	if _, err := Analyze(nil, DefaultAnalyzeConfig()); !errors.Is(err, ErrNoSeries) {
-		t.Errorf("Analyze(nil) error = %v, want ErrNoSeries", err)
+	if _, err := Analyze(nil, DefaultAnalyzeConfig()); !errors.Is(err, errNoSeries) {
+		t.Errorf("Analyze(nil) error = %v, want errNoSeries", err)
 	}
 	cfg := AnalyzeConfig{CSFPercentile: 120, ParenchymaADCMax: -1, FreeWaterCeiling: math.NaN(), SignalFloor: -1, ReferenceBMax: -5}
 	err := cfg.Validate()
-	if !errors.Is(err, ErrInvalidConfig) {
-		t.Fatalf("Validate error = %v, want ErrInvalidConfig", err)
+	if !errors.Is(err, errInvalidConfig) {
+		t.Fatalf("Validate error = %v, want errInvalidConfig", err)
 	}
 	for _, field := range []string{"ParenchymaADCMax", "CSFPercentile", "FreeWaterCeiling", "SignalFloor", "ReferenceBMax", "Mask"} {
 		if !strings.Contains(err.Error(), field) {

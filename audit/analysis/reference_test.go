@@ -10,28 +10,8 @@ import (
 	"testing"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/internal/testtool"
 )
-
-// referencePython is the interpreter of the Debian packages
-// python3-pydicom and python3-numpy. Not the python3 on PATH, which may
-// be another installation without them.
-const referencePython = "/usr/bin/python3"
-
-// needReferencePython fails under CI=true and skips elsewhere when the
-// interpreter or its modules are missing (house rules: never skip
-// silently, name the packages to install).
-func needReferencePython(t *testing.T) {
-	t.Helper()
-	out, err := exec.Command(referencePython, "-c", "import pydicom, numpy").CombinedOutput()
-	if err == nil {
-		return
-	}
-	msg := "the Python reference needs " + referencePython + " with pydicom and numpy: install the Debian packages python3-pydicom and python3-numpy (" + err.Error() + ": " + string(out) + ")"
-	if os.Getenv("CI") == "true" {
-		t.Fatal(msg)
-	}
-	t.Skip(msg)
-}
 
 // referenceOutput is the JSON testdata/adc_reference.py prints.
 type referenceOutput struct {
@@ -49,7 +29,7 @@ type referenceOutput struct {
 // float32, which costs at most 6e-8 relative, about 2e-10 mm²/s at the
 // ADC of free water: far inside the bound.
 func TestADCMatchesPythonReference(t *testing.T) {
-	needReferencePython(t)
+	referencePython := testtool.Python(t, "pydicom", "numpy")
 	// The cases with a lower b-value above 0 (b50/b800, a body protocol,
 	// and b100/b1000) are the ones that tell ln(S0/Sb)/(b_high - b_low)
 	// from ln(S0/Sb)/b_high: with b_low = 50 and b_high = 800 the two

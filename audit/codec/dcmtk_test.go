@@ -5,6 +5,8 @@ import (
 	"os"
 	"path/filepath"
 	"testing"
+
+	"dwiaudit/internal/testtool"
 )
 
 // The tests in this file check the decoders against DCMTK: native
@@ -178,10 +180,10 @@ func TestJPEGLSMatchesDCMTK(t *testing.T) {
 
 // TestWriteSeeds writes the fuzz seeds of FuzzJPEG and FuzzJPEGLS: small
 // invented pictures encoded by DCMTK with each process. It runs only with
-// DWIAUDIT_UPDATE_SEEDS=1.
+// -update (`go test ./audit/codec -run TestWriteSeeds -update`).
 func TestWriteSeeds(t *testing.T) {
-	if os.Getenv("DWIAUDIT_UPDATE_SEEDS") != "1" {
-		t.Skip("set DWIAUDIT_UPDATE_SEEDS=1 to rewrite testdata/seeds with DCMTK")
+	if !testtool.Update() {
+		t.Skip("run with -update to rewrite testdata/seeds with DCMTK")
 	}
 	dir := t.TempDir()
 	pics := map[string]Image{

@@ -13,7 +13,7 @@ import (
 // Fuzz targets. FuzzRLE is seeded from frames encoded by packBits below;
 // FuzzJPEG and FuzzJPEGLS from the frames in testdata/seeds, which DCMTK
 // encoded from this package's own invented pictures
-// (DWIAUDIT_UPDATE_SEEDS=1 go test -run TestWriteSeeds rewrites them).
+// (`go test ./audit/codec -run TestWriteSeeds -update` rewrites them).
 // Every target asserts that a decode either fails with one of the
 // package's errors or returns a frame of exactly the declared size.
 

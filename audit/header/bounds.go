@@ -10,6 +10,8 @@ import (
 	"math"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
+
+	"dwiaudit/scp/part10"
 )
 
 // Limits of the bounds walk.
@@ -116,16 +118,19 @@ func (w *walker) tag() (uint32, error) {
 	return uint32(g)<<16 | uint32(e), nil
 }
 
-// longLengthVRs are the VRs whose explicit header has two reserved bytes
-// and a 32-bit length, as the data-set library reads them (its readVL;
-// PS3.5 7.1.2 Table 7.1-1 adds OV, SV and UV, which the library reads
-// with a 16-bit length; mirroring the library is what keeps it safe).
+// longLengthVR reports whether an explicit header with vr has two reserved
+// bytes and a 32-bit length as the data-set library reads it (its readVL):
+// the PS3.5 7.1.2 set, part10.LongLengthVR, less OV, SV and UV, which the
+// library reads with a 16-bit length, plus "NA", its name for a missing
+// VR. Mirroring the library, not the standard, is what keeps it safe.
 func longLengthVR(vr string) bool {
 	switch vr {
-	case "NA", "OB", "OD", "OF", "OL", "OW", "SQ", "UN", "UC", "UR", "UT":
+	case "NA":
 		return true
+	case "OV", "SV", "UV":
+		return false
 	}
-	return false
+	return part10.LongLengthVR(vr)
 }
 
 // vrOf is the VR the library assumes for t in an implicit VR data set:

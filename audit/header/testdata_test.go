@@ -1,7 +1,6 @@
 package header
 
 import (
-	"bytes"
 	"errors"
 	"os"
 	"path/filepath"
@@ -10,11 +9,8 @@ import (
 	"testing"
 
 	"dwiaudit/audit/dwi"
+	"dwiaudit/internal/testtool"
 )
-
-// writeTestdataEnv, set to 1, makes TestTestdataMatchesItsGenerator
-// rewrite testdata/ from the generators below instead of comparing.
-const writeTestdataEnv = "DWIAUDIT_WRITE_TESTDATA"
 
 // testdataOptions load pixels and name the private source the testdata
 // file with a private b-value needs (an invented creator, PS3.5 7.8.1).
@@ -67,24 +63,12 @@ func testdataFiles() []testdataFile {
 	}
 }
 
+// TestTestdataMatchesItsGenerator keeps testdata/ what the generators
+// above write; `go test ./audit/dwi -update` rewrites it.
 func TestTestdataMatchesItsGenerator(t *testing.T) {
-	write := os.Getenv(writeTestdataEnv) == "1"
 	for _, td := range testdataFiles() {
 		t.Run(td.name+" is what its generator writes", func(t *testing.T) {
-			want := td.make(t)
-			path := filepath.Join("testdata", td.name)
-			if write {
-				if err := os.WriteFile(path, want, 0o644); err != nil {
-					t.Fatal(err)
-				}
-			}
-			got, err := os.ReadFile(path)
-			if err != nil {
-				t.Fatalf("%v (run with %s=1 to write testdata/)", err, writeTestdataEnv)
-			}
-			if !bytes.Equal(got, want) {
-				t.Errorf("testdata/%s differs from its generator; run with %s=1 to rewrite it", td.name, writeTestdataEnv)
-			}
+			testtool.Golden(t, filepath.Join("testdata", td.name), td.make(t))
 		})
 	}
 }

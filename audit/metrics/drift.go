@@ -138,7 +138,7 @@ func (m *Metrics) observeDrift(scanner string, rec store.AuditRecord) {
 	d := &m.drift
 	at := rec.AuditTime
 	unix := float64(at.UnixNano()) / 1e9
-	if m.labels.IsPhantom(ms.Protocol) {
+	if m.labels.isPhantom(ms.Protocol) {
 		ph := m.labels.Phantom(ms.Protocol)
 		d.set(d.phantomAt, scanner, ph, at, &unix, 1)
 		d.set(d.phantomADC, scanner, ph, at, ms.PhantomADC, mm2PerSecond)

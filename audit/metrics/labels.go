@@ -107,9 +107,9 @@ func (l *Labels) Protocol(s string) string { return configured(l.protocols, s) }
 // Phantom is the label of a phantom profile name, as Protocol.
 func (l *Labels) Phantom(s string) string { return configured(l.phantoms, s) }
 
-// IsPhantom reports whether s names a configured phantom profile (the
+// isPhantom reports whether s names a configured phantom profile (the
 // audit engine puts the profile's name where a protocol's would be).
-func (l *Labels) IsPhantom(s string) bool { return l.phantoms[s] }
+func (l *Labels) isPhantom(s string) bool { return l.phantoms[s] }
 
 // Rule is the label of a rule ID: known IDs as they are, else "other".
 func (l *Labels) Rule(s string) string {

@@ -18,7 +18,7 @@ import (
 	"sync"
 	"testing"
 
-	"dwiaudit/scp/scptest"
+	"dwiaudit/internal/testtool"
 )
 
 // Small studies keep the tests fast: 64x64 pixels, 6 slices.
@@ -51,23 +51,6 @@ func write(t testing.TB, o Options) *Study {
 		t.Fatal(err)
 	}
 	return st
-}
-
-// python is /usr/bin/python3 with pydicom and numpy (Debian python3-pydicom
-// and python3-numpy). The python3 on PATH may be another installation
-// without them. Missing, it fails the test under CI=true and skips it
-// elsewhere, as scptest.NeedTool does.
-func python(t testing.TB) string {
-	t.Helper()
-	const py = "/usr/bin/python3"
-	if out, err := exec.Command(py, "-c", "import pydicom, numpy").CombinedOutput(); err != nil {
-		msg := fmt.Sprintf("%s cannot import pydicom and numpy (%v: %s): install Debian packages python3-pydicom python3-numpy", py, err, bytes.TrimSpace(out))
-		if os.Getenv("CI") == "true" {
-			t.Fatal(msg + " (CI=true: CI must install them)")
-		}
-		t.Skip(msg)
-	}
-	return py
 }
 
 func TestPhantomCases(t *testing.T) {
@@ -186,7 +169,7 @@ func TestPhantomFilesAreValidDICOM(t *testing.T) {
 	studies := writeEveryCase(t, root)
 
 	t.Run("dciodvfy finds no error in any file", func(t *testing.T) {
-		tool := scptest.NeedTool(t, "dciodvfy", "dicom3tools")
+		tool := testtool.Path(t, "dciodvfy", "dicom3tools")
 		allowed := classicWarnings()
 		type job struct {
 			path  string
@@ -238,7 +221,7 @@ func TestPhantomFilesAreValidDICOM(t *testing.T) {
 	})
 
 	t.Run("pydicom reads every file with the frames, pixels and b-values written", func(t *testing.T) {
-		py := python(t)
+		py := testtool.Python(t, "pydicom", "numpy")
 		out, err := exec.Command(py, "testdata/read_all.py", root).Output()
 		if err != nil {
 			t.Fatalf("read_all.py: %v", err)

@@ -21,20 +21,20 @@
 //     on one scale, and an artifact on a few slices does not move it;
 //     values beyond the window are clipped.
 //   - eADC: grey, 0 black to 1 white (Sb/S0 has no unit).
-//   - ADC: the viridis colour scale (viridis.go) from 0 to ADCMax,
+//   - ADC: the viridis colour scale (viridis.go) from 0 to adcMax,
 //     3.5e-3 mm²/s, clipped at both ends; the colour bar under the panel
 //     is labelled in 1e-3 mm²/s.
-//   - eADC and ADC outside the tissue mask are black (NoTissueColor):
+//   - eADC and ADC outside the tissue mask are black (noTissueColor):
 //     a ratio of background noise means nothing. Inside the mask a voxel
 //     whose value is undefined (NaN: a signal at or below zero, a slice
-//     the volume lacks) is dark grey (UndefinedColor) on every panel.
+//     the volume lacks) is dark grey (undefinedColor) on every panel.
 //   - Finding regions: OutlineColor, pure magenta #FF00FF, a colour no
-//     grey and no viridis entry has, drawn OutlineWidth pixels wide just
+//     grey and no viridis entry has, drawn outlineWidth pixels wide just
 //     outside the region's box, so the voxels in it stay visible.
 //
 // Small matrices are enlarged by an integer factor (nearest neighbour,
 // no smoothing: one voxel stays one square) until a panel's longer side
-// is at least MinPanelPixels. Voxels are drawn square: with unequal row and
+// is at least minPanelPixels. Voxels are drawn square: with unequal row and
 // column spacing the picture is stretched along one axis, and the scale
 // bar, drawn along a row, measures with the column spacing. The picture
 // carries the series number, the slice index and position, a

@@ -10,9 +10,9 @@ var (
 	// ErrNoMaps: the series has no computed maps to draw (the
 	// computation did not run; the error says why).
 	ErrNoMaps = errors.New("preview: no computed maps")
-	// ErrSliceRange: the slice asked for is not on the series' slice
+	// errSliceRange: the slice asked for is not on the series' slice
 	// grid. Render returns a *SliceRangeError that wraps it.
-	ErrSliceRange = errors.New("preview: slice out of range")
+	errSliceRange = errors.New("preview: slice out of range")
 )
 
 // SliceRangeError says which slice was asked for and which exist.
@@ -23,9 +23,9 @@ type SliceRangeError struct {
 
 func (e *SliceRangeError) Error() string {
 	if e.Slices == 0 {
-		return fmt.Sprintf("%v: slice %d asked for, the series has no slices", ErrSliceRange, e.Slice)
+		return fmt.Sprintf("%v: slice %d asked for, the series has no slices", errSliceRange, e.Slice)
 	}
-	return fmt.Sprintf("%v: slice %d asked for, valid slices are 0..%d", ErrSliceRange, e.Slice, e.Slices-1)
+	return fmt.Sprintf("%v: slice %d asked for, valid slices are 0..%d", errSliceRange, e.Slice, e.Slices-1)
 }
 
-func (e *SliceRangeError) Unwrap() error { return ErrSliceRange }
+func (e *SliceRangeError) Unwrap() error { return errSliceRange }

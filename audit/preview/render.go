@@ -27,10 +27,10 @@ var (
 	// OutlineColor outlines finding regions: pure magenta, which no grey
 	// (R = G = B) and no viridis entry (G >= 1, R <= 253) can be.
 	OutlineColor = color.RGBA{0xFF, 0x00, 0xFF, 0xFF}
-	// NoTissueColor fills eADC and ADC voxels outside the tissue mask.
-	NoTissueColor = color.RGBA{0, 0, 0, 0xFF}
-	// UndefinedColor fills voxels whose value is undefined (NaN).
-	UndefinedColor = color.RGBA{0x30, 0x30, 0x30, 0xFF}
+	// noTissueColor fills eADC and ADC voxels outside the tissue mask.
+	noTissueColor = color.RGBA{0, 0, 0, 0xFF}
+	// undefinedColor fills voxels whose value is undefined (NaN).
+	undefinedColor = color.RGBA{0x30, 0x30, 0x30, 0xFF}
 
 	backgroundColor = color.RGBA{0x18, 0x18, 0x18, 0xFF}
 	textColor       = color.RGBA{0xE8, 0xE8, 0xE8, 0xFF}
@@ -39,40 +39,40 @@ var (
 
 // Scales and sizes.
 const (
-	// ADCMax (mm²/s) is the top of the ADC colour scale: a little above
+	// adcMax (mm²/s) is the top of the ADC colour scale: a little above
 	// free water at body temperature (3.04e-3, Holz 2000; DOMAIN.md) so
 	// CSF is inside the scale and only what no tissue reaches is clipped
 	// (the free-water ceiling is 3.4e-3, DOMAIN.md).
-	ADCMax = 3.5e-3
-	// ADCLegendUnit is the unit of the colour bar's labels, mm²/s.
-	ADCLegendUnit = 1e-3
+	adcMax = 3.5e-3
+	// adcLegendUnit is the unit of the colour bar's labels, mm²/s.
+	adcLegendUnit = 1e-3
 	// On the b0 and DWI panels zero signal is drawn black (or the
-	// WindowLow percentile of the tissue, if that is below zero:
-	// magnitude images have none), and WindowWhite times the median of
+	// windowLow percentile of the tissue, if that is below zero:
+	// magnitude images have none), and windowWhite times the median of
 	// the parenchyma white: the brain's typical signal sits at mid
 	// grey, with room above it for what is brighter (CSF on the b0, a
 	// lesion or an artifact). Percentiles are robust to a few extreme
 	// voxels and the median to an artifact covering up to half of the
 	// brain (common practice for display windows; the factor 2 is our
 	// choice).
-	WindowLow, WindowWhite = 1.0, 2.0
-	// MinWindowVoxels: a mask with fewer voxels (in the sample) does
+	windowLow, windowWhite = 1.0, 2.0
+	// minWindowVoxels: a mask with fewer voxels (in the sample) does
 	// not set a window; the next wider set of voxels does.
-	MinWindowVoxels = 64
-	// MinPanelPixels is the width a panel is enlarged to at least: a
+	minWindowVoxels = 64
+	// minPanelPixels is the width a panel is enlarged to at least: a
 	// 64x64 slice becomes 256 pixels (four pixels per voxel), about the
 	// size a technologist reads a slice at on a report page.
-	MinPanelPixels = 256
-	// MaxScale bounds the enlargement (a 16x16 matrix is already 256).
-	MaxScale = 16
-	// OutlineWidth is the width of a region's outline, in pixels.
-	OutlineWidth = 2
+	minPanelPixels = 256
+	// maxScale bounds the enlargement (a 16x16 matrix is already 256).
+	maxScale = 16
+	// outlineWidth is the width of a region's outline, in pixels.
+	outlineWidth = 2
 )
 
 // Layout, in pixels.
 const (
 	margin     = 12
-	gap        = 14 // between panels; more than OutlineWidth so outlines never touch a neighbour
+	gap        = 14 // between panels; more than outlineWidth so outlines never touch a neighbour
 	lineHeight = 18
 	headerH    = 24
 	titleH     = 22
@@ -117,16 +117,16 @@ type Panel struct {
 	Scale int
 }
 
-// Voxel returns the pixels of voxel (row, col) in the panel.
-func (p Panel) Voxel(row, col int) image.Rectangle {
+// voxel returns the pixels of voxel (row, col) in the panel.
+func (p Panel) voxel(row, col int) image.Rectangle {
 	x, y := p.Rect.Min.X+col*p.Scale, p.Rect.Min.Y+row*p.Scale
 	return image.Rect(x, y, x+p.Scale, y+p.Scale)
 }
 
-// Box returns the pixels of a box of voxels (row0, col0, row1, col1,
+// box returns the pixels of a box of voxels (row0, col0, row1, col1,
 // inclusive, as rules.Region.BoxPixels), clipped to the panel.
-func (p Panel) Box(box [4]int) image.Rectangle {
-	return p.Voxel(box[0], box[1]).Union(p.Voxel(box[2], box[3])).Intersect(p.Rect)
+func (p Panel) box(box [4]int) image.Rectangle {
+	return p.voxel(box[0], box[1]).Union(p.voxel(box[2], box[3])).Intersect(p.Rect)
 }
 
 // Picture is one rendered preview.
@@ -134,7 +134,7 @@ type Picture struct {
 	Image  *image.RGBA
 	Slice  int             // index on the series' slice grid, 0-based
 	Panels []Panel         // b0, DWI, eADC, ADC
-	Legend image.Rectangle // the ADC colour bar: left edge 0, right edge ADCMax
+	Legend image.Rectangle // the ADC colour bar: left edge 0, right edge adcMax
 	// Outlined lists the findings outlined (their rules, in order).
 	Outlined []string
 }
@@ -162,7 +162,7 @@ func NewRenderer() (*Renderer, error) {
 	if err != nil {
 		return nil, fmt.Errorf("preview: font: %w", err)
 	}
-	return &Renderer{font: f, viridis: NewViridis()}, nil
+	return &Renderer{font: f, viridis: newViridis()}, nil
 }
 
 // Viridis returns the renderer's ADC colour table.
@@ -234,12 +234,12 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 	}
 	defer face.Close()
 
-	scale := max(1, min(MaxScale, (MinPanelPixels+max(rows, cols)-1)/max(rows, cols)))
+	scale := max(1, min(maxScale, (minPanelPixels+max(rows, cols)-1)/max(rows, cols)))
 	pw, ph := cols*scale, rows*scale
-	// Each panel sits at the left of a slot at least MinPanelPixels
+	// Each panel sits at the left of a slot at least minPanelPixels
 	// wide, so that a narrow matrix (fewer columns than rows) still
 	// leaves room for the titles and keys.
-	slot := max(pw, MinPanelPixels)
+	slot := max(pw, minPanelPixels)
 	width := 2*margin + int(numPanels)*slot + (int(numPanels)-1)*gap
 	height := margin + headerH + titleH + ph + keysH + footerH + margin
 	img := image.NewRGBA(image.Rect(0, 0, width, height))
@@ -274,7 +274,7 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 	paint(img, pic.Panels[PanelDWI], rows, cols, func(i int) color.RGBA { return grey(trace[i], dLo, dHi) })
 	paint(img, pic.Panels[PanelEADC], rows, cols, func(i int) color.RGBA {
 		if !mask[i] {
-			return NoTissueColor
+			return noTissueColor
 		}
 		return grey(eadc[i], 0, 1)
 	})
@@ -282,11 +282,11 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 		v := adcs[i]
 		switch {
 		case !mask[i]:
-			return NoTissueColor
+			return noTissueColor
 		case v != v:
-			return UndefinedColor
+			return undefinedColor
 		}
-		return vir.At(float64(v) / ADCMax)
+		return vir.At(float64(v) / adcMax)
 	})
 
 	// Outlines last but one, text last: nothing covers an outline but
@@ -302,7 +302,7 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 			continue
 		}
 		for _, p := range pic.Panels {
-			outline(img, p.Box(box), p.Rect.Inset(-OutlineWidth))
+			outline(img, p.box(box), p.Rect.Inset(-outlineWidth))
 		}
 		if !slices.Contains(pic.Outlined, f.Rule) {
 			pic.Outlined = append(pic.Outlined, f.Rule)
@@ -332,13 +332,13 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 	keyTop := top + ph + 8
 	r.scaleBar(t, pic.Panels[PanelB0], res, keyTop)
 	t.text(pic.Panels[PanelDWI].Rect.Min.X, keyTop+barH+2, "b0, DWI: black = no signal,", dimTextColor)
-	t.text(pic.Panels[PanelDWI].Rect.Min.X, keyTop+barH+2+lineHeight, fmt.Sprintf("white = %g x median of brain without CSF", WindowWhite), dimTextColor)
+	t.text(pic.Panels[PanelDWI].Rect.Min.X, keyTop+barH+2+lineHeight, fmt.Sprintf("white = %g x median of brain without CSF", windowWhite), dimTextColor)
 	greyBar := image.Rect(pic.Panels[PanelEADC].Rect.Min.X, keyTop, pic.Panels[PanelEADC].Rect.Max.X, keyTop+barH)
 	colourBar(img, greyBar, func(f float64) color.RGBA { return grey(float32(f), 0, 1) })
 	t.ticks(greyBar, []float64{0, 0.5, 1}, 1, "%g")
 	pic.Legend = image.Rect(pic.Panels[PanelADC].Rect.Min.X, keyTop, pic.Panels[PanelADC].Rect.Max.X, keyTop+barH)
 	colourBar(img, pic.Legend, func(f float64) color.RGBA { return vir.At(f) })
-	t.ticks(pic.Legend, []float64{0, 1, 2, 3, 3.5}, ADCMax/ADCLegendUnit, "%g")
+	t.ticks(pic.Legend, []float64{0, 1, 2, 3, 3.5}, adcMax/adcLegendUnit, "%g")
 	t.text(pic.Legend.Min.X, keyTop+barH+2+2*lineHeight-2, "ADC in 1e-3 mm²/s", dimTextColor)
 
 	foot := top + ph + keysH + fontSize
@@ -348,7 +348,7 @@ func (r *Renderer) Render(res *analysis.Result, z int, findings []rules.Finding)
 }
 
 // window returns the grey window of v: black at zero or at the
-// WindowLow percentile of the tissue (mask) if lower, white at WindowWhite times the
+// windowLow percentile of the tissue (mask) if lower, white at windowWhite times the
 // median of the parenchyma (brain tissue without CSF), so that bright
 // CSF and scalp fat do not push the brain into the dark end. Both come from the
 // whole volume, so every slice of a series is drawn on one scale and an
@@ -371,7 +371,7 @@ func window(v *adc.Volume3, mask, parenchyma []bool) (lo, hi float32) {
 				buf = append(buf, x)
 			}
 		}
-		if len(buf) < MinWindowVoxels && m != nil {
+		if len(buf) < minWindowVoxels && m != nil {
 			return nil
 		}
 		return buf
@@ -383,23 +383,23 @@ func window(v *adc.Volume3, mask, parenchyma []bool) (lo, hi float32) {
 	if len(vals) == 0 {
 		return 0, 1
 	}
-	lo = min(0, adc.PercentileInPlace(vals, WindowLow))
+	lo = min(0, adc.PercentileInPlace(vals, windowLow))
 	if vals = pick(parenchyma); vals == nil {
 		if vals = pick(mask); vals == nil {
 			vals = pick(nil)
 		}
 	}
-	hi = WindowWhite * adc.PercentileInPlace(vals, 50)
+	hi = windowWhite * adc.PercentileInPlace(vals, 50)
 	if !(hi > lo) {
 		hi = lo + 1
 	}
 	return lo, hi
 }
 
-// grey maps v in lo..hi to black..white (clipped); NaN is UndefinedColor.
+// grey maps v in lo..hi to black..white (clipped); NaN is undefinedColor.
 func grey(v, lo, hi float32) color.RGBA {
 	if v != v {
-		return UndefinedColor
+		return undefinedColor
 	}
 	g := unit8(float64((v - lo) / (hi - lo)))
 	return color.RGBA{g, g, g, 0xFF}
@@ -426,10 +426,10 @@ func paint(img *image.RGBA, p Panel, rows, cols int, col func(i int) color.RGBA)
 	}
 }
 
-// outline draws OutlineWidth pixels of OutlineColor around box, outside
+// outline draws outlineWidth pixels of OutlineColor around box, outside
 // it, clipped to clip.
 func outline(img *image.RGBA, box, clip image.Rectangle) {
-	outer := box.Inset(-OutlineWidth)
+	outer := box.Inset(-outlineWidth)
 	src := image.NewUniform(OutlineColor)
 	for _, side := range []image.Rectangle{
 		image.Rect(outer.Min.X, outer.Min.Y, outer.Max.X, box.Min.Y), // top

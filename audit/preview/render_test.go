@@ -165,9 +165,9 @@ func TestPreviewOutlinesTheFindingRegionOnEveryPanel(t *testing.T) {
 				t.Fatalf("panels %+v, want four at 4 pixels per voxel for a 64 matrix", pic.Panels)
 			}
 			for _, p := range pic.Panels {
-				box := p.Box(f.Region.BoxPixels)
-				clip := p.Rect.Inset(-OutlineWidth)
-				for d := 1; d <= OutlineWidth; d++ {
+				box := p.box(f.Region.BoxPixels)
+				clip := p.Rect.Inset(-outlineWidth)
+				for d := 1; d <= outlineWidth; d++ {
 					pts := ring(box, d, clip)
 					if len(pts) < 4*p.Scale {
 						t.Fatalf("%s: only %d ring pixels at distance %d around %v", p.Kind, len(pts), d, box)
@@ -189,7 +189,7 @@ func TestPreviewOutlinesTheFindingRegionOnEveryPanel(t *testing.T) {
 						}
 					}
 				}
-				for _, q := range ring(box, OutlineWidth+1, clip) {
+				for _, q := range ring(box, outlineWidth+1, clip) {
 					if isOutline(img.At(q.X, q.Y)) {
 						beyond++
 					}
@@ -358,7 +358,7 @@ func syntheticResult(rows, cols, slices int) *analysis.Result {
 	mid := res.ADC.Slice(slices / 2)
 	for r := range rows {
 		for c := range cols {
-			mid[r*cols+c] = float32(ADCMax * float64(c) / float64(cols-1))
+			mid[r*cols+c] = float32(adcMax * float64(c) / float64(cols-1))
 		}
 	}
 	mid[(rows/2)*cols+cols/2] = float32(math.NaN())
@@ -375,7 +375,7 @@ func TestVoxelColoursFollowTheDocumentedScales(t *testing.T) {
 	}
 	img := roundTrip(t, pic)
 	at := func(k PanelKind, row, col int) color.RGBA {
-		q := pic.Panels[k].Voxel(row, col)
+		q := pic.Panels[k].voxel(row, col)
 		// Every pixel of the enlarged voxel has the same colour.
 		c := color.RGBAModel.Convert(img.At(q.Min.X, q.Min.Y)).(color.RGBA)
 		if d := color.RGBAModel.Convert(img.At(q.Max.X-1, q.Max.Y-1)).(color.RGBA); d != c {
@@ -390,9 +390,9 @@ func TestVoxelColoursFollowTheDocumentedScales(t *testing.T) {
 		row, col int
 		want     color.RGBA
 	}{
-		{"ADC outside the tissue mask is black", PanelADC, 1, 1, NoTissueColor},
-		{"eADC outside the tissue mask is black", PanelEADC, 1, 1, NoTissueColor},
-		{"an undefined ADC inside the mask is dark grey", PanelADC, rows / 2, cols / 2, UndefinedColor},
+		{"ADC outside the tissue mask is black", PanelADC, 1, 1, noTissueColor},
+		{"eADC outside the tissue mask is black", PanelEADC, 1, 1, noTissueColor},
+		{"an undefined ADC inside the mask is dark grey", PanelADC, rows / 2, cols / 2, undefinedColor},
 		{"ADC takes the viridis entry of its share of 3.5e-3", PanelADC, rows / 2, 10, v[int(math.Round(255*10.0/(cols-1)))]},
 		{"eADC 0.368 is grey 94 of 255", PanelEADC, rows / 2, 10, color.RGBA{94, 94, 94, 255}},
 	} {
@@ -407,13 +407,13 @@ func TestVoxelColoursFollowTheDocumentedScales(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if w := pic.Image.Bounds().Dx(); w < 4*MinPanelPixels {
-			t.Errorf("picture %d pixels wide, want at least four %d-pixel slots", w, MinPanelPixels)
+		if w := pic.Image.Bounds().Dx(); w < 4*minPanelPixels {
+			t.Errorf("picture %d pixels wide, want at least four %d-pixel slots", w, minPanelPixels)
 		}
 		for i := 1; i < len(pic.Panels); i++ {
 			a, b := pic.Panels[i-1].Rect, pic.Panels[i].Rect
-			if b.Min.X-a.Max.X < MinPanelPixels-a.Dx() {
-				t.Errorf("panels %v and %v: %d pixels apart, want the rest of a %d-pixel slot", a, b, b.Min.X-a.Max.X, MinPanelPixels)
+			if b.Min.X-a.Max.X < minPanelPixels-a.Dx() {
+				t.Errorf("panels %v and %v: %d pixels apart, want the rest of a %d-pixel slot", a, b, b.Min.X-a.Max.X, minPanelPixels)
 			}
 		}
 	})
@@ -439,7 +439,7 @@ func TestRenderRefusesWhatItCannotDraw(t *testing.T) {
 		t.Run("slice "+strconv.Itoa(z)+" out of 0..3 is refused with the valid range", func(t *testing.T) {
 			_, err := r.Render(res, z, nil)
 			var se *SliceRangeError
-			if !errors.As(err, &se) || !errors.Is(err, ErrSliceRange) || se.Slice != z || se.Slices != 4 {
+			if !errors.As(err, &se) || !errors.Is(err, errSliceRange) || se.Slice != z || se.Slices != 4 {
 				t.Errorf("Render(slice %d) = %v, want a SliceRangeError for 4 slices", z, err)
 			}
 		})

@@ -62,8 +62,8 @@ var viridisAnchors = [...]viridisAnchor{
 // differs by more than 1 in 255.
 type Viridis [256]color.RGBA
 
-// NewViridis builds the table.
-func NewViridis() *Viridis {
+// newViridis builds the table.
+func newViridis() *Viridis {
 	var v Viridis
 	a := viridisAnchors[:]
 	last := len(a) - 1

@@ -144,7 +144,7 @@ func (a *Archive) freeze(day string) (*DailyList, bool, error) {
 	}
 	at := l.GeneratedAt
 	l.FrozenAt = &at
-	data, err := l.MarshalIndent()
+	data, err := l.marshalIndent()
 	if err != nil {
 		return nil, false, err
 	}

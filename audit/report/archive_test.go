@@ -8,7 +8,7 @@ import (
 
 	"dwiaudit/audit/report"
 	"dwiaudit/rules"
-	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 func jsonOf(t *testing.T, l *report.DailyList) []byte {
@@ -127,11 +127,7 @@ func TestAReadOnlyStoreShowsADueDayLiveWithoutKeepingIt(t *testing.T) {
 		t.Fatal(err)
 	}
 	opts.ReadOnly = true
-	ro, err := store.Open(opts)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer ro.Close()
+	ro, _ := storetest.Open(t, opts)
 	a := &report.Archive{Builder: &report.Builder{Source: ro, Location: loc, Now: c.Now}, Lists: ro, DailyAt: 6 * time.Hour}
 	l, err := a.Daily("2026-12-01")
 	if err != nil {

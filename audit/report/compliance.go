@@ -12,10 +12,10 @@ import (
 
 // Compliance limits.
 const (
-	// MaxComplianceDays bounds a compliance range: a year, the longest
+	// maxComplianceDays bounds a compliance range: a year, the longest
 	// period a department compares (with the year before it, two years
 	// of audits are read).
-	MaxComplianceDays = 366
+	maxComplianceDays = 366
 	// TopRules is how many of the most frequent rules a group lists.
 	TopRules = 3
 )
@@ -120,8 +120,8 @@ func BuildCompliance(src ComplianceSource, from, to string, loc *time.Location, 
 		return nil, fmt.Errorf("%w: from %s is after to %s", ErrBadRange, from, to)
 	}
 	days := daysBetween(f, t) + 1
-	if days > MaxComplianceDays {
-		return nil, fmt.Errorf("%w: %d days, at most %d", ErrBadRange, days, MaxComplianceDays)
+	if days > maxComplianceDays {
+		return nil, fmt.Errorf("%w: %d days, at most %d", ErrBadRange, days, maxComplianceDays)
 	}
 	pf, pt := f.AddDate(0, 0, -days), f.AddDate(0, 0, -1)
 	cur, err := count(src, f, days)
@@ -187,11 +187,11 @@ func count(src ComplianceSource, first time.Time, days int) (*tally, error) {
 			}
 			m, _, err := record.DecodeMeasures(rec.Measures)
 			if err != nil {
-				return nil, fmt.Errorf("%w: measures of an audit of %s: %v", ErrBadRecord, day, err)
+				return nil, fmt.Errorf("%w: measures of an audit of %s: %v", errBadRecord, day, err)
 			}
 			var fs []finding
 			if err := json.Unmarshal(rec.Findings, &fs); err != nil {
-				return nil, fmt.Errorf("%w: findings of an audit of %s: %v", ErrBadRecord, day, err)
+				return nil, fmt.Errorf("%w: findings of an audit of %s: %v", errBadRecord, day, err)
 			}
 			k := groupKey{firstNonEmpty(m.Protocol, NoProtocol), firstNonEmpty(rec.Scanner, NoScanner)}
 			g := t.groups[k]

@@ -157,7 +157,7 @@ func (b *Builder) Daily(day string) (*DailyList, error) {
 		}
 		var fs []finding
 		if err := json.Unmarshal(rec.Findings, &fs); err != nil {
-			return nil, fmt.Errorf("%w: findings of an audit of %s: %v", ErrBadRecord, day, err)
+			return nil, fmt.Errorf("%w: findings of an audit of %s: %v", errBadRecord, day, err)
 		}
 		if len(fs) == 0 {
 			continue
@@ -191,13 +191,13 @@ func (b *Builder) Daily(day string) (*DailyList, error) {
 	}
 	l.StudiesAudited = len(studies)
 	l.StudiesWithFindings = len(withFindings)
-	SortRows(l.Rows)
+	sortRows(l.Rows)
 	return l.WithPatientID(b.PatientID), nil
 }
 
-// SortRows orders rows by severity (error first), then audit time, then
+// sortRows orders rows by severity (error first), then audit time, then
 // study, series and rule, so that a list always comes out the same.
-func SortRows(rows []Row) {
+func sortRows(rows []Row) {
 	sort.SliceStable(rows, func(i, j int) bool {
 		a, c := rows[i], rows[j]
 		if ra, rc := SeverityRank(a.Severity), SeverityRank(c.Severity); ra != rc {

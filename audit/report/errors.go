@@ -9,18 +9,18 @@ var (
 	ErrBadDay = errors.New("report: day is not YYYY-MM-DD")
 
 	// ErrBadRange means a compliance range is empty or reversed, or
-	// longer than MaxComplianceDays.
+	// longer than maxComplianceDays.
 	ErrBadRange = errors.New("report: invalid date range")
 
-	// ErrBadFormat means a format name is not one of text, csv, json,
+	// errBadFormat means a format name is not one of text, csv, json,
 	// html.
-	ErrBadFormat = errors.New("report: unknown format")
+	errBadFormat = errors.New("report: unknown format")
 
-	// ErrBadPatientIDMode means a patient ID mode is not masked, full or
+	// errBadPatientIDMode means a patient ID mode is not masked, full or
 	// hidden.
-	ErrBadPatientIDMode = errors.New("report: unknown patient ID mode")
+	errBadPatientIDMode = errors.New("report: unknown patient ID mode")
 
-	// ErrBadRecord means a stored audit or frozen list could not be
+	// errBadRecord means a stored audit or frozen list could not be
 	// decoded.
-	ErrBadRecord = errors.New("report: unreadable record")
+	errBadRecord = errors.New("report: unreadable record")
 )

@@ -14,6 +14,7 @@ import (
 	"dwiaudit/audit/header"
 	"dwiaudit/rules"
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // UIDs of the standard used by the tests.
@@ -60,13 +61,7 @@ func describe(path string) (store.Attributes, error) {
 // newStore opens a real store (bbolt index, files) in a temp folder.
 func newStore(t testing.TB, loc *time.Location, now func() time.Time) (*store.Store, store.Options) {
 	t.Helper()
-	opts := store.Options{Dir: t.TempDir(), Location: loc, Now: now, Describe: describe}
-	s, err := store.Open(opts)
-	if err != nil {
-		t.Fatalf("store.Open: %v", err)
-	}
-	t.Cleanup(func() { s.Close() })
-	return s, opts
+	return storetest.Open(t, store.Options{Location: loc, Now: now, Describe: describe})
 }
 
 // study is a synthetic study of the invented Quellvander Ostmire

@@ -89,5 +89,5 @@ var compliancePage = template.Must(template.New("compliance").Funcs(pageFuncs).P
 // rows with links to their series.
 func (l *DailyList) WriteHTML(w io.Writer) error { return dailyPage.Execute(w, l) }
 
-// WriteHTML writes a printable page of the compliance report.
-func (c *Compliance) WriteHTML(w io.Writer) error { return compliancePage.Execute(w, c) }
+// writeHTML writes a printable page of the compliance report.
+func (c *Compliance) writeHTML(w io.Writer) error { return compliancePage.Execute(w, c) }

@@ -33,7 +33,7 @@ func ParseFormat(s string) (Format, error) {
 	case "html":
 		return FormatHTML, nil
 	}
-	return 0, fmt.Errorf("%w %q (want text, csv, json or html)", ErrBadFormat, s)
+	return 0, fmt.Errorf("%w %q (want text, csv, json or html)", errBadFormat, s)
 }
 
 func (f Format) String() string {
@@ -95,7 +95,7 @@ func (l *DailyList) Write(w io.Writer, f Format) error {
 	case FormatText:
 		return l.WriteText(w)
 	}
-	return fmt.Errorf("%w %v", ErrBadFormat, f)
+	return fmt.Errorf("%w %v", errBadFormat, f)
 }
 
 // WriteCSV writes the header row and one record per row (RFC 4180, CRLF
@@ -118,7 +118,7 @@ func (l *DailyList) WriteCSV(w io.Writer) error {
 
 // WriteJSON writes the list as indented JSON.
 func (l *DailyList) WriteJSON(w io.Writer) error {
-	b, err := l.MarshalIndent()
+	b, err := l.marshalIndent()
 	if err != nil {
 		return err
 	}
@@ -126,9 +126,9 @@ func (l *DailyList) WriteJSON(w io.Writer) error {
 	return err
 }
 
-// MarshalIndent is the list's JSON form, as WriteJSON writes and the
+// marshalIndent is the list's JSON form, as WriteJSON writes and the
 // store keeps it (two-space indent, final newline).
-func (l *DailyList) MarshalIndent() ([]byte, error) {
+func (l *DailyList) marshalIndent() ([]byte, error) {
 	b, err := json.MarshalIndent(l, "", "  ")
 	if err != nil {
 		return nil, err
@@ -140,7 +140,7 @@ func (l *DailyList) MarshalIndent() ([]byte, error) {
 func ParseDailyList(b []byte) (*DailyList, error) {
 	var l DailyList
 	if err := json.Unmarshal(b, &l); err != nil {
-		return nil, fmt.Errorf("%w: daily list: %v", ErrBadRecord, err)
+		return nil, fmt.Errorf("%w: daily list: %v", errBadRecord, err)
 	}
 	if l.Rows == nil {
 		l.Rows = []Row{}
@@ -190,7 +190,7 @@ func (l *DailyList) WriteText(w io.Writer) error {
 func (c *Compliance) Write(w io.Writer, f Format) error {
 	switch f {
 	case FormatCSV:
-		return c.WriteCSV(w)
+		return c.writeCSV(w)
 	case FormatJSON:
 		b, err := json.MarshalIndent(c, "", "  ")
 		if err != nil {
@@ -199,11 +199,11 @@ func (c *Compliance) Write(w io.Writer, f Format) error {
 		_, err = w.Write(append(b, '\n'))
 		return err
 	case FormatHTML:
-		return c.WriteHTML(w)
+		return c.writeHTML(w)
 	case FormatText:
-		return c.WriteText(w)
+		return c.writeText(w)
 	}
-	return fmt.Errorf("%w %v", ErrBadFormat, f)
+	return fmt.Errorf("%w %v", errBadFormat, f)
 }
 
 // complianceColumns is the CSV header of the compliance report.
@@ -213,9 +213,9 @@ var complianceColumns = []string{
 	"top_rule_1", "top_rule_1_studies", "top_rule_2", "top_rule_2_studies", "top_rule_3", "top_rule_3_studies",
 }
 
-// WriteCSV writes one record per group, the overall line first (protocol
+// writeCSV writes one record per group, the overall line first (protocol
 // and scanner "all"), header row first, pure data.
-func (c *Compliance) WriteCSV(w io.Writer) error {
+func (c *Compliance) writeCSV(w io.Writer) error {
 	cw := csv.NewWriter(w)
 	cw.UseCRLF = true // RFC 4180 section 2, rule 1
 	if err := cw.Write(complianceColumns); err != nil {
@@ -239,8 +239,8 @@ func (c *Compliance) WriteCSV(w io.Writer) error {
 	return cw.Error()
 }
 
-// WriteText writes a terminal table of the groups.
-func (c *Compliance) WriteText(w io.Writer) error {
+// writeText writes a terminal table of the groups.
+func (c *Compliance) writeText(w io.Writer) error {
 	ew := &errWriter{w: w}
 	fmt.Fprintf(ew, "Protocol compliance %s to %s (%s, %s), against %s to %s\n", c.From, c.To, plural(c.Days, "day", "days"), c.TimeZone, c.PreviousFrom, c.PreviousTo)
 	fmt.Fprintf(ew, "%s\n", c.Caution)

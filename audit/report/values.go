@@ -13,8 +13,8 @@ import (
 type PatientIDMode int
 
 const (
-	// PatientIDMasked keeps the last MaskKeep characters of an ID of at
-	// least MaskMinLength characters and writes '*' for the rest; a
+	// PatientIDMasked keeps the last maskKeep characters of an ID of at
+	// least maskMinLength characters and writes '*' for the rest; a
 	// shorter ID is all '*'. The default.
 	PatientIDMasked PatientIDMode = iota
 	// PatientIDFull shows the ID as stored.
@@ -28,8 +28,8 @@ const (
 // too few to identify anyone; an ID shorter than six characters would
 // give half of itself away, so it is masked whole.
 const (
-	MaskKeep      = 3
-	MaskMinLength = 6
+	maskKeep      = 3
+	maskMinLength = 6
 )
 
 // ParsePatientIDMode reads "masked", "full" or "hidden".
@@ -42,7 +42,7 @@ func ParsePatientIDMode(s string) (PatientIDMode, error) {
 	case "hidden":
 		return PatientIDHidden, nil
 	}
-	return 0, fmt.Errorf("%w %q (want masked, full or hidden)", ErrBadPatientIDMode, s)
+	return 0, fmt.Errorf("%w %q (want masked, full or hidden)", errBadPatientIDMode, s)
 }
 
 func (m PatientIDMode) String() string {
@@ -79,8 +79,8 @@ func (m PatientIDMode) Apply(id string) string {
 		return ""
 	}
 	r := []rune(id)
-	keep := MaskKeep
-	if len(r) < MaskMinLength {
+	keep := maskKeep
+	if len(r) < maskMinLength {
 		keep = 0
 	}
 	for i := 0; i < len(r)-keep; i++ {

@@ -27,20 +27,20 @@ const (
 
 // Defaults for a zero Series field.
 const (
-	DefaultRows    = 256
-	DefaultColumns = 256
-	DefaultSlices  = 16
+	defaultRows    = 256
+	defaultColumns = 256
+	defaultSlices  = 16
 )
 
 // Limits on a Series.
 const (
-	// MaxMatrix caps Rows and Columns. Clinical MR matrices stay at or
+	// maxMatrix caps Rows and Columns. Clinical MR matrices stay at or
 	// below 1024 (common practice); one such 16-bit image is 2 MiB.
-	MaxMatrix = 1024
-	// MaxSlices caps the images of one series. A large DWI series is a few
+	maxMatrix = 1024
+	// maxSlices caps the images of one series. A large DWI series is a few
 	// thousand images (for example 60 slices times 65 volumes, common
 	// practice); more here is a mistake that would fill the disk.
-	MaxSlices = 4096
+	maxSlices = 4096
 )
 
 // The invented people and places every file names (see the package doc).
@@ -48,13 +48,13 @@ const (
 	InstitutionName   = "Quellvander Ostmire Hospital"
 	StationName       = "QOH-MR1"
 	Manufacturer      = "Synthetic"
-	ModelName         = "dwiaudit synth"
+	modelName         = "dwiaudit synth"
 	PatientName       = "TEST^SYNTHETIC"
 	PatientID         = "SYN0001"
-	PatientBirthDate  = "19700101"
-	PatientSex        = "O"
+	patientBirthDate  = "19700101"
+	patientSex        = "O"
 	AccessionNumber   = "SYNACC0001"
-	StudyDescription  = "MR brain synthetic"
+	studyDescription  = "MR brain synthetic"
 	SeriesDescription = "DWI synthetic"
 	StudyDate         = "20250314"
 	StudyTime         = "093000"
@@ -93,10 +93,9 @@ type Series struct {
 	// StudyInstanceUID and SeriesInstanceUID are generated with NewUID from
 	// the Seed when empty.
 	StudyInstanceUID, SeriesInstanceUID string
-	// Rows and Columns are the image matrix, DefaultRows × DefaultColumns
-	// when zero.
+	// Rows and Columns are the image matrix, 256 × 256 when zero.
 	Rows, Columns int
-	// Slices is the number of images in the series, DefaultSlices when zero.
+	// Slices is the number of images in the series, 16 when zero.
 	// Image i lies at slice position i.
 	Slices int
 	// BValues, when set, puts Diffusion b-value (0018,9087) in every image,
@@ -169,33 +168,33 @@ func WriteSeries(dir string, s Series) ([]string, error) {
 // withDefaults fills zero fields and checks the rest.
 func (s Series) withDefaults() (Series, error) {
 	if s.Rows == 0 {
-		s.Rows = DefaultRows
+		s.Rows = defaultRows
 	}
 	if s.Columns == 0 {
-		s.Columns = DefaultColumns
+		s.Columns = defaultColumns
 	}
 	if s.Slices == 0 {
-		s.Slices = DefaultSlices
+		s.Slices = defaultSlices
 	}
 	if s.TransferSyntaxUID == "" {
 		s.TransferSyntaxUID = ExplicitVRLittleEndian
 	}
 	switch {
-	case s.Rows < 0 || s.Rows > MaxMatrix || s.Columns < 0 || s.Columns > MaxMatrix:
-		return s, fmt.Errorf("%w: matrix %d×%d, each side 1..%d", ErrInvalidSeries, s.Rows, s.Columns, MaxMatrix)
-	case s.Slices < 0 || s.Slices > MaxSlices:
-		return s, fmt.Errorf("%w: %d slices, limit %d", ErrInvalidSeries, s.Slices, MaxSlices)
+	case s.Rows < 0 || s.Rows > maxMatrix || s.Columns < 0 || s.Columns > maxMatrix:
+		return s, fmt.Errorf("%w: matrix %d×%d, each side 1..%d", errInvalidSeries, s.Rows, s.Columns, maxMatrix)
+	case s.Slices < 0 || s.Slices > maxSlices:
+		return s, fmt.Errorf("%w: %d slices, limit %d", errInvalidSeries, s.Slices, maxSlices)
 	case s.TransferSyntaxUID != ExplicitVRLittleEndian && s.TransferSyntaxUID != ImplicitVRLittleEndian:
-		return s, fmt.Errorf("%w: %q", ErrUnsupportedTransferSyntax, s.TransferSyntaxUID)
+		return s, fmt.Errorf("%w: %q", errUnsupportedTransferSyntax, s.TransferSyntaxUID)
 	}
 	for _, u := range []string{s.StudyInstanceUID, s.SeriesInstanceUID} {
 		if u != "" && !validUID(u) {
-			return s, fmt.Errorf("%w: UID %q", ErrInvalidSeries, u)
+			return s, fmt.Errorf("%w: UID %q", errInvalidSeries, u)
 		}
 	}
 	for _, b := range s.BValues {
 		if b < 0 || math.IsNaN(b) || math.IsInf(b, 0) {
-			return s, fmt.Errorf("%w: b-value %v", ErrInvalidSeries, b)
+			return s, fmt.Errorf("%w: b-value %v", errInvalidSeries, b)
 		}
 	}
 	s.BValues = slices.Clone(s.BValues)
@@ -336,13 +335,13 @@ func dataset(s Series, g geometry, img image, pixelBytes []byte) (dicom.Dataset,
 	str(tag.InstitutionName, InstitutionName)
 	str(tag.ReferringPhysicianName, "")
 	str(tag.StationName, StationName)
-	str(tag.StudyDescription, StudyDescription)
+	str(tag.StudyDescription, studyDescription)
 	str(tag.SeriesDescription, SeriesDescription)
-	str(tag.ManufacturerModelName, ModelName)
+	str(tag.ManufacturerModelName, modelName)
 	str(tag.PatientName, PatientName)
 	str(tag.PatientID, PatientID)
-	str(tag.PatientBirthDate, PatientBirthDate)
-	str(tag.PatientSex, PatientSex)
+	str(tag.PatientBirthDate, patientBirthDate)
+	str(tag.PatientSex, patientSex)
 	str(tag.ScanningSequence, "EP")      // echo planar, as DWI is acquired (common practice)
 	str(tag.SequenceVariant, "SK", "SP") // segmented k-space, spoiled (common practice)
 	str(tag.ScanOptions, "FS")           // fat saturation (common practice)

@@ -18,6 +18,7 @@ import (
 	"github.com/suyashkumar/dicom/pkg/tag"
 
 	"dwiaudit/scp/part10"
+	"dwiaudit/scp/scptest"
 )
 
 // parse reads a file with suyashkumar's parser, which panics on input it
@@ -100,9 +101,9 @@ func TestDCMDumpReadsWrittenFiles(t *testing.T) {
 	for _, c := range seriesCases {
 		t.Run("dcmdump reads "+c.name+" without complaint", func(t *testing.T) {
 			for i, path := range write(t, c.series) {
-				d := runDCMDump(t, path)
-				if d.stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
-					t.Fatalf("%s: dcmdump complained:\n%s", path, d.stderr)
+				d := scptest.DCMDump(t, path)
+				if d.Stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
+					t.Fatalf("%s: dcmdump complained:\n%s", path, d.Stderr)
 				}
 				checks := []struct{ tag, want string }{
 					{"0002,0002", MRImageStorage},                // DCMTK dcmdump output
@@ -119,21 +120,21 @@ func TestDCMDumpReadsWrittenFiles(t *testing.T) {
 					{"0002,0012", part10.ImplementationClassUID}, // DCMTK dcmdump output
 				}
 				for _, ck := range checks {
-					if got := d.values[ck.tag]; got != ck.want {
+					if got := d.Values[ck.tag]; got != ck.want {
 						t.Errorf("%s: (%s) = %q, want %q", filepath.Base(path), ck.tag, got, ck.want)
 					}
 				}
 				// DCMTK dcmdump output: the data set section names the
 				// transfer syntax it was decoded in.
-				if !strings.Contains(d.text, "# Dicom-Data-Set\n# Used TransferSyntax: "+c.dcmtk) {
-					t.Errorf("%s: data set not decoded as %s:\n%.600s", path, c.dcmtk, d.text)
+				if !strings.Contains(d.Text, "# Dicom-Data-Set\n# Used TransferSyntax: "+c.dcmtk) {
+					t.Errorf("%s: data set not decoded as %s:\n%.600s", path, c.dcmtk, d.Text)
 				}
 				if len(c.series.BValues) > 0 {
 					want := strconv.FormatFloat(c.series.BValues[i%len(c.series.BValues)], 'g', -1, 64)
-					if got := d.values["0018,9087"]; got != want { // DCMTK dcmdump output
+					if got := d.Values["0018,9087"]; got != want { // DCMTK dcmdump output
 						t.Errorf("%s: b-value %q, want %q", path, got, want)
 					}
-				} else if _, ok := d.values["0018,9087"]; ok {
+				} else if _, ok := d.Values["0018,9087"]; ok {
 					t.Errorf("%s: b-value written for a series without b-values", path)
 				}
 			}
@@ -350,16 +351,16 @@ func TestWriteSeriesRejectsInvalidSeries(t *testing.T) {
 		series Series
 		want   error
 	}{
-		{"negative rows", Series{Rows: -1}, ErrInvalidSeries},
-		{"a matrix above MaxMatrix", Series{Columns: MaxMatrix + 1}, ErrInvalidSeries},
-		{"negative slices", Series{Slices: -2}, ErrInvalidSeries},
-		{"more slices than MaxSlices", Series{Slices: MaxSlices + 1}, ErrInvalidSeries},
-		{"a negative b-value", Series{BValues: []float64{0, -5}}, ErrInvalidSeries},
-		{"a NaN b-value", Series{BValues: []float64{math.NaN()}}, ErrInvalidSeries},
-		{"a study UID with letters", Series{StudyInstanceUID: "2.25.abc"}, ErrInvalidSeries},
-		{"a series UID of 65 characters", Series{SeriesInstanceUID: "2.25." + strings.Repeat("9", 60)}, ErrInvalidSeries},
-		{"a compressed transfer syntax", Series{TransferSyntaxUID: "1.2.840.10008.1.2.4.50"}, ErrUnsupportedTransferSyntax},
-		{"explicit VR big endian", Series{TransferSyntaxUID: "1.2.840.10008.1.2.2"}, ErrUnsupportedTransferSyntax},
+		{"negative rows", Series{Rows: -1}, errInvalidSeries},
+		{"a matrix above MaxMatrix", Series{Columns: maxMatrix + 1}, errInvalidSeries},
+		{"negative slices", Series{Slices: -2}, errInvalidSeries},
+		{"more slices than MaxSlices", Series{Slices: maxSlices + 1}, errInvalidSeries},
+		{"a negative b-value", Series{BValues: []float64{0, -5}}, errInvalidSeries},
+		{"a NaN b-value", Series{BValues: []float64{math.NaN()}}, errInvalidSeries},
+		{"a study UID with letters", Series{StudyInstanceUID: "2.25.abc"}, errInvalidSeries},
+		{"a series UID of 65 characters", Series{SeriesInstanceUID: "2.25." + strings.Repeat("9", 60)}, errInvalidSeries},
+		{"a compressed transfer syntax", Series{TransferSyntaxUID: "1.2.840.10008.1.2.4.50"}, errUnsupportedTransferSyntax},
+		{"explicit VR big endian", Series{TransferSyntaxUID: "1.2.840.10008.1.2.2"}, errUnsupportedTransferSyntax},
 	}
 	for _, c := range cases {
 		t.Run("it rejects "+c.name, func(t *testing.T) {

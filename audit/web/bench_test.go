@@ -9,17 +9,14 @@ import (
 	"time"
 
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // BenchmarkScannerPage renders a scanner page over 90 days holding 2,700
 // audited series of that scanner (30 a day, a busy department), among
 // 5,400 of two scanners in a real bbolt store.
 func BenchmarkScannerPage(b *testing.B) {
-	st, err := store.Open(store.Options{Dir: b.TempDir(), Location: qoh, Describe: describe})
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer st.Close()
+	st, _ := storetest.Open(b, store.Options{Location: qoh, Describe: describe})
 	measures, _ := json.Marshal(map[string]any{"series_number": 2, "series_description": "DWI", "protocol": "brain",
 		"bvalues": []float64{0, 1000}, "tissue_adc_median": 0.00079, "csf_adc": 0.003, "b0_snr": 40.0})
 	var recs []store.AuditRecord

@@ -13,6 +13,7 @@ import (
 	"dwiaudit/audit/phantom"
 	"dwiaudit/scp/part10"
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // qoh is the node's time zone in the tests: an invented site ten hours
@@ -41,11 +42,7 @@ func describe(path string) (store.Attributes, error) {
 // newTestStore opens a real store in a temporary folder.
 func newTestStore(t *testing.T) *store.Store {
 	t.Helper()
-	st, err := store.Open(store.Options{Dir: t.TempDir(), Location: qoh, Describe: describe})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { st.Close() })
+	st, _ := storetest.Open(t, store.Options{Location: qoh, Describe: describe})
 	return st
 }
 

@@ -8,7 +8,6 @@ import (
 	"context"
 	"fmt"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -19,6 +18,7 @@ import (
 
 	"dwiaudit/audit/phantom"
 	"dwiaudit/audit/web"
+	"dwiaudit/internal/testtool"
 	"dwiaudit/rules"
 )
 
@@ -27,22 +27,6 @@ import (
 // here; a fresh CI machine's first Chromium start builds its font cache,
 // and the bound is a guard against a hang, not a speed target.
 const browserTimeout = 90 * time.Second
-
-// needChromium returns the path of Debian's chromium. Missing, it fails
-// the test when CI=true and skips it otherwise.
-func needChromium(t *testing.T) string {
-	t.Helper()
-	for _, name := range []string{"chromium", "chromium-browser"} {
-		if p, err := exec.LookPath(name); err == nil {
-			return p
-		}
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("chromium is not installed (Debian package chromium); CI must have it")
-	}
-	t.Skip("chromium is not installed; install the Debian package chromium to run the browser test")
-	return ""
-}
 
 // artifactDir is where the test keeps its screenshots: $DWIAUDIT_ARTIFACTS
 // when set, else a temporary folder.
@@ -107,7 +91,7 @@ func awaitBrowserAudits(t *testing.T, n *node, series []string, within time.Dura
 }
 
 func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
-	chromium := needChromium(t)
+	chromium := testtool.FirstPath(t, "chromium", "chromium", "chromium-browser")
 	cfg := filepath.Join(t.TempDir(), "node.yaml")
 	conf := `peers:
   - {ae_title: QOH_MR1, scanner: qoh-mr1-1.5t}

@@ -14,6 +14,7 @@ import (
 	"dwiaudit/audit/analysis"
 	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/phantom"
+	"dwiaudit/internal/testtool"
 	"dwiaudit/rules"
 	"dwiaudit/scp/part10"
 )
@@ -240,7 +241,7 @@ func wantType[T any](t *testing.T, what string, v any) T {
 // TestCheckJSONGolden pins the bytes of the JSON for a fixed report:
 // names, order, number formatting, null for NaN, [] for no b-values.
 // Regenerate testdata/check.golden.json only for a deliberate format
-// change (DWIAUDIT_UPDATE_GOLDEN=1).
+// change (`go test ./cmd/dwiaudit -run TestCheckJSONGolden -update`).
 func TestCheckJSONGolden(t *testing.T) {
 	nan := math.NaN()
 	rep := &audit.Report{
@@ -275,21 +276,9 @@ func TestCheckJSONGolden(t *testing.T) {
 	if err := enc.Encode(checkBody(rep)); err != nil {
 		t.Fatal(err)
 	}
-	golden := filepath.Join("testdata", "check.golden.json")
-	if os.Getenv("DWIAUDIT_UPDATE_GOLDEN") == "1" {
-		if err := os.MkdirAll("testdata", 0o755); err != nil {
-			t.Fatal(err)
-		}
-		if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
-	want, err := os.ReadFile(golden)
-	if err != nil {
-		t.Fatalf("%v (run with DWIAUDIT_UPDATE_GOLDEN=1 to create it)", err)
-	}
-	if !bytes.Equal(buf.Bytes(), want) {
-		t.Errorf("JSON differs from %s:\n%s", golden, buf.String())
+	testtool.Golden(t, filepath.Join("testdata", "check.golden.json"), buf.Bytes())
+	if t.Failed() {
+		t.Logf("the JSON written:\n%s", buf.String())
 	}
 }
 

@@ -21,6 +21,7 @@ import (
 
 	"go.yaml.in/yaml/v3"
 
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/dimse"
 )
 
@@ -32,21 +33,6 @@ const (
 	// deployPromStopTimeout bounds the wait for Prometheus to exit on SIGTERM.
 	deployPromStopTimeout = 15 * time.Second
 )
-
-// needPrometheus returns the prometheus binary's path. Without it the
-// test fails when CI=true and skips otherwise, naming the Debian package.
-func needPrometheus(t *testing.T) string {
-	t.Helper()
-	p, err := exec.LookPath("prometheus")
-	if err == nil {
-		return p
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("prometheus not found; CI must install the Debian package prometheus")
-	}
-	t.Skip("prometheus not found; install the Debian package prometheus to run this test")
-	return ""
-}
 
 // freeLoopbackAddr is a loopback address with a port free right now
 // (Prometheus cannot report the port it got for ":0").
@@ -225,7 +211,7 @@ func waitFor(t *testing.T, what string, cond func() bool) {
 }
 
 func TestPrometheusScrapesTheNodeAndEvaluatesTheShippedAlerts(t *testing.T) {
-	bin := needPrometheus(t)
+	bin := testtool.Path(t, "prometheus", "prometheus")
 	// A floor no test machine has free: every C-STORE is refused with
 	// A700, the condition of DwiauditDiskBelowFloor and of
 	// DwiauditIngestFailures.

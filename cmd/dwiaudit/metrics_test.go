@@ -16,8 +16,8 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/part10"
-	"dwiaudit/scp/scptest"
 )
 
 const (
@@ -198,7 +198,7 @@ func resultValue(t *testing.T, r promResult) float64 {
 }
 
 func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
-	prom := scptest.NeedTool(t, "prometheus", "prometheus")
+	prom := testtool.Path(t, "prometheus", "prometheus")
 	src, _ := cleanBrainStudy(t)
 	n := startNode(t, t.TempDir(), "--config", writeNodeConfig(t, "QOH_MR1", "qoh-mr1-1.5t"), "--settle", "1s")
 	promAddr, promExited := startPrometheus(t, prom, strings.TrimPrefix(n.httpURL, "http://"))

@@ -17,6 +17,7 @@ import (
 	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // httpGet GETs url and returns the status, the Content-Type and the body.
@@ -236,15 +237,11 @@ func TestReportFlagsAreChecked(t *testing.T) {
 // folder, in UTC with the clock now.
 func openTestStore(t testing.TB, now func() time.Time, dir ...string) *store.Store {
 	t.Helper()
-	d := t.TempDir()
+	opts := store.Options{Location: time.UTC, Now: now, Describe: describeInstance}
 	if len(dir) > 0 {
-		d = dir[0]
+		opts.Dir = dir[0]
 	}
-	st, err := store.Open(store.Options{Dir: d, Location: time.UTC, Now: now, Describe: describeInstance})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { st.Close() })
+	st, _ := storetest.Open(t, opts)
 	return st
 }
 

@@ -33,6 +33,7 @@ import (
 	"dwiaudit/scp/pdu"
 	"dwiaudit/scp/scptest"
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // Limits of the node harness.
@@ -201,11 +202,7 @@ func getJSON(t testing.TB, url string, v any) int {
 // studies --data` does.
 func openStoreReadOnly(t testing.TB, dir string) *store.Store {
 	t.Helper()
-	st, err := store.Open(store.Options{Dir: dir, ReadOnly: true})
-	if err != nil {
-		t.Fatalf("opening the index read-only: %v", err)
-	}
-	t.Cleanup(func() { st.Close() })
+	st, _ := storetest.Open(t, store.Options{Dir: dir, ReadOnly: true})
 	return st
 }
 

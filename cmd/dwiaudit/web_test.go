@@ -16,6 +16,7 @@ import (
 	"golang.org/x/crypto/bcrypt"
 
 	"dwiaudit/store"
+	"dwiaudit/store/storetest"
 )
 
 // testToken is the bearer token of the tests (invented).
@@ -135,11 +136,7 @@ func TestExampleHTTPAuthSectionIsTheDefaultAndItsUserParses(t *testing.T) {
 // control) over a real store in a temporary folder.
 func authTestHandler(t *testing.T, listen string, auth HTTPAuthConfig) http.Handler {
 	t.Helper()
-	st, err := store.Open(store.Options{Dir: t.TempDir(), Location: time.UTC, Describe: describeInstance})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { st.Close() })
+	st, _ := storetest.Open(t, store.Options{Location: time.UTC, Describe: describeInstance})
 	cfg := DefaultConfig()
 	cfg.Node.HTTPListen = listen
 	cfg.HTTPAuth = auth

@@ -68,7 +68,7 @@ func (e *element) valueLen() int {
 // and 10.3 for c.CommandField: a request never carries Status or the
 // error fields, a response never carries Message ID or Priority, and
 // optional elements are left out when empty. Encode refuses (with
-// ErrInvalidCommand) unknown command fields and commands that contradict
+// errInvalidCommand) unknown command fields and commands that contradict
 // their table, such as a C-STORE-RQ without a data set.
 func (c *Command) Encode() ([]byte, error) {
 	if err := c.validate(); err != nil {
@@ -136,7 +136,7 @@ func (c *Command) elements(els []element) []element {
 			els = append(els, element{tag: t, kind: kindText, str: v})
 		}
 	}
-	rq := c.CommandField.IsRequest()
+	rq := c.CommandField.isRequest()
 
 	ui(dicomtag.AffectedSOPClassUID, c.AffectedSOPClassUID)
 	us(dicomtag.CommandField, uint16(c.CommandField))
@@ -159,7 +159,7 @@ func (c *Command) elements(els []element) []element {
 		if len(c.OffendingElements) > 0 {
 			els = append(els, element{tag: dicomtag.OffendingElement, kind: kindAT, at: c.OffendingElements})
 		}
-		text(dicomtag.ErrorComment, TruncateComment(c.ErrorComment))
+		text(dicomtag.ErrorComment, truncateComment(c.ErrorComment))
 		if c.ErrorID != 0 {
 			us(dicomtag.ErrorID, c.ErrorID)
 		}
@@ -177,36 +177,36 @@ func (c *Command) elements(els []element) []element {
 // peer's UIDs as they came, so the peer can match them.
 func (c *Command) validate() error {
 	cf := c.CommandField
-	if !cf.Known() {
-		return fmt.Errorf("%w: unknown command field 0x%04X (PS3.7 E.1)", ErrInvalidCommand, uint16(cf))
+	if !cf.known() {
+		return fmt.Errorf("%w: unknown command field 0x%04X (PS3.7 E.1)", errInvalidCommand, uint16(cf))
 	}
 	if cf.hasPriority() && !c.Priority.valid() {
-		return fmt.Errorf("%w: %s priority 0x%04X is not LOW, MEDIUM or HIGH (PS3.7 Table 9.3-1)", ErrInvalidCommand, cf, uint16(c.Priority))
+		return fmt.Errorf("%w: %s priority 0x%04X is not LOW, MEDIUM or HIGH (PS3.7 Table 9.3-1)", errInvalidCommand, cf, uint16(c.Priority))
 	}
-	if cf.IsRequest() && len(strings.TrimSpace(c.MoveOriginatorAETitle)) > maxAELen {
-		return fmt.Errorf("%w: move originator AE title longer than %d bytes (PS3.5 Table 6.2-1)", ErrInvalidCommand, maxAELen)
+	if cf.isRequest() && len(strings.TrimSpace(c.MoveOriginatorAETitle)) > maxAELen {
+		return fmt.Errorf("%w: move originator AE title longer than %d bytes (PS3.5 Table 6.2-1)", errInvalidCommand, maxAELen)
 	}
 	if cf == CMoveRQ && len(strings.TrimSpace(c.MoveDestination)) > maxAELen {
-		return fmt.Errorf("%w: move destination longer than %d bytes (PS3.5 Table 6.2-1)", ErrInvalidCommand, maxAELen)
+		return fmt.Errorf("%w: move destination longer than %d bytes (PS3.5 Table 6.2-1)", errInvalidCommand, maxAELen)
 	}
 	switch cf {
 	case CStoreRQ: // PS3.7 Table 9.3-1
 		if c.AffectedSOPClassUID == "" || c.AffectedSOPInstanceUID == "" {
-			return fmt.Errorf("%w: C-STORE-RQ needs Affected SOP Class and Instance UIDs (PS3.7 Table 9.3-1)", ErrInvalidCommand)
+			return fmt.Errorf("%w: C-STORE-RQ needs Affected SOP Class and Instance UIDs (PS3.7 Table 9.3-1)", errInvalidCommand)
 		}
 		if !c.HasDataSet() {
-			return fmt.Errorf("%w: C-STORE-RQ must announce a data set (PS3.7 Table 9.3-1)", ErrInvalidCommand)
+			return fmt.Errorf("%w: C-STORE-RQ must announce a data set (PS3.7 Table 9.3-1)", errInvalidCommand)
 		}
 	case CEchoRQ: // PS3.7 Table 9.3-12
 		if c.AffectedSOPClassUID == "" {
-			return fmt.Errorf("%w: C-ECHO-RQ needs an Affected SOP Class UID (PS3.7 Table 9.3-12)", ErrInvalidCommand)
+			return fmt.Errorf("%w: C-ECHO-RQ needs an Affected SOP Class UID (PS3.7 Table 9.3-12)", errInvalidCommand)
 		}
 		if c.HasDataSet() {
-			return fmt.Errorf("%w: C-ECHO-RQ carries no data set (PS3.7 Table 9.3-12)", ErrInvalidCommand)
+			return fmt.Errorf("%w: C-ECHO-RQ carries no data set (PS3.7 Table 9.3-12)", errInvalidCommand)
 		}
 	case CStoreRSP, CEchoRSP, CCancelRQ: // PS3.7 Tables 9.3-2, 9.3-13, 9.3-5
 		if c.HasDataSet() {
-			return fmt.Errorf("%w: %s carries no data set, Command Data Set Type must be 0101H", ErrInvalidCommand, cf)
+			return fmt.Errorf("%w: %s carries no data set, Command Data Set Type must be 0101H", errInvalidCommand, cf)
 		}
 	}
 	return nil
@@ -225,11 +225,11 @@ func (c *Command) validate() error {
 //
 // It is strict where a wrong guess would be dangerous; all errors start
 // with "dimse: " and wrap a sentinel from errors.go: a truncated element
-// (ErrTruncated), an element outside group 0000 (ErrNotCommandGroup), a
-// group length that does not match (ErrGroupLength), elements out of
-// order or repeated (ErrElementOrder), a known element with an impossible
-// length (ErrValueLength), and a missing Command Field, Command Data Set
-// Type, or, in a response, Status (ErrMissingElement) — a missing Status
+// (errTruncated), an element outside group 0000 (errNotCommandGroup), a
+// group length that does not match (errGroupLength), elements out of
+// order or repeated (errElementOrder), a known element with an impossible
+// length (errValueLength), and a missing Command Field, Command Data Set
+// Type, or, in a response, Status (errMissingElement) — a missing Status
 // must not read as success. Every value length is checked against the
 // bytes that remain before anything is allocated for it.
 func Decode(b []byte) (*Command, error) {
@@ -245,24 +245,24 @@ func Decode(b []byte) (*Command, error) {
 	)
 	for off := 0; off < len(b); {
 		if len(b)-off < elementHeaderLen {
-			return nil, fmt.Errorf("%w: %d bytes left at offset %d, an element header needs %d", ErrTruncated, len(b)-off, off, elementHeaderLen)
+			return nil, fmt.Errorf("%w: %d bytes left at offset %d, an element header needs %d", errTruncated, len(b)-off, off, elementHeaderLen)
 		}
 		tag := dicomtag.Tag{Group: d.ReadUInt16(), Element: d.ReadUInt16()}
 		vl := d.ReadUInt32()
 		off += elementHeaderLen
 		if err := d.Error(); err != nil {
-			return nil, fmt.Errorf("%w: element header at offset %d: %v", ErrTruncated, off-elementHeaderLen, err)
+			return nil, fmt.Errorf("%w: element header at offset %d: %v", errTruncated, off-elementHeaderLen, err)
 		}
 		if tag.Group != dicomtag.CommandGroupLength.Group {
-			return nil, fmt.Errorf("%w: %s at offset %d", ErrNotCommandGroup, tag, off-elementHeaderLen)
+			return nil, fmt.Errorf("%w: %s at offset %d", errNotCommandGroup, tag, off-elementHeaderLen)
 		}
 		if !first && tag.Compare(prev) <= 0 {
-			return nil, fmt.Errorf("%w: %s after %s", ErrElementOrder, tag, prev)
+			return nil, fmt.Errorf("%w: %s after %s", errElementOrder, tag, prev)
 		}
 		first, prev = false, tag
 		// Checked before anything is read or allocated for the value.
 		if uint64(vl) > uint64(len(b)-off) {
-			return nil, fmt.Errorf("%w: %s says %d value bytes, %d left", ErrTruncated, tag, vl, len(b)-off)
+			return nil, fmt.Errorf("%w: %s says %d value bytes, %d left", errTruncated, tag, vl, len(b)-off)
 		}
 		n := int(vl)
 		if err := checkLength(tag, n); err != nil {
@@ -272,7 +272,7 @@ func Decode(b []byte) (*Command, error) {
 		switch tag {
 		case dicomtag.CommandGroupLength:
 			if gl := d.ReadUInt32(); uint64(gl) != uint64(len(b)-off-n) {
-				return nil, fmt.Errorf("%w: (0000,0000) says %d, %d bytes follow", ErrGroupLength, gl, len(b)-off-n)
+				return nil, fmt.Errorf("%w: (0000,0000) says %d, %d bytes follow", errGroupLength, gl, len(b)-off-n)
 			}
 		case dicomtag.AffectedSOPClassUID:
 			c.AffectedSOPClassUID = trimUI(d.ReadString(n))
@@ -319,17 +319,17 @@ func Decode(b []byte) (*Command, error) {
 		}
 		off += n
 		if err := d.Error(); err != nil {
-			return nil, fmt.Errorf("%w: value of %s: %v", ErrTruncated, tag, err)
+			return nil, fmt.Errorf("%w: value of %s: %v", errTruncated, tag, err)
 		}
 	}
 
 	switch {
 	case !haveField:
-		return nil, fmt.Errorf("%w: Command Field (0000,0100)", ErrMissingElement)
+		return nil, fmt.Errorf("%w: Command Field (0000,0100)", errMissingElement)
 	case !haveDataSetType:
-		return nil, fmt.Errorf("%w: Command Data Set Type (0000,0800) in %s", ErrMissingElement, c.CommandField)
-	case c.CommandField.IsResponse() && !haveStatus:
-		return nil, fmt.Errorf("%w: Status (0000,0900) in %s", ErrMissingElement, c.CommandField)
+		return nil, fmt.Errorf("%w: Command Data Set Type (0000,0800) in %s", errMissingElement, c.CommandField)
+	case c.CommandField.isResponse() && !haveStatus:
+		return nil, fmt.Errorf("%w: Status (0000,0900) in %s", errMissingElement, c.CommandField)
 	}
 	return c, nil
 }
@@ -347,14 +347,14 @@ func checkLength(tag dicomtag.Tag, n int) error {
 		want = usLen
 	case dicomtag.OffendingElement:
 		if n%atLen != 0 {
-			return fmt.Errorf("%w: %s is %d bytes, not a multiple of %d", ErrValueLength, tag, n, atLen)
+			return fmt.Errorf("%w: %s is %d bytes, not a multiple of %d", errValueLength, tag, n, atLen)
 		}
 		return nil
 	default:
 		return nil
 	}
 	if n != want {
-		return fmt.Errorf("%w: %s is %d bytes, want %d", ErrValueLength, tag, n, want)
+		return fmt.Errorf("%w: %s is %d bytes, want %d", errValueLength, tag, n, want)
 	}
 	return nil
 }

@@ -101,16 +101,16 @@ func (c CommandField) name() string {
 	return ""
 }
 
-// Known reports whether PS3.7 E.1 defines this command field.
-func (c CommandField) Known() bool { return c.name() != "" }
+// known reports whether PS3.7 E.1 defines this command field.
+func (c CommandField) known() bool { return c.name() != "" }
 
-// IsRequest reports whether the command field is a request (RQ). It looks
+// isRequest reports whether the command field is a request (RQ). It looks
 // only at the response bit, so it also answers for values the standard
 // does not define.
-func (c CommandField) IsRequest() bool { return c&responseBit == 0 }
+func (c CommandField) isRequest() bool { return c&responseBit == 0 }
 
-// IsResponse reports whether the command field is a response (RSP).
-func (c CommandField) IsResponse() bool { return !c.IsRequest() }
+// isResponse reports whether the command field is a response (RSP).
+func (c CommandField) isResponse() bool { return !c.isRequest() }
 
 // hasPriority reports whether the request's message table carries
 // Priority (0000,0700): C-STORE-RQ (PS3.7 Table 9.3-1), C-FIND-RQ,
@@ -167,9 +167,9 @@ func (p Priority) String() string {
 // allows.
 func (p Priority) valid() bool { return p <= PriorityLow }
 
-// VerificationSOPClassUID is the SOP Class of C-ECHO (PS3.4 A.4, PS3.6
+// verificationSOPClassUID is the SOP Class of C-ECHO (PS3.4 A.4, PS3.6
 // Annex A).
-const VerificationSOPClassUID = "1.2.840.10008.1.1"
+const verificationSOPClassUID = "1.2.840.10008.1.1"
 
 // Command is a decoded DIMSE command set. One struct serves requests and
 // responses; Encode writes only the elements the message tables of
@@ -207,7 +207,7 @@ type Command struct {
 	// non-empty. Each tag is packed as group<<16 | element.
 	OffendingElements []uint32
 	// ErrorComment (0000,0902) LO, responses only, encoded when non-empty
-	// after TruncateComment.
+	// after truncateComment.
 	ErrorComment string
 	// ErrorID (0000,0903) US, responses only, encoded when non-zero.
 	ErrorID uint16
@@ -222,7 +222,7 @@ func (c *Command) HasDataSet() bool { return c.CommandDataSetType != NoDataSet }
 func NewCEchoRQ(msgID uint16) *Command {
 	return &Command{
 		CommandField:        CEchoRQ,
-		AffectedSOPClassUID: VerificationSOPClassUID,
+		AffectedSOPClassUID: verificationSOPClassUID,
 		MessageID:           msgID,
 		CommandDataSetType:  NoDataSet,
 	}
@@ -245,7 +245,7 @@ func NewCStoreRQ(msgID uint16, sopClassUID, sopInstanceUID string, prio Priority
 // request's Message ID as Message ID Being Responded To, the same
 // Affected SOP Class and Instance UIDs (PS3.7 Tables 9.3-2 and 9.3-13),
 // no data set, and the given status and error comment (truncated with
-// TruncateComment). Calling it on a response or on C-CANCEL-RQ, which has
+// truncateComment). Calling it on a response or on C-CANCEL-RQ, which has
 // no response, yields a command Encode refuses.
 func (c *Command) Response(status Status, errorComment string) *Command {
 	return &Command{
@@ -255,6 +255,6 @@ func (c *Command) Response(status Status, errorComment string) *Command {
 		CommandDataSetType:        NoDataSet,
 		AffectedSOPInstanceUID:    c.AffectedSOPInstanceUID,
 		Status:                    status,
-		ErrorComment:              TruncateComment(errorComment),
+		ErrorComment:              truncateComment(errorComment),
 	}
 }

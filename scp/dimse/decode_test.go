@@ -130,22 +130,22 @@ func TestDecodeRejectsMalformedCommandSets(t *testing.T) {
 		in   []byte
 		want error
 	}{
-		{"an empty input has no command field", nil, ErrMissingElement},
-		{"a half element header is truncated", []byte{0, 0, 0, 1}, ErrTruncated},
-		{"a value longer than the input is truncated", cat(el(0x0000, 0x0100, 2, us(0x30))[:8], []byte{0x30}), ErrTruncated},
-		{"an undefined length is truncated, not allocated", cat([]byte{0, 0, 0x02, 0, 0xFF, 0xFF, 0xFF, 0xFF}, []byte("1.2")), ErrTruncated},
-		{"a 4 GiB length is refused before allocating", cat([]byte{0, 0, 0x00, 0x40, 0xFE, 0xFF, 0xFF, 0xFF}), ErrTruncated},
-		{"an element of group 0008 does not belong in a command", gl(cat(field, dsType, el(0x0008, 0x0016, 2, str("12")))), ErrNotCommandGroup},
-		{"a group length too small is a mismatch", cat(el(0x0000, 0x0000, 4, ul(10)), field, dsType), ErrGroupLength},
-		{"a group length too large is a mismatch", cat(el(0x0000, 0x0000, 4, ul(30)), field, dsType), ErrGroupLength},
-		{"a group length of 3 bytes has the wrong size", cat(el(0x0000, 0x0000, 3, []byte{20, 0, 0}), field, dsType), ErrValueLength},
-		{"a US of 4 bytes has the wrong size", gl(cat(el(0x0000, 0x0100, 4, ul(0x30)), dsType)), ErrValueLength},
-		{"an AT of 6 bytes has the wrong size", gl(cat(field, dsType, el(0x0000, 0x0901, 6, []byte{1, 2, 3, 4, 5, 6}))), ErrValueLength},
-		{"elements out of order are refused", gl(cat(dsType, field)), ErrElementOrder},
-		{"a repeated element is refused", gl(cat(field, field, dsType)), ErrElementOrder},
-		{"a missing command field is refused", gl(dsType), ErrMissingElement},
-		{"a missing data set type is refused", gl(field), ErrMissingElement},
-		{"a response without status is refused rather than read as success", gl(cat(el(0x0000, 0x0100, 2, us(0x8030)), el(0x0000, 0x0120, 2, us(1)), dsType)), ErrMissingElement},
+		{"an empty input has no command field", nil, errMissingElement},
+		{"a half element header is truncated", []byte{0, 0, 0, 1}, errTruncated},
+		{"a value longer than the input is truncated", cat(el(0x0000, 0x0100, 2, us(0x30))[:8], []byte{0x30}), errTruncated},
+		{"an undefined length is truncated, not allocated", cat([]byte{0, 0, 0x02, 0, 0xFF, 0xFF, 0xFF, 0xFF}, []byte("1.2")), errTruncated},
+		{"a 4 GiB length is refused before allocating", cat([]byte{0, 0, 0x00, 0x40, 0xFE, 0xFF, 0xFF, 0xFF}), errTruncated},
+		{"an element of group 0008 does not belong in a command", gl(cat(field, dsType, el(0x0008, 0x0016, 2, str("12")))), errNotCommandGroup},
+		{"a group length too small is a mismatch", cat(el(0x0000, 0x0000, 4, ul(10)), field, dsType), errGroupLength},
+		{"a group length too large is a mismatch", cat(el(0x0000, 0x0000, 4, ul(30)), field, dsType), errGroupLength},
+		{"a group length of 3 bytes has the wrong size", cat(el(0x0000, 0x0000, 3, []byte{20, 0, 0}), field, dsType), errValueLength},
+		{"a US of 4 bytes has the wrong size", gl(cat(el(0x0000, 0x0100, 4, ul(0x30)), dsType)), errValueLength},
+		{"an AT of 6 bytes has the wrong size", gl(cat(field, dsType, el(0x0000, 0x0901, 6, []byte{1, 2, 3, 4, 5, 6}))), errValueLength},
+		{"elements out of order are refused", gl(cat(dsType, field)), errElementOrder},
+		{"a repeated element is refused", gl(cat(field, field, dsType)), errElementOrder},
+		{"a missing command field is refused", gl(dsType), errMissingElement},
+		{"a missing data set type is refused", gl(field), errMissingElement},
+		{"a response without status is refused rather than read as success", gl(cat(el(0x0000, 0x0100, 2, us(0x8030)), el(0x0000, 0x0120, 2, us(1)), dsType)), errMissingElement},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -176,7 +176,7 @@ func TestDecodeFailsOnEveryTruncation(t *testing.T) {
 
 func TestDecodeFailsOnTrailingGarbage(t *testing.T) {
 	b := append(mustEncode(NewCEchoRQ(1)), 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00)
-	if _, err := Decode(b); !errors.Is(err, ErrGroupLength) && !errors.Is(err, ErrElementOrder) {
+	if _, err := Decode(b); !errors.Is(err, errGroupLength) && !errors.Is(err, errElementOrder) {
 		t.Fatalf("Decode with 8 extra bytes: %v, want a group length or order error", err)
 	}
 }

@@ -253,7 +253,7 @@ func TestEncodeRefusesCommandsThatBreakTheirTable(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			b, err := tt.cmd.Encode()
-			if !errors.Is(err, ErrInvalidCommand) {
+			if !errors.Is(err, errInvalidCommand) {
 				t.Fatalf("Encode = % X, %v; want ErrInvalidCommand", b, err)
 			}
 			if !strings.HasPrefix(err.Error(), "dimse: ") {

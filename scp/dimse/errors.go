@@ -10,29 +10,29 @@ import (
 // every command Encode refuses, wraps exactly one of these (test with
 // errors.Is); the wrapping message adds the tag and the numbers involved.
 var (
-	// ErrTruncated: the command set ends inside an element header or
+	// errTruncated: the command set ends inside an element header or
 	// value.
-	ErrTruncated = errors.New("dimse: truncated command set")
-	// ErrNotCommandGroup: an element outside group 0000 appears in the
+	errTruncated = errors.New("dimse: truncated command set")
+	// errNotCommandGroup: an element outside group 0000 appears in the
 	// command set (PS3.7 6.3.1: a command set holds group 0000 only).
-	ErrNotCommandGroup = errors.New("dimse: element outside command group 0000")
-	// ErrGroupLength: Command Group Length (0000,0000) disagrees with the
+	errNotCommandGroup = errors.New("dimse: element outside command group 0000")
+	// errGroupLength: Command Group Length (0000,0000) disagrees with the
 	// number of bytes that follow it (PS3.7 E.1).
-	ErrGroupLength = errors.New("dimse: command group length mismatch")
-	// ErrElementOrder: elements are not in strictly ascending tag order,
+	errGroupLength = errors.New("dimse: command group length mismatch")
+	// errElementOrder: elements are not in strictly ascending tag order,
 	// which also catches repeated elements (PS3.5 7.1).
-	ErrElementOrder = errors.New("dimse: elements out of order or repeated")
-	// ErrValueLength: a known element has a value length its VR forbids,
+	errElementOrder = errors.New("dimse: elements out of order or repeated")
+	// errValueLength: a known element has a value length its VR forbids,
 	// e.g. a US that is not 2 bytes (PS3.5 6.2).
-	ErrValueLength = errors.New("dimse: bad value length")
-	// ErrMissingElement: a mandatory element is absent: Command Field and
+	errValueLength = errors.New("dimse: bad value length")
+	// errMissingElement: a mandatory element is absent: Command Field and
 	// Command Data Set Type in every command, Status in every response
 	// (PS3.7 9.3 and 10.3 message tables).
-	ErrMissingElement = errors.New("dimse: missing mandatory element")
-	// ErrInvalidCommand: Encode was given a command that would break the
+	errMissingElement = errors.New("dimse: missing mandatory element")
+	// errInvalidCommand: Encode was given a command that would break the
 	// PS3.7 message tables, e.g. a C-STORE-RQ without an Affected SOP
 	// Instance UID.
-	ErrInvalidCommand = errors.New("dimse: invalid command")
+	errInvalidCommand = errors.New("dimse: invalid command")
 )
 
 // MaxCommentLen is the longest Error Comment (0000,0902) we send: its VR
@@ -45,7 +45,7 @@ const MaxCommentLen = 64
 type StatusError struct {
 	// Status is sent as Status (0000,0900).
 	Status Status
-	// Comment is sent as Error Comment (0000,0902), after TruncateComment.
+	// Comment is sent as Error Comment (0000,0902), after truncateComment.
 	// It goes to the peer: never put patient identifiers in it.
 	Comment string
 	// Err is the underlying cause, for local logs and errors.Is; it is
@@ -115,7 +115,7 @@ func (e *StatusError) Unwrap() error {
 //   - any other error: StatusProcessingFailure (0110H, PS3.7 C.5) with the
 //     error text as comment.
 //
-// The comment is always passed through TruncateComment, so it is ready
+// The comment is always passed through truncateComment, so it is ready
 // for Error Comment (0000,0902). Error texts reach the peer: keep patient
 // identifiers out of them.
 func StatusOf(err error) (Status, string) {
@@ -124,19 +124,19 @@ func StatusOf(err error) (Status, string) {
 	}
 	var se *StatusError
 	if errors.As(err, &se) && se != nil {
-		return se.Status, TruncateComment(se.Comment)
+		return se.Status, truncateComment(se.Comment)
 	}
-	return StatusProcessingFailure, TruncateComment(err.Error())
+	return StatusProcessingFailure, truncateComment(err.Error())
 }
 
-// TruncateComment makes s a valid LO value for Error Comment (0000,0902):
+// truncateComment makes s a valid LO value for Error Comment (0000,0902):
 // control characters (including CR, LF and TAB) become spaces, a
 // backslash, which LO forbids, becomes '/', and characters outside the
 // default repertoire become '?' (a command set has no Specific Character
 // Set, so only ISO-IR 6 applies; PS3.5 6.1.2 and 6.2). The result is cut
 // to MaxCommentLen characters and trailing spaces, which are padding in
 // LO, are dropped.
-func TruncateComment(s string) string {
+func truncateComment(s string) string {
 	var b strings.Builder
 	n := 0
 	for _, r := range s {

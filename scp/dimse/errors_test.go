@@ -26,14 +26,14 @@ func TestTruncateComment(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got := TruncateComment(tt.in)
+			got := truncateComment(tt.in)
 			if got != tt.want {
 				t.Errorf("TruncateComment(%q) = %q, want %q", tt.in, got, tt.want)
 			}
 			if len(got) > MaxCommentLen {
 				t.Errorf("length %d > %d", len(got), MaxCommentLen) // PS3.5 Table 6.2-1
 			}
-			if again := TruncateComment(got); again != got {
+			if again := truncateComment(got); again != got {
 				t.Errorf("not idempotent: %q then %q", got, again)
 			}
 		})

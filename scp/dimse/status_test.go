@@ -90,7 +90,7 @@ func TestCommandFieldNamesAndDirection(t *testing.T) {
 			if got := tt.field.String(); got != tt.name {
 				t.Errorf("String() = %q", got)
 			}
-			if got := tt.field.IsRequest(); got != tt.request {
+			if got := tt.field.isRequest(); got != tt.request {
 				t.Errorf("IsRequest() = %v", got)
 			}
 		})

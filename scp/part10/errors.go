@@ -6,7 +6,7 @@ import (
 )
 
 // Sentinel errors. Callers test for them with errors.Is; the reader wraps them
-// in an *ElementError when the fault belongs to one element.
+// in an *elementError when the fault belongs to one element.
 var (
 	// ErrNotPart10 means the input has no 128-byte preamble followed by
 	// "DICM" (PS3.10 7.1), so it is not a DICOM Part 10 file. Input shorter
@@ -17,48 +17,48 @@ var (
 	// ErrTruncated means the input ended inside the File Meta Information.
 	ErrTruncated = errors.New("part10: file meta information truncated")
 
-	// ErrBadVR means an element header in group 0002 does not carry an
+	// errBadVR means an element header in group 0002 does not carry an
 	// explicit VR we know; the group is always Explicit VR Little Endian
 	// (PS3.10 7.1), so this is a damaged or non-conformant file.
-	ErrBadVR = errors.New("part10: invalid value representation in file meta information")
+	errBadVR = errors.New("part10: invalid value representation in file meta information")
 
 	// ErrValueTooLong means an element's value length is above the limit
-	// this package accepts for its VR (see MaxValueLength and
-	// MaxBinaryValueLength).
+	// this package accepts for its VR (see maxValueLength and
+	// maxBinaryValueLength).
 	ErrValueTooLong = errors.New("part10: file meta element value too long")
 
-	// ErrUndefinedLength means an element in group 0002 has undefined
+	// errUndefinedLength means an element in group 0002 has undefined
 	// length (FFFFFFFFH); no File Meta Element may (PS3.10 7.1 Table 7.1-1
 	// lists no sequences).
-	ErrUndefinedLength = errors.New("part10: undefined length in file meta information")
+	errUndefinedLength = errors.New("part10: undefined length in file meta information")
 
-	// ErrMetaTooLong means the File Meta Information is longer than
-	// MaxMetaLength, by its group length or by what was read.
-	ErrMetaTooLong = errors.New("part10: file meta information too long")
+	// errMetaTooLong means the File Meta Information is longer than
+	// maxMetaLength, by its group length or by what was read.
+	errMetaTooLong = errors.New("part10: file meta information too long")
 
-	// ErrBadGroupLength means (0002,0000) is present but is not a 4-byte UL.
-	ErrBadGroupLength = errors.New("part10: malformed file meta information group length")
+	// errBadGroupLength means (0002,0000) is present but is not a 4-byte UL.
+	errBadGroupLength = errors.New("part10: malformed file meta information group length")
 
 	// ErrNoTransferSyntax means the File Meta Information has no Transfer
 	// Syntax UID (0002,0010), without which the data set cannot be read.
 	ErrNoTransferSyntax = errors.New("part10: file meta information has no transfer syntax UID")
 
-	// ErrInvalidMeta means WriteHeader was given a Meta it cannot encode
+	// errInvalidMeta means WriteHeader was given a Meta it cannot encode
 	// conformantly (missing Type 1 UID, value too long, bad characters).
-	ErrInvalidMeta = errors.New("part10: invalid file meta information")
+	errInvalidMeta = errors.New("part10: invalid file meta information")
 )
 
-// ElementError reports a fault in one File Meta Element, with the byte offset
+// elementError reports a fault in one File Meta Element, with the byte offset
 // of the element's tag in the file.
-type ElementError struct {
+type elementError struct {
 	Tag    Tag
 	Offset int64
 	Err    error
 }
 
-func (e *ElementError) Error() string {
+func (e *elementError) Error() string {
 	return fmt.Sprintf("%v (element %v at offset %d)", e.Err, e.Tag, e.Offset)
 }
 
 // Unwrap returns the sentinel the fault is an instance of.
-func (e *ElementError) Unwrap() error { return e.Err }
+func (e *elementError) Unwrap() error { return e.Err }

@@ -22,7 +22,7 @@ func FuzzReadMeta(f *testing.F) {
 			f.Fatal(err)
 		}
 		f.Add(b)
-		if len(b) > HeaderStart+12 && string(b[PreambleLength:HeaderStart]) == Prefix {
+		if len(b) > headerStart+12 && string(b[preambleLength:headerStart]) == prefix {
 			f.Add(withoutGroupLength(b))
 		}
 	}
@@ -33,7 +33,7 @@ func FuzzReadMeta(f *testing.F) {
 		if err != nil {
 			return
 		}
-		if off < HeaderStart || off > int64(len(data)) {
+		if off < headerStart || off > int64(len(data)) {
 			t.Fatalf("offset %d outside input of %d bytes", off, len(data))
 		}
 		if m.TransferSyntaxUID == "" {

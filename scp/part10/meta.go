@@ -21,32 +21,32 @@ const (
 
 // Layout of the envelope (PS3.10 7.1).
 const (
-	// PreambleLength is the size of the File Preamble.
-	PreambleLength = 128
-	// Prefix is the DICOM Prefix that follows the preamble.
-	Prefix = "DICM"
-	// HeaderStart is the offset of the first File Meta Element.
-	HeaderStart = PreambleLength + 4 // + len(Prefix), kept untyped
+	// preambleLength is the size of the File Preamble.
+	preambleLength = 128
+	// prefix is the DICOM Prefix that follows the preamble.
+	prefix = "DICM"
+	// headerStart is the offset of the first File Meta Element.
+	headerStart = preambleLength + 4 // + len(Prefix), kept untyped
 )
 
 // Limits on what ReadMeta accepts. Every length read from a file is checked
 // against one of them before anything is allocated for it.
 const (
-	// MaxValueLength caps the value of any File Meta Element that is not
+	// maxValueLength caps the value of any File Meta Element that is not
 	// binary. The longest text values group 0002 defines are UIs (64 bytes,
 	// PS3.5 6.2) and the UR presentation addresses; 1 KiB holds all of them
 	// with room for sloppy writers, and no more can be legitimate.
-	MaxValueLength = 1 << 10
+	maxValueLength = 1 << 10
 
-	// MaxBinaryValueLength caps OB/OW/UN values: Private Information
+	// maxBinaryValueLength caps OB/OW/UN values: Private Information
 	// (0002,0102) is OB of no set size, and the real-time video elements
 	// are OB. 64 KiB is far above anything seen in practice (common
 	// practice) while keeping one hostile file to a small allocation.
-	MaxBinaryValueLength = 64 << 10
+	maxBinaryValueLength = 64 << 10
 
-	// MaxMetaLength caps the whole File Meta Information after (0002,0000):
+	// maxMetaLength caps the whole File Meta Information after (0002,0000):
 	// room for two maximal binary elements plus all the text ones.
-	MaxMetaLength = 2*MaxBinaryValueLength + 64*MaxValueLength
+	maxMetaLength = 2*maxBinaryValueLength + 64*maxValueLength
 
 	// lookahead is how many bytes ReadMeta peeks to see whether the next
 	// element is still in group 0002: the group number is the first two
@@ -72,14 +72,14 @@ const metaGroup = 0x0002
 // Tag is a data element tag, group in the high 16 bits.
 type Tag uint32
 
-// Group returns the group number.
-func (t Tag) Group() uint16 { return uint16(t >> 16) }
+// group returns the group number.
+func (t Tag) group() uint16 { return uint16(t >> 16) }
 
-// Element returns the element number.
-func (t Tag) Element() uint16 { return uint16(t) }
+// element returns the element number.
+func (t Tag) element() uint16 { return uint16(t) }
 
 // String formats the tag the way the standard prints it, "(0002,0010)".
-func (t Tag) String() string { return fmt.Sprintf("(%04X,%04X)", t.Group(), t.Element()) }
+func (t Tag) String() string { return fmt.Sprintf("(%04X,%04X)", t.group(), t.element()) }
 
 // Element is one File Meta Element that Meta has no field for, kept raw so
 // that a file can be rewritten without losing it.

@@ -96,17 +96,17 @@ func (s *source) peekErr(err error) error {
 // have been consumed from r. Callers that go on reading the data set from r
 // should pass a *bufio.Reader, or seek to the offset.
 //
-// Every length is checked against MaxValueLength, MaxBinaryValueLength and
-// MaxMetaLength before it is used. Input without the prefix gives
+// Every length is checked against maxValueLength, maxBinaryValueLength and
+// maxMetaLength before it is used. Input without the prefix gives
 // ErrNotPart10; other faults give the sentinels in errors.go, wrapped in an
-// *ElementError where one element is at fault.
+// *elementError where one element is at fault.
 func ReadMeta(r io.Reader) (Meta, int64, error) {
 	s := &source{r: r}
 	if p, ok := r.(peeker); ok {
 		s.p = p
 	}
 
-	var head [HeaderStart]byte
+	var head [headerStart]byte
 	if err := s.read(head[:]); err != nil {
 		if errors.Is(err, ErrTruncated) {
 			return Meta{}, 0, ErrNotPart10
@@ -114,13 +114,13 @@ func ReadMeta(r io.Reader) (Meta, int64, error) {
 		return Meta{}, 0, err
 	}
 	// PS3.10 7.1: the preamble's content is not to be relied on; the prefix is.
-	if string(head[PreambleLength:]) != Prefix {
+	if string(head[preambleLength:]) != prefix {
 		return Meta{}, 0, ErrNotPart10
 	}
 
 	var m Meta
 	var end int64 = -1          // offset where the group length says group 0002 ends
-	start := int64(HeaderStart) // where the bytes MaxMetaLength counts begin
+	start := int64(headerStart) // where the bytes maxMetaLength counts begin
 	first := true
 	for {
 		if end >= 0 && s.pos >= end {
@@ -138,21 +138,21 @@ func ReadMeta(r io.Reader) (Meta, int64, error) {
 		if err != nil {
 			return Meta{}, 0, err
 		}
-		if s.pos-start > MaxMetaLength {
-			return Meta{}, 0, &ElementError{Tag: e.Tag, Offset: at,
-				Err: fmt.Errorf("%w: more than %d bytes", ErrMetaTooLong, MaxMetaLength)}
+		if s.pos-start > maxMetaLength {
+			return Meta{}, 0, &elementError{Tag: e.Tag, Offset: at,
+				Err: fmt.Errorf("%w: more than %d bytes", errMetaTooLong, maxMetaLength)}
 		}
 		if e.Tag == TagGroupLength {
 			if !first {
-				return Meta{}, 0, &ElementError{Tag: e.Tag, Offset: at, Err: ErrBadGroupLength}
+				return Meta{}, 0, &elementError{Tag: e.Tag, Offset: at, Err: errBadGroupLength}
 			}
 			if e.VR != "UL" || len(e.Value) != 4 {
-				return Meta{}, 0, &ElementError{Tag: e.Tag, Offset: at, Err: ErrBadGroupLength}
+				return Meta{}, 0, &elementError{Tag: e.Tag, Offset: at, Err: errBadGroupLength}
 			}
 			n := binary.LittleEndian.Uint32(e.Value)
-			if n > MaxMetaLength {
-				return Meta{}, 0, &ElementError{Tag: e.Tag, Offset: at,
-					Err: fmt.Errorf("%w: group length %d", ErrMetaTooLong, n)}
+			if n > maxMetaLength {
+				return Meta{}, 0, &elementError{Tag: e.Tag, Offset: at,
+					Err: fmt.Errorf("%w: group length %d", errMetaTooLong, n)}
 			}
 			start = s.pos
 			end = s.pos + int64(n)
@@ -191,29 +191,37 @@ func ReadMetaFile(path string) (Meta, int64, error) {
 	return m, off, nil
 }
 
-// vrLength says how an explicit VR header encodes the value length (PS3.5
-// 7.1.2, Table 7.1-1): long VRs have two reserved bytes and a 32-bit length,
-// the others a 16-bit length. ok is false for a VR PS3.5 does not define.
-func vrLength(vr string) (long, ok bool) {
+// LongLengthVR reports whether an explicit VR element header with vr has
+// two reserved bytes and a 32-bit value length rather than a 16-bit one
+// (PS3.5 7.1.2, Table 7.1-1). It is the one table of them in the module.
+func LongLengthVR(vr string) bool {
 	switch vr {
 	case "OB", "OD", "OF", "OL", "OV", "OW", "SQ", "SV", "UC", "UN", "UR", "UT", "UV":
-		return true, true
-	case "AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
-		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US":
-		return false, true
+		return true
 	}
-	return false, false
+	return false
 }
 
-// valueLimit is the largest value ReadMeta and WriteHeader accept for vr:
-// binary VRs may carry up to MaxBinaryValueLength bytes, the rest
-// MaxValueLength.
+// knownVR reports whether vr is one of the value representations PS3.5 6.2
+// Table 6.2-1 defines.
+func knownVR(vr string) bool {
+	switch vr {
+	case "AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
+		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US":
+		return true
+	}
+	return LongLengthVR(vr)
+}
+
+// valueLimit is the largest value ReadMeta and AppendHeader accept for vr:
+// binary VRs may carry up to maxBinaryValueLength bytes, the rest
+// maxValueLength.
 func valueLimit(vr string) int {
 	switch vr {
 	case "OB", "OW", "UN":
-		return MaxBinaryValueLength
+		return maxBinaryValueLength
 	}
-	return MaxValueLength
+	return maxValueLength
 }
 
 // readElement reads one Explicit VR Little Endian element (PS3.5 7.1.2).
@@ -226,11 +234,10 @@ func readElement(s *source) (Element, error) {
 	tag := Tag(uint32(binary.LittleEndian.Uint16(h[0:2]))<<16 | uint32(binary.LittleEndian.Uint16(h[2:4])))
 	vr := string(h[4:6])
 	var length uint32
-	long, ok := vrLength(vr)
 	switch {
-	case !ok:
-		return Element{}, &ElementError{Tag: tag, Offset: at, Err: fmt.Errorf("%w %q", ErrBadVR, vr)}
-	case !long:
+	case !knownVR(vr):
+		return Element{}, &elementError{Tag: tag, Offset: at, Err: fmt.Errorf("%w %q", errBadVR, vr)}
+	case !LongLengthVR(vr):
 		length = uint32(binary.LittleEndian.Uint16(h[6:8]))
 	default:
 		var l [4]byte
@@ -239,12 +246,12 @@ func readElement(s *source) (Element, error) {
 		}
 		length = binary.LittleEndian.Uint32(l[:])
 		if length == 0xFFFFFFFF {
-			return Element{}, &ElementError{Tag: tag, Offset: at, Err: ErrUndefinedLength}
+			return Element{}, &elementError{Tag: tag, Offset: at, Err: errUndefinedLength}
 		}
 	}
 	limit := uint32(valueLimit(vr))
 	if length > limit {
-		return Element{}, &ElementError{Tag: tag, Offset: at,
+		return Element{}, &elementError{Tag: tag, Offset: at,
 			Err: fmt.Errorf("%w: %d bytes of %s, limit %d", ErrValueTooLong, length, vr, limit)}
 	}
 	value := make([]byte, length)

@@ -36,18 +36,18 @@ func readTestdata(t testing.TB, name string) []byte {
 // withoutGroupLength removes (0002,0000), the 12 bytes after the prefix, from
 // a file that has it.
 func withoutGroupLength(b []byte) []byte {
-	out := append([]byte{}, b[:HeaderStart]...)
-	return append(out, b[HeaderStart+12:]...)
+	out := append([]byte{}, b[:headerStart]...)
+	return append(out, b[headerStart+12:]...)
 }
 
 // withGroupLength rewrites the value of (0002,0000).
 func withGroupLength(b []byte, n uint32) []byte {
 	out := append([]byte{}, b...)
-	binary.LittleEndian.PutUint32(out[HeaderStart+8:], n)
+	binary.LittleEndian.PutUint32(out[headerStart+8:], n)
 	return out
 }
 
-func groupLength(b []byte) uint32 { return binary.LittleEndian.Uint32(b[HeaderStart+8:]) }
+func groupLength(b []byte) uint32 { return binary.LittleEndian.Uint32(b[headerStart+8:]) }
 
 // version is (0002,0001) as ReadMeta keeps it in Other.
 var version = Element{Tag: TagFileMetaInformationVersion, VR: "OB", Value: []byte{0x00, 0x01}}
@@ -96,8 +96,8 @@ func variants(t testing.TB) []variant {
 	implicit := readTestdata(t, "implicit.dcm")
 	// PS3.10 7.1 Table 7.1-1: the group length counts the bytes after the
 	// 12-byte (0002,0000) element up to the end of group 0002.
-	explicitOff := int64(HeaderStart) + 12 + int64(groupLength(explicit))
-	implicitOff := int64(HeaderStart) + 12 + int64(groupLength(implicit))
+	explicitOff := int64(headerStart) + 12 + int64(groupLength(explicit))
+	implicitOff := int64(headerStart) + 12 + int64(groupLength(implicit))
 	return []variant{
 		{"an explicit VR file written by DCMTK", explicit, explicitMeta, explicitOff, 0},
 		{"an implicit VR file written by DCMTK", implicit, implicitMeta, implicitOff, 0},
@@ -136,19 +136,19 @@ func TestReadMetaAgreesWithDCMDump(t *testing.T) {
 			if err := os.WriteFile(path, v.data, 0o644); err != nil {
 				t.Fatal(err)
 			}
-			d := runDCMDump(t, path)
+			d := scptest.DCMDump(t, path)
 			m, off, err := ReadMeta(bytes.NewReader(v.data))
 			if err != nil {
 				t.Fatal(err)
 			}
 			checkAgainstDump(t, m, d)
-			if gl, ok := d.values["0002,0000"]; ok && v.ahead == 0 {
+			if gl, ok := d.Values["0002,0000"]; ok && v.ahead == 0 {
 				n, err := strconv.Atoi(gl)
 				if err != nil {
 					t.Fatal(err)
 				}
 				// DCMTK dcmdump output: group length; PS3.10 7.1 Table 7.1-1.
-				if want := int64(HeaderStart + 12 + n); off != want {
+				if want := int64(headerStart + 12 + n); off != want {
 					t.Errorf("offset %d, dcmdump's group length %d puts it at %d", off, n, want)
 				}
 			}
@@ -157,7 +157,7 @@ func TestReadMetaAgreesWithDCMDump(t *testing.T) {
 }
 
 // checkAgainstDump compares the named fields of m with dcmdump's values.
-func checkAgainstDump(t *testing.T, m Meta, d dcmDump) {
+func checkAgainstDump(t *testing.T, m Meta, d scptest.Dump) {
 	t.Helper()
 	fields := []struct {
 		tag, got string
@@ -170,7 +170,7 @@ func checkAgainstDump(t *testing.T, m Meta, d dcmDump) {
 		{"0002,0016", m.SourceApplicationEntityTitle}, // DCMTK dcmdump output
 	}
 	for _, f := range fields {
-		if want := d.values[f.tag]; f.got != want {
+		if want := d.Values[f.tag]; f.got != want {
 			t.Errorf("(%s) = %q, dcmdump says %q", f.tag, f.got, want)
 		}
 	}
@@ -198,7 +198,7 @@ func TestReadMetaReadsFreshDCMTKFiles(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			checkAgainstDump(t, m, runDCMDump(t, out))
+			checkAgainstDump(t, m, scptest.DCMDump(t, out))
 			data, err := os.ReadFile(out)
 			if err != nil {
 				t.Fatal(err)
@@ -222,8 +222,8 @@ func TestReadMetaRejectsFilesThatAreNotPart10(t *testing.T) {
 		{"a file shorter than the preamble", make([]byte, 100)},
 		{"a preamble of zeros without the prefix", make([]byte, 400)},
 		{"a prefix at offset 0 without the preamble", append([]byte("DICM"), make([]byte, 300)...)},
-		{"a data set without file meta information", readTestdata(t, "explicit.dcm")[HeaderStart+12+groupLength(readTestdata(t, "explicit.dcm")):]},
-		{"a prefix in lower case", append(make([]byte, PreambleLength), []byte("dicm\x02\x00\x00\x00UL\x04\x00\x00\x00\x00\x00")...)},
+		{"a data set without file meta information", readTestdata(t, "explicit.dcm")[headerStart+12+groupLength(readTestdata(t, "explicit.dcm")):]},
+		{"a prefix in lower case", append(make([]byte, preambleLength), []byte("dicm\x02\x00\x00\x00UL\x04\x00\x00\x00\x00\x00")...)},
 	}
 	for _, c := range cases {
 		t.Run("it rejects "+c.name, func(t *testing.T) {
@@ -259,10 +259,10 @@ func TestReadMetaFailsOnEveryTruncation(t *testing.T) {
 						if err == nil {
 							t.Fatalf("cut at %d of %d: no error", n, v.offset)
 						}
-						if n < HeaderStart && !errors.Is(err, ErrNotPart10) {
+						if n < headerStart && !errors.Is(err, ErrNotPart10) {
 							t.Fatalf("cut at %d: err = %v, want ErrNotPart10", n, err)
 						}
-						if n >= HeaderStart && !errors.Is(err, ErrTruncated) {
+						if n >= headerStart && !errors.Is(err, ErrTruncated) {
 							t.Fatalf("cut at %d: err = %v, want ErrTruncated", n, err)
 						}
 					default:
@@ -301,12 +301,11 @@ func TestReadMetaLeavesAPeekableReaderAtTheDataSet(t *testing.T) {
 // element encodes one Explicit VR Little Endian element for crafted inputs,
 // without the limits WriteHeader applies (PS3.5 7.1.2).
 func element(tag Tag, vr string, value []byte) []byte {
-	long, _ := vrLength(vr)
-	if long {
+	if LongLengthVR(vr) {
 		return append(longHeader(tag, vr, uint32(len(value))), value...)
 	}
-	b := binary.LittleEndian.AppendUint16(nil, tag.Group())
-	b = binary.LittleEndian.AppendUint16(b, tag.Element())
+	b := binary.LittleEndian.AppendUint16(nil, tag.group())
+	b = binary.LittleEndian.AppendUint16(b, tag.element())
 	b = append(b, vr...)
 	b = binary.LittleEndian.AppendUint16(b, uint16(len(value)))
 	return append(b, value...)
@@ -315,7 +314,7 @@ func element(tag Tag, vr string, value []byte) []byte {
 // crafted builds preamble, prefix, the given raw elements and a data set
 // that starts with group 0008.
 func crafted(elems ...[]byte) []byte {
-	b := append(make([]byte, PreambleLength), Prefix...)
+	b := append(make([]byte, preambleLength), prefix...)
 	for _, e := range elems {
 		b = append(b, e...)
 	}
@@ -324,8 +323,8 @@ func crafted(elems ...[]byte) []byte {
 
 // longHeader is a 32-bit-length element header claiming length n.
 func longHeader(tag Tag, vr string, n uint32) []byte {
-	b := binary.LittleEndian.AppendUint16(nil, tag.Group())
-	b = binary.LittleEndian.AppendUint16(b, tag.Element())
+	b := binary.LittleEndian.AppendUint16(nil, tag.group())
+	b = binary.LittleEndian.AppendUint16(b, tag.element())
 	b = append(b, vr...)
 	b = append(b, 0, 0)
 	return binary.LittleEndian.AppendUint32(b, n)
@@ -337,42 +336,42 @@ var ts = element(TagTransferSyntaxUID, "UI", []byte("1.2.840.10008.1.2.1\x00"))
 
 func TestReadMetaRejectsMalformedMetaInformation(t *testing.T) {
 	many := [][]byte{}
-	for i := 0; i < MaxMetaLength/(MaxValueLength+8)+2; i++ {
-		many = append(many, element(0x00020100, "UI", bytes.Repeat([]byte("1"), MaxValueLength)))
+	for i := 0; i < maxMetaLength/(maxValueLength+8)+2; i++ {
+		many = append(many, element(0x00020100, "UI", bytes.Repeat([]byte("1"), maxValueLength)))
 	}
 	cases := []struct {
 		name string
 		data []byte
 		want error
-		tag  Tag // of the *ElementError, 0 when none is expected
+		tag  Tag // of the *elementError, 0 when none is expected
 	}{
-		{"a text value longer than MaxValueLength", crafted(ts, longHeader(0x00020026, "UR", MaxValueLength+1)),
+		{"a text value longer than MaxValueLength", crafted(ts, longHeader(0x00020026, "UR", maxValueLength+1)),
 			ErrValueTooLong, 0x00020026},
-		{"a UI value longer than MaxValueLength", crafted(element(TagMediaStorageSOPClassUID, "UI", make([]byte, MaxValueLength+2)), ts),
+		{"a UI value longer than MaxValueLength", crafted(element(TagMediaStorageSOPClassUID, "UI", make([]byte, maxValueLength+2)), ts),
 			ErrValueTooLong, TagMediaStorageSOPClassUID},
-		{"an OB value longer than MaxBinaryValueLength", crafted(ts, longHeader(0x00020102, "OB", MaxBinaryValueLength+1)),
+		{"an OB value longer than MaxBinaryValueLength", crafted(ts, longHeader(0x00020102, "OB", maxBinaryValueLength+1)),
 			ErrValueTooLong, 0x00020102},
 		{"an OB value claiming 4 GiB", crafted(ts, longHeader(0x00020102, "OB", 0xFFFFFFFE)),
 			ErrValueTooLong, 0x00020102},
 		{"an undefined length", crafted(ts, longHeader(0x00020102, "OB", 0xFFFFFFFF)),
-			ErrUndefinedLength, 0x00020102},
+			errUndefinedLength, 0x00020102},
 		{"a sequence", crafted(ts, longHeader(0x00020102, "SQ", 0xFFFFFFFF)),
-			ErrUndefinedLength, 0x00020102},
+			errUndefinedLength, 0x00020102},
 		{"an unknown VR", crafted(ts, []byte{0x02, 0x00, 0x12, 0x00, 'z', 'z', 0x02, 0x00, '1', 0x00}),
-			ErrBadVR, TagImplementationClassUID},
+			errBadVR, TagImplementationClassUID},
 		{"implicit VR meta information", crafted([]byte{0x02, 0x00, 0x10, 0x00, 0x14, 0x00, 0x00, 0x00}, []byte("1.2.840.10008.1.2.1\x00")),
-			ErrBadVR, TagTransferSyntaxUID},
-		{"a group length above MaxMetaLength", crafted(element(TagGroupLength, "UL", ul(MaxMetaLength+1)), ts),
-			ErrMetaTooLong, TagGroupLength},
+			errBadVR, TagTransferSyntaxUID},
+		{"a group length above MaxMetaLength", crafted(element(TagGroupLength, "UL", ul(maxMetaLength+1)), ts),
+			errMetaTooLong, TagGroupLength},
 		{"a group length that is not UL", crafted(element(TagGroupLength, "UI", []byte("12")), ts),
-			ErrBadGroupLength, TagGroupLength},
+			errBadGroupLength, TagGroupLength},
 		{"a group length of 2 bytes", crafted(element(TagGroupLength, "UL", []byte{1, 0}), ts),
-			ErrBadGroupLength, TagGroupLength},
+			errBadGroupLength, TagGroupLength},
 		{"no transfer syntax", crafted(element(TagMediaStorageSOPClassUID, "UI", []byte("1.2\x00"))),
 			ErrNoTransferSyntax, 0},
 		{"more meta information than MaxMetaLength without a group length", crafted(append([][]byte{ts}, many...)...),
-			ErrMetaTooLong, 0x00020100},
-		{"meta information that ends the file", append(append(make([]byte, PreambleLength), Prefix...), ts...),
+			errMetaTooLong, 0x00020100},
+		{"meta information that ends the file", append(append(make([]byte, preambleLength), prefix...), ts...),
 			ErrTruncated, 0},
 	}
 	for _, c := range cases {
@@ -381,7 +380,7 @@ func TestReadMetaRejectsMalformedMetaInformation(t *testing.T) {
 			if !errors.Is(err, c.want) {
 				t.Fatalf("err = %v, want %v", err, c.want)
 			}
-			var ee *ElementError
+			var ee *elementError
 			if c.tag != 0 {
 				if !errors.As(err, &ee) || ee.Tag != c.tag {
 					t.Fatalf("err = %v, want an *ElementError for %v", err, c.tag)
@@ -393,13 +392,13 @@ func TestReadMetaRejectsMalformedMetaInformation(t *testing.T) {
 
 func TestReadMetaAcceptsValuesUpToTheLimits(t *testing.T) {
 	data := crafted(ts,
-		element(0x00020100, "UI", bytes.Repeat([]byte("1"), MaxValueLength)),
-		element(0x00020102, "OB", make([]byte, MaxBinaryValueLength)))
+		element(0x00020100, "UI", bytes.Repeat([]byte("1"), maxValueLength)),
+		element(0x00020102, "OB", make([]byte, maxBinaryValueLength)))
 	m, _, err := ReadMeta(bytes.NewReader(data))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(m.Other) != 2 || len(m.Other[1].Value) != MaxBinaryValueLength {
+	if len(m.Other) != 2 || len(m.Other[1].Value) != maxBinaryValueLength {
 		t.Fatalf("other elements %d, want the 2 at their limits", len(m.Other))
 	}
 }

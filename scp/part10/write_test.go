@@ -4,11 +4,14 @@ import (
 	"bytes"
 	"encoding/binary"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
+
+	"dwiaudit/scp/scptest"
 )
 
 // written is a header made by WriteHeader and the meta ReadMeta should find.
@@ -113,28 +116,28 @@ func TestWriteHeaderLayout(t *testing.T) {
 	h := b.Bytes()
 	t.Run("the preamble is 128 zero bytes", func(t *testing.T) {
 		// PS3.10 7.1: all 128 bytes 00H when the preamble is not used.
-		if !bytes.Equal(h[:PreambleLength], make([]byte, PreambleLength)) {
+		if !bytes.Equal(h[:preambleLength], make([]byte, preambleLength)) {
 			t.Fatal("preamble is not zero")
 		}
 	})
 	t.Run("the prefix is DICM", func(t *testing.T) {
-		if string(h[PreambleLength:HeaderStart]) != "DICM" { // PS3.10 7.1
-			t.Fatalf("prefix %q", h[PreambleLength:HeaderStart])
+		if string(h[preambleLength:headerStart]) != "DICM" { // PS3.10 7.1
+			t.Fatalf("prefix %q", h[preambleLength:headerStart])
 		}
 	})
 	t.Run("the group length counts the bytes after it", func(t *testing.T) {
 		// PS3.10 7.1 Table 7.1-1 (0002,0000).
-		if want := []byte{0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0}; !bytes.Equal(h[HeaderStart:HeaderStart+8], want) {
-			t.Fatalf("group length header % x", h[HeaderStart:HeaderStart+8])
+		if want := []byte{0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0}; !bytes.Equal(h[headerStart:headerStart+8], want) {
+			t.Fatalf("group length header % x", h[headerStart:headerStart+8])
 		}
-		if n := binary.LittleEndian.Uint32(h[HeaderStart+8:]); int(n) != len(h)-HeaderStart-12 {
-			t.Fatalf("group length %d, %d bytes follow", n, len(h)-HeaderStart-12)
+		if n := binary.LittleEndian.Uint32(h[headerStart+8:]); int(n) != len(h)-headerStart-12 {
+			t.Fatalf("group length %d, %d bytes follow", n, len(h)-headerStart-12)
 		}
 	})
 	t.Run("elements are in ascending tag order, once each, with even lengths", func(t *testing.T) {
-		s := &source{r: bytes.NewReader(h[HeaderStart:])}
+		s := &source{r: bytes.NewReader(h[headerStart:])}
 		var tags []Tag
-		for int(s.pos) < len(h)-HeaderStart {
+		for int(s.pos) < len(h)-headerStart {
 			e, err := readElement(s)
 			if err != nil {
 				t.Fatal(err)
@@ -160,8 +163,8 @@ func TestWriteHeaderLayout(t *testing.T) {
 	t.Run("the version is 00 01", func(t *testing.T) {
 		// PS3.10 7.1 Table 7.1-1 (0002,0001): OB 00H 01H.
 		want := []byte{0x02, 0x00, 0x01, 0x00, 'O', 'B', 0, 0, 2, 0, 0, 0, 0x00, 0x01}
-		if !bytes.Equal(h[HeaderStart+12:HeaderStart+26], want) {
-			t.Fatalf("version element % x", h[HeaderStart+12:HeaderStart+26])
+		if !bytes.Equal(h[headerStart+12:headerStart+26], want) {
+			t.Fatalf("version element % x", h[headerStart+12:headerStart+26])
 		}
 	})
 }
@@ -198,7 +201,6 @@ func TestWriteHeaderRejectsInvalidMeta(t *testing.T) {
 		{"a UID of 65 characters", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25." + strings.Repeat("1", 60) })},
 		{"a UID with a letter", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25.1a" })},
 		{"a UID with an empty component", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25..1" })},
-		{"a UID with a leading zero", with(func(m *Meta) { m.MediaStorageSOPInstanceUID = "2.25.01" })},
 		{"a UID with its padding", with(func(m *Meta) { m.TransferSyntaxUID = "1.2.840.10008.1.2\x00" })},
 		{"a version name of 17 characters", with(func(m *Meta) { m.ImplementationVersionName = strings.Repeat("V", 17) })},
 		{"an AE title of 17 characters", with(func(m *Meta) { m.SourceApplicationEntityTitle = strings.Repeat("A", 17) })},
@@ -213,17 +215,17 @@ func TestWriteHeaderRejectsInvalidMeta(t *testing.T) {
 			m.Other = []Element{{Tag: 0x00020100, VR: "SQ"}}
 		})},
 		{"an other UI element above MaxValueLength", with(func(m *Meta) {
-			m.Other = []Element{{Tag: 0x00020100, VR: "UI", Value: bytes.Repeat([]byte("1"), MaxValueLength+2)}}
+			m.Other = []Element{{Tag: 0x00020100, VR: "UI", Value: bytes.Repeat([]byte("1"), maxValueLength+2)}}
 		})},
 		{"an other OB element above MaxBinaryValueLength", with(func(m *Meta) {
-			m.Other = []Element{{Tag: 0x00020102, VR: "OB", Value: make([]byte, MaxBinaryValueLength+2)}}
+			m.Other = []Element{{Tag: 0x00020102, VR: "OB", Value: make([]byte, maxBinaryValueLength+2)}}
 		})},
 	}
 	for _, c := range cases {
 		t.Run("it rejects "+c.name, func(t *testing.T) {
 			var b bytes.Buffer
 			err := WriteHeader(&b, c.meta)
-			if !errors.Is(err, ErrInvalidMeta) {
+			if !errors.Is(err, errInvalidMeta) {
 				t.Fatalf("err = %v, want ErrInvalidMeta", err)
 			}
 			if b.Len() != 0 {
@@ -259,7 +261,7 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			MediaStorageSOPInstanceUID:   explicitMeta.MediaStorageSOPInstanceUID,
 			TransferSyntaxUID:            "1.2.840.10008.1.2.1",
 			SourceApplicationEntityTitle: "DWIAUDIT",
-		}, explicit[HeaderStart+12+groupLength(explicit):], "Little Endian Explicit"},
+		}, explicit[headerStart+12+groupLength(explicit):], "Little Endian Explicit"},
 		{"an implicit VR file with private information", Meta{
 			MediaStorageSOPClassUID:    implicitMeta.MediaStorageSOPClassUID,
 			MediaStorageSOPInstanceUID: implicitMeta.MediaStorageSOPInstanceUID,
@@ -268,7 +270,7 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 				{Tag: 0x00020100, VR: "UI", Value: []byte("2.25.6")},
 				{Tag: 0x00020102, VR: "OB", Value: []byte("synthetic")},
 			},
-		}, implicit[HeaderStart+12+groupLength(implicit):], "Little Endian Implicit"},
+		}, implicit[headerStart+12+groupLength(implicit):], "Little Endian Implicit"},
 	}
 	for _, c := range cases {
 		t.Run("dcmdump reads "+c.name+" without warnings", func(t *testing.T) {
@@ -281,9 +283,9 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			if err := os.WriteFile(path, b.Bytes(), 0o644); err != nil {
 				t.Fatal(err)
 			}
-			d := runDCMDump(t, path)
-			if d.stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
-				t.Fatalf("dcmdump complained:\n%s", d.stderr)
+			d := scptest.DCMDump(t, path)
+			if d.Stderr != "" { // DCMTK dcmdump prints warnings and errors on stderr
+				t.Fatalf("dcmdump complained:\n%s", d.Stderr)
 			}
 			m, off, err := ReadMetaFile(path)
 			if err != nil {
@@ -293,18 +295,148 @@ func TestDCMDumpAcceptsOurHeaders(t *testing.T) {
 			// DCMTK dcmdump output: the data set is decoded in the meta's
 			// transfer syntax, and the 3rd of its elements from the dump
 			// (testdata/*.dump) is found.
-			if !strings.Contains(d.text, "# Used TransferSyntax: "+c.xfer) {
-				t.Errorf("dcmdump did not decode the data set as %s:\n%s", c.xfer, d.text)
+			if !strings.Contains(d.Text, "# Used TransferSyntax: "+c.xfer) {
+				t.Errorf("dcmdump did not decode the data set as %s:\n%s", c.xfer, d.Text)
 			}
-			if d.values["0008,0060"] != "MR" {
-				t.Errorf("dcmdump: Modality %q, want MR", d.values["0008,0060"])
+			if d.Values["0008,0060"] != "MR" {
+				t.Errorf("dcmdump: Modality %q, want MR", d.Values["0008,0060"])
 			}
-			if d.values["0002,0012"] != ImplementationClassUID || d.values["0002,0013"] != ImplementationVersionName {
-				t.Errorf("dcmdump: implementation %q %q", d.values["0002,0012"], d.values["0002,0013"])
+			if d.Values["0002,0012"] != ImplementationClassUID || d.Values["0002,0013"] != ImplementationVersionName {
+				t.Errorf("dcmdump: implementation %q %q", d.Values["0002,0012"], d.Values["0002,0013"])
 			}
 			if off != int64(b.Len()-len(c.dataset)) {
 				t.Errorf("offset %d, header was %d bytes", off, b.Len()-len(c.dataset))
 			}
 		})
+	}
+}
+
+func TestAppendHeaderIsWriteHeader(t *testing.T) {
+	var w bytes.Buffer
+	if err := WriteHeader(&w, minimalMeta); err != nil {
+		t.Fatal(err)
+	}
+	prefix := []byte("kept")
+	got, err := AppendHeader(prefix, minimalMeta)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(got[:len(prefix)], prefix) || !bytes.Equal(got[len(prefix):], w.Bytes()) {
+		t.Errorf("AppendHeader gave %d bytes after the prefix, WriteHeader %d; they differ", len(got)-len(prefix), w.Len())
+	}
+	bad := minimalMeta
+	bad.TransferSyntaxUID = ""
+	if out, err := AppendHeader(prefix, bad); !errors.Is(err, errInvalidMeta) || !bytes.Equal(out, prefix) {
+		t.Errorf("AppendHeader of an invalid meta = %q, %v; want the prefix alone and ErrInvalidMeta", out, err)
+	}
+}
+
+// TestAppendHeaderBytes pins the envelope byte for byte: the store writes
+// every received instance with it, and files already stored must keep
+// reading the same. The layout is PS3.10 7.1 Table 7.1-1 in Explicit VR
+// Little Endian (PS3.5 7.1.2): zero preamble, "DICM", (0002,0000) UL,
+// (0002,0001) OB with reserved bytes and a 32-bit length, then UI, SH and
+// AE values padded to even length (PS3.5 7.1.1: NUL after UI, space after
+// text).
+func TestAppendHeaderBytes(t *testing.T) {
+	got, err := AppendHeader(nil, Meta{
+		MediaStorageSOPClassUID:      "1.2.840.10008.5.1.4.1.1.4",
+		MediaStorageSOPInstanceUID:   "2.25.123",
+		TransferSyntaxUID:            "1.2.840.10008.1.2.1",
+		SourceApplicationEntityTitle: "QOH_MR1",
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var want []byte
+	want = append(want, make([]byte, 128)...)
+	want = append(want, "DICM"...)
+	want = append(want, 0x02, 0x00, 0x00, 0x00, 'U', 'L', 4, 0, 178, 0, 0, 0)
+	want = append(want, 0x02, 0x00, 0x01, 0x00, 'O', 'B', 0, 0, 2, 0, 0, 0, 0x00, 0x01)
+	want = append(want, 0x02, 0x00, 0x02, 0x00, 'U', 'I', 26, 0)
+	want = append(want, "1.2.840.10008.5.1.4.1.1.4\x00"...)
+	want = append(want, 0x02, 0x00, 0x03, 0x00, 'U', 'I', 8, 0)
+	want = append(want, "2.25.123"...)
+	want = append(want, 0x02, 0x00, 0x10, 0x00, 'U', 'I', 20, 0)
+	want = append(want, "1.2.840.10008.1.2.1\x00"...)
+	want = append(want, 0x02, 0x00, 0x12, 0x00, 'U', 'I', 42, 0)
+	want = append(want, "2.25.5539447777562070585615222628860829091"...)
+	want = append(want, 0x02, 0x00, 0x13, 0x00, 'S', 'H', 12, 0)
+	want = append(want, "DWIAUDIT_010"...)
+	want = append(want, 0x02, 0x00, 0x16, 0x00, 'A', 'E', 8, 0)
+	want = append(want, "QOH_MR1 "...)
+	if !bytes.Equal(got, want) {
+		t.Errorf("AppendHeader:\n got %q\nwant %q", got, want)
+	}
+}
+
+func TestWriteHeaderToleratesLeadingZeros(t *testing.T) {
+	// PS3.5 9.1 forbids a leading zero in a component, but senders in the
+	// field produce them and the store keeps such instances (as scp/pdu
+	// lets them through); re-wrapping one must work.
+	m := minimalMeta
+	m.MediaStorageSOPInstanceUID = "2.25.01"
+	w := writtenFile(t, m)
+	got, off, err := ReadMeta(bytes.NewReader(w.data))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.MediaStorageSOPInstanceUID != "2.25.01" || off != w.offset {
+		t.Errorf("read back %q at %d, want 2.25.01 at %d", got.MediaStorageSOPInstanceUID, off, w.offset)
+	}
+}
+
+func TestValidAETitle(t *testing.T) {
+	cases := []struct {
+		ae string
+		ok bool
+	}{
+		{"QOH_MR1", true},
+		{"A_TITLE_OF_16CHR", true}, // 16 characters: the AE limit (PS3.5 6.2 Table 6.2-1)
+		{"A_TITLE_OF_17_CHR", false},
+		{"", false},
+		{`BAD\AE`, false}, // backslash separates values (PS3.5 6.2)
+		{"TAB\tAE", false},
+		{"ÄE", false},
+	}
+	for _, c := range cases {
+		t.Run("the title "+strconvQuote(c.ae)+" is judged correctly", func(t *testing.T) {
+			if got := ValidAETitle(c.ae); got != c.ok {
+				t.Errorf("ValidAETitle(%q) = %v, want %v", c.ae, got, c.ok)
+			}
+			if c.ae == "" {
+				return
+			}
+			m := minimalMeta
+			m.SourceApplicationEntityTitle = c.ae
+			if _, err := AppendHeader(nil, m); (err == nil) != c.ok {
+				t.Errorf("AppendHeader with %q: %v, want ok=%v", c.ae, err, c.ok)
+			}
+		})
+	}
+}
+
+func strconvQuote(s string) string { return strings.Trim(fmt.Sprintf("%q", s), `"`) }
+
+func TestVRTable(t *testing.T) {
+	// PS3.5 7.1.2 Table 7.1-1: the VRs with reserved bytes and a 32-bit
+	// length; PS3.5 6.2 Table 6.2-1: every VR.
+	long := []string{"OB", "OD", "OF", "OL", "OV", "OW", "SQ", "SV", "UC", "UN", "UR", "UT", "UV"}
+	short := []string{"AE", "AS", "AT", "CS", "DA", "DS", "DT", "FD", "FL", "IS", "LO", "LT",
+		"PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US"}
+	for _, vr := range long {
+		if !LongLengthVR(vr) || !knownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want both", vr, LongLengthVR(vr), knownVR(vr))
+		}
+	}
+	for _, vr := range short {
+		if LongLengthVR(vr) || !knownVR(vr) {
+			t.Errorf("%s: LongLengthVR %v, KnownVR %v; want short and known", vr, LongLengthVR(vr), knownVR(vr))
+		}
+	}
+	for _, vr := range []string{"NA", "XX", "ob", ""} {
+		if knownVR(vr) || LongLengthVR(vr) {
+			t.Errorf("%q is taken for a VR", vr)
+		}
 	}
 }

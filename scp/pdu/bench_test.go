@@ -33,7 +33,7 @@ func BenchmarkWritePData(b *testing.B) {
 	data := bytes.Repeat([]byte{0x5a}, 256<<10-PDVOverhead)
 	pd := &PDataTF{Items: []PDV{{ContextID: 1, Last: true, Data: data}}}
 	b.Run("Writer reusing its buffer", func(b *testing.B) {
-		w := NewWriter(io.Discard)
+		w := newWriter(io.Discard)
 		b.SetBytes(int64(len(data) + 12))
 		b.ReportAllocs()
 		for b.Loop() {
@@ -46,7 +46,7 @@ func BenchmarkWritePData(b *testing.B) {
 		b.SetBytes(int64(len(data) + 12))
 		b.ReportAllocs()
 		for b.Loop() {
-			if err := Write(io.Discard, pd); err != nil {
+			if err := write(io.Discard, pd); err != nil {
 				b.Fatal(err)
 			}
 		}

@@ -18,28 +18,16 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/scptest"
 )
 
 // The tests in this file put a recording proxy between DCMTK's echoscu or
 // storescu and DCMTK's storescp. The proxy reads each direction with our
 // Reader, so every PDU the two exchange passes through Next, and forwards
-// the exact bytes it read. With DWIAUDIT_UPDATE_SEEDS=1 the captured PDUs are
-// written to testdata/ as fuzz and regression seeds (see testdata/README).
-
-// requireDCMTK returns the path of a DCMTK tool, skipping the test when it is
-// missing, or failing it under CI.
-func requireDCMTK(t *testing.T, tool string) string {
-	t.Helper()
-	path, err := exec.LookPath(tool)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found; install the Debian package dcmtk", tool)
-		}
-		t.Skipf("%s not found; install the Debian package dcmtk to run this test", tool)
-	}
-	return path
-}
+// the exact bytes it read. With -update (`go test ./scp/pdu -update`) the
+// captured PDUs are written to testdata/ as fuzz and regression seeds (see
+// testdata/README).
 
 // capturedPDU is one PDU seen by the proxy.
 type capturedPDU struct {
@@ -140,7 +128,7 @@ func freePort(t *testing.T) int {
 // returns its address.
 func startStorescp(t *testing.T, extra ...string) string {
 	t.Helper()
-	bin := requireDCMTK(t, "storescp")
+	bin := scptest.NeedDCMTK(t, "storescp")
 	port := freePort(t)
 	ctx, cancel := context.WithCancel(context.Background())
 	args := append([]string{"-aet", "DWIPEER", "-od", t.TempDir(), "--ignore"}, extra...)
@@ -179,7 +167,7 @@ func startStorescp(t *testing.T, extra ...string) string {
 // returns what the proxy saw.
 func runThroughProxy(t *testing.T, upstream, tool string, args []string, tail ...string) []capturedPDU {
 	t.Helper()
-	bin := requireDCMTK(t, tool)
+	bin := scptest.NeedDCMTK(t, tool)
 	ln, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		t.Fatal(err)
@@ -235,7 +223,7 @@ func checkCapture(t *testing.T, name string, got []capturedPDU, want []Type) {
 			t.Errorf("PDU %d %s: our encoding differs from DCMTK's\nDCMTK: %x\nours:  %x", i, c.p.Type(), c.raw, enc)
 		}
 	}
-	if os.Getenv("DWIAUDIT_UPDATE_SEEDS") == "1" {
+	if testtool.Update() {
 		have := map[[32]byte]string{}
 		entries, err := os.ReadDir("testdata")
 		if err != nil {
@@ -300,7 +288,7 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 		if rq.UserInfo.MaxLength != 16384 { // echoscu --help: "-pdu ... (default: 16384)"
 			t.Errorf("max length %d", rq.UserInfo.MaxLength)
 		}
-		if err := CheckUID(rq.UserInfo.ImplementationClassUID); err != nil {
+		if err := checkUID(rq.UserInfo.ImplementationClassUID); err != nil {
 			t.Errorf("implementation class UID: %v", err)
 		}
 		ac := got[1].p.(*AssociateAC)
@@ -330,20 +318,20 @@ func TestDCMTKExchangesDecodeAndReencodeByteForByte(t *testing.T) {
 		if len(rq.PresentationContexts) != 128 || len(rq.PresentationContexts[127].TransferSyntaxes) != 38 { // echoscu -ppc 128 -pts 38
 			t.Errorf("%d contexts", len(rq.PresentationContexts))
 		}
-		if len(got[0].raw) > MaxAssociatePDULength/2 {
+		if len(got[0].raw) > maxAssociatePDULength/2 {
 			t.Errorf("RQ of %d bytes; the MaxAssociatePDULength comment says about half of the limit", len(got[0].raw))
 		}
 		t.Logf("A-ASSOCIATE-RQ of 128 contexts x 38 transfer syntaxes: %d bytes", len(got[0].raw))
 	})
 
 	t.Run("storescu with user identity sends sub-item 58H", func(t *testing.T) {
-		requireDCMTK(t, "dump2dcm")
+		scptest.NeedDCMTK(t, "dump2dcm")
 		file := syntheticMRFile(t)
 		got := runThroughProxy(t, scp, "storescu",
 			[]string{"-aet", calling, "-aec", "DWIAUDIT", "--user", "quellvander-tech", "--password", "not-a-secret"}, file)
 		checkCapture(t, "store", got, []Type{TypeAssociateRQ, TypeAssociateAC, TypePDataTF, TypePDataTF, TypePDataTF, TypeReleaseRQ, TypeReleaseRP})
 		id := got[0].p.(*AssociateRQ).UserInfo.UserIdentity
-		if id == nil || id.Type != UserIdentityUsernamePasscode || string(id.Primary) != "quellvander-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
+		if id == nil || id.Type != userIdentityUsernamePasscode || string(id.Primary) != "quellvander-tech" || string(id.Secondary) != "not-a-secret" { // storescu --user/--password, PS3.7 Table D.3-14 type 2
 			t.Errorf("user identity %+v", id)
 		}
 	})

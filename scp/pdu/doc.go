@@ -9,11 +9,11 @@
 // be bounded and to fail cleanly:
 //
 //   - Reader.Next checks the declared PDU length against a limit before it
-//     allocates anything: MaxAssociatePDULength for every PDU other than
+//     allocates anything: maxAssociatePDULength for every PDU other than
 //     P-DATA-TF, and the Maximum Length we advertised (PS3.8 D.1) for
-//     P-DATA-TF. A longer PDU gives a *TooLongError.
+//     P-DATA-TF. A longer PDU gives a *tooLongError.
 //   - Every item and sub-item length is checked against what remains of the
-//     enclosing PDU or item. A bad body gives a *ParseError that carries the
+//     enclosing PDU or item. A bad body gives a *parseError that carries the
 //     A-ABORT reason (PS3.8 9.3.8 Table 9-26) the caller should send.
 //   - Items and user-information sub-items of unrecognized types are skipped
 //     (PS3.8 9.3.1 and D.2 Note 2).
@@ -29,7 +29,7 @@
 //
 // Decoded values are checked only as far as the structure needs; whether an
 // AE title is known or an abstract syntax is supported is the caller's
-// decision (CheckAETitle and CheckUID help it decide), so that it can answer
+// decision (CheckAETitle and checkUID help it decide), so that it can answer
 // with an A-ASSOCIATE-RJ or a rejected presentation context instead of an
 // abort.
 //

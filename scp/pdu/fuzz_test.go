@@ -48,7 +48,7 @@ func FuzzReader(f *testing.F) {
 			p, err := rd.Next()
 			if err != nil {
 				if err != io.EOF && !errors.Is(err, io.ErrUnexpectedEOF) &&
-					!errors.Is(err, ErrTooLong) && !errors.Is(err, ErrMalformed) {
+					!errors.Is(err, errTooLong) && !errors.Is(err, errMalformed) {
 					t.Fatalf("undocumented error %v (%T)", err, err)
 				}
 				return
@@ -57,7 +57,7 @@ func FuzzReader(f *testing.F) {
 			if err != nil {
 				// The decoder accepts, so that the caller can reject them
 				// politely, AE titles, UIDs and names we refuse to send.
-				if errors.Is(err, ErrInvalidAETitle) || errors.Is(err, ErrInvalidUID) || errors.Is(err, ErrInvalidField) {
+				if errors.Is(err, errInvalidAETitle) || errors.Is(err, errInvalidUID) || errors.Is(err, errInvalidField) {
 					continue
 				}
 				t.Fatalf("re-encoding an accepted %s: %v", p.Type(), err)

@@ -267,11 +267,11 @@ type CommonExtendedNegotiation struct {
 
 // User identity types (PS3.7 D.3.3.7 Table D.3-14 byte 5).
 const (
-	UserIdentityUsername         byte = 1
-	UserIdentityUsernamePasscode byte = 2
-	UserIdentityKerberos         byte = 3
-	UserIdentitySAML             byte = 4
-	UserIdentityJWT              byte = 5
+	userIdentityUsername         byte = 1
+	userIdentityUsernamePasscode byte = 2
+	userIdentityKerberos         byte = 3
+	userIdentitySAML             byte = 4
+	userIdentityJWT              byte = 5
 )
 
 // UserIdentityRQ is the user identity negotiation sub-item of an

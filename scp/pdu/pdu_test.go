@@ -11,6 +11,8 @@ import (
 	"strings"
 	"testing"
 	"testing/iotest"
+
+	"dwiaudit/internal/testtool"
 )
 
 // Test values. Every name, AE title and credential is invented; UIDs are
@@ -98,7 +100,7 @@ func fullRQ() *AssociateRQ {
 		CommonExtendedNegotiations: []CommonExtendedNegotiation{{
 			SOPClassUID: uidEnhMR, ServiceClassUID: uidStorageSvc, RelatedGeneralSOPClasses: []string{uidMRStorage},
 		}},
-		UserIdentity: &UserIdentityRQ{Type: UserIdentityUsernamePasscode, PositiveResponseRequested: true,
+		UserIdentity: &UserIdentityRQ{Type: userIdentityUsernamePasscode, PositiveResponseRequested: true,
 			Primary: []byte("quellvander-tech"), Secondary: []byte("not-a-secret")},
 	}
 	return rq
@@ -270,7 +272,7 @@ func TestEveryPDUTypeRoundTripsThroughOneStream(t *testing.T) {
 	var stream bytes.Buffer
 	cases := layoutCases()
 	for _, tc := range cases {
-		if err := Write(&stream, tc.p); err != nil {
+		if err := write(&stream, tc.p); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -501,15 +503,15 @@ func TestUnknownItemsAreSkipped(t *testing.T) {
 	assertSamePDU(t, got, minimalRQ())
 }
 
-// expectParseError checks err is a *ParseError with the given reason that
-// matches ErrMalformed.
+// expectParseError checks err is a *parseError with the given reason that
+// matches errMalformed.
 func expectParseError(t *testing.T, err error, reason AbortReason) {
 	t.Helper()
-	var pe *ParseError
+	var pe *parseError
 	if !errors.As(err, &pe) {
 		t.Fatalf("error %v (%T), want *ParseError", err, err)
 	}
-	if !errors.Is(err, ErrMalformed) {
+	if !errors.Is(err, errMalformed) {
 		t.Errorf("%v does not match ErrMalformed", err)
 	}
 	if pe.Reason != reason {
@@ -596,7 +598,7 @@ func TestMalformedBodiesGiveTheAbortReasonToSend(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := Decode(tc.b)
 			expectParseError(t, err, tc.reason)
-			if tc.reason == AbortReasonUnrecognizedPDU && !errors.Is(err, ErrUnknownType) {
+			if tc.reason == AbortReasonUnrecognizedPDU && !errors.Is(err, errUnknownType) {
 				t.Errorf("%v does not match ErrUnknownType", err)
 			}
 			// The Reader reports the same, except for the trailing bytes,
@@ -628,11 +630,11 @@ func TestDeclaredLengthsAboveTheLimitAreRefusedBeforeAllocating(t *testing.T) {
 		maxPData uint32
 		wantMax  uint32
 	}{
-		{"an A-ASSOCIATE-RQ declaring 4 GiB", hx("01 00 ffffffff"), 16384, MaxAssociatePDULength},
-		{"an A-ASSOCIATE-AC one byte over MaxAssociatePDULength", hx("02 00 00040001"), 16384, MaxAssociatePDULength},
-		{"an A-ABORT declaring 4 GiB", hx("07 00 ffffffff"), 16384, MaxAssociatePDULength},
+		{"an A-ASSOCIATE-RQ declaring 4 GiB", hx("01 00 ffffffff"), 16384, maxAssociatePDULength},
+		{"an A-ASSOCIATE-AC one byte over MaxAssociatePDULength", hx("02 00 00040001"), 16384, maxAssociatePDULength},
+		{"an A-ABORT declaring 4 GiB", hx("07 00 ffffffff"), 16384, maxAssociatePDULength},
 		{"a P-DATA-TF one byte over the advertised maximum", hx("04 00 00004001"), 16384, 16384},
-		{"a P-DATA-TF declaring 4 GiB with no maximum advertised", hx("04 00 ffffffff"), 0, MaxPDataLengthCeiling},
+		{"a P-DATA-TF declaring 4 GiB with no maximum advertised", hx("04 00 ffffffff"), 0, maxPDataLengthCeiling},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -646,11 +648,11 @@ func TestDeclaredLengthsAboveTheLimitAreRefusedBeforeAllocating(t *testing.T) {
 				br.Reset(tc.header)
 				_, err = rd.Next()
 			})
-			if allocs > 1 { // the *TooLongError itself
+			if allocs > 1 { // the *tooLongError itself
 				t.Errorf("%v allocations, want at most the error", allocs)
 			}
-			var tl *TooLongError
-			if !errors.As(err, &tl) || !errors.Is(err, ErrTooLong) {
+			var tl *tooLongError
+			if !errors.As(err, &tl) || !errors.Is(err, errTooLong) {
 				t.Fatalf("error %v, want *TooLongError", err)
 			}
 			if tl.Max != tc.wantMax || tl.Type != Type(tc.header[0]) || tl.Length != uint32(tc.header[2])<<24|uint32(tc.header[3])<<16|uint32(tc.header[4])<<8|uint32(tc.header[5]) {
@@ -685,11 +687,11 @@ func TestDeclaredLengthsAboveTheLimitAreRefusedBeforeAllocating(t *testing.T) {
 		if _, err := rd.Next(); err != nil {
 			t.Fatal(err)
 		}
-		rd.SetMaxPDataLength(50)
-		if rd.MaxPDataLength() != 50 {
-			t.Errorf("MaxPDataLength() = %d", rd.MaxPDataLength())
+		rd.setMaxPDataLength(50)
+		if rd.maxPDataLength() != 50 {
+			t.Errorf("MaxPDataLength() = %d", rd.maxPDataLength())
 		}
-		if _, err := rd.Next(); !errors.Is(err, ErrTooLong) {
+		if _, err := rd.Next(); !errors.Is(err, errTooLong) {
 			t.Errorf("error %v, want ErrTooLong", err)
 		}
 	})
@@ -786,7 +788,7 @@ func TestAppendPDataHeaderFramesOneFragment(t *testing.T) {
 	if !bytes.Equal(got, want) {
 		t.Errorf("got %x, want %x", got, want)
 	}
-	same, err := (&PDataTF{Items: []PDV{{ContextID: 7, Command: true, Data: data}}}).AppendTo([]byte("x"))
+	same, err := (&PDataTF{Items: []PDV{{ContextID: 7, Command: true, Data: data}}}).appendTo([]byte("x"))
 	if err != nil || !bytes.Equal(same, got) {
 		t.Errorf("PDataTF.AppendTo gives %x (%v)", same, err)
 	}
@@ -814,37 +816,37 @@ func TestEncodingRefusesValuesTheStandardForbids(t *testing.T) {
 		p    PDU
 		want error
 	}{
-		{"an empty called AE title", rq(func(p *AssociateRQ) { p.CalledAETitle = "" }), ErrInvalidAETitle},
-		{"a called AE title of 16 spaces", rq(func(p *AssociateRQ) { p.CalledAETitle = strings.Repeat(" ", 16) }), ErrInvalidAETitle}, // PS3.8 Table 9-11 "shall not be used"
-		{"a 17-character calling AE title", rq(func(p *AssociateRQ) { p.CallingAETitle = "QUELLVANDER-MR-17" }), ErrInvalidAETitle},
-		{"an AE title with a backslash", rq(func(p *AssociateRQ) { p.CallingAETitle = `MR\1` }), ErrInvalidAETitle}, // PS3.5 6.2 AE
-		{"an AE title with a NUL", rq(func(p *AssociateRQ) { p.CallingAETitle = "MR\x001" }), ErrInvalidAETitle},    // PS3.5 6.2 AE
-		{"an AE title with a tab", rq(func(p *AssociateRQ) { p.CalledAETitle = "MR\t1" }), ErrInvalidAETitle},       // PS3.5 6.2 AE
-		{"an AC echoing an AE title with a control character", ac(func(p *AssociateAC) { p.CallingAETitle = "MR\x1b" }), ErrInvalidAETitle},
-		{"an empty application context", rq(func(p *AssociateRQ) { p.ApplicationContext = "" }), ErrInvalidUID},
-		{"a transfer syntax padded with NUL", rq(func(p *AssociateRQ) { p.PresentationContexts[0].TransferSyntaxes[0] += "\x00" }), ErrInvalidUID}, // PS3.8 Annex F
-		{"an abstract syntax padded with a space", rq(func(p *AssociateRQ) { p.PresentationContexts[0].AbstractSyntax += " " }), ErrInvalidUID},
-		{"a 65-character UID", rq(func(p *AssociateRQ) { p.UserInfo.ImplementationClassUID = "2.25." + strings.Repeat("1", 60) }), ErrInvalidUID}, // PS3.5 9.1: 64
-		{"a UID with letters", rq(func(p *AssociateRQ) { p.PresentationContexts[0].AbstractSyntax = "1.2.abc" }), ErrInvalidUID},
-		{"a role selection without SOP class", rq(func(p *AssociateRQ) { p.UserInfo.RoleSelections = []RoleSelection{{}} }), ErrInvalidUID},
-		{"an even presentation context ID", rq(func(p *AssociateRQ) { p.PresentationContexts[0].ID = 2 }), ErrInvalidField}, // PS3.8 Table 9-13
-		{"a context without transfer syntaxes", rq(func(p *AssociateRQ) { p.PresentationContexts[0].TransferSyntaxes = nil }), ErrInvalidField},
-		{"an RQ without contexts", rq(func(p *AssociateRQ) { p.PresentationContexts = nil }), ErrInvalidField},
-		{"an RQ carrying a user identity response", rq(func(p *AssociateRQ) { p.UserInfo.UserIdentityResponse = &UserIdentityAC{} }), ErrInvalidField},
-		{"a 17-character implementation version name", rq(func(p *AssociateRQ) { p.UserInfo.ImplementationVersionName = "DWIAUDIT_0.1.0-17" }), ErrInvalidField}, // PS3.7 Table D.3-3
+		{"an empty called AE title", rq(func(p *AssociateRQ) { p.CalledAETitle = "" }), errInvalidAETitle},
+		{"a called AE title of 16 spaces", rq(func(p *AssociateRQ) { p.CalledAETitle = strings.Repeat(" ", 16) }), errInvalidAETitle}, // PS3.8 Table 9-11 "shall not be used"
+		{"a 17-character calling AE title", rq(func(p *AssociateRQ) { p.CallingAETitle = "QUELLVANDER-MR-17" }), errInvalidAETitle},
+		{"an AE title with a backslash", rq(func(p *AssociateRQ) { p.CallingAETitle = `MR\1` }), errInvalidAETitle}, // PS3.5 6.2 AE
+		{"an AE title with a NUL", rq(func(p *AssociateRQ) { p.CallingAETitle = "MR\x001" }), errInvalidAETitle},    // PS3.5 6.2 AE
+		{"an AE title with a tab", rq(func(p *AssociateRQ) { p.CalledAETitle = "MR\t1" }), errInvalidAETitle},       // PS3.5 6.2 AE
+		{"an AC echoing an AE title with a control character", ac(func(p *AssociateAC) { p.CallingAETitle = "MR\x1b" }), errInvalidAETitle},
+		{"an empty application context", rq(func(p *AssociateRQ) { p.ApplicationContext = "" }), errInvalidUID},
+		{"a transfer syntax padded with NUL", rq(func(p *AssociateRQ) { p.PresentationContexts[0].TransferSyntaxes[0] += "\x00" }), errInvalidUID}, // PS3.8 Annex F
+		{"an abstract syntax padded with a space", rq(func(p *AssociateRQ) { p.PresentationContexts[0].AbstractSyntax += " " }), errInvalidUID},
+		{"a 65-character UID", rq(func(p *AssociateRQ) { p.UserInfo.ImplementationClassUID = "2.25." + strings.Repeat("1", 60) }), errInvalidUID}, // PS3.5 9.1: 64
+		{"a UID with letters", rq(func(p *AssociateRQ) { p.PresentationContexts[0].AbstractSyntax = "1.2.abc" }), errInvalidUID},
+		{"a role selection without SOP class", rq(func(p *AssociateRQ) { p.UserInfo.RoleSelections = []RoleSelection{{}} }), errInvalidUID},
+		{"an even presentation context ID", rq(func(p *AssociateRQ) { p.PresentationContexts[0].ID = 2 }), errInvalidField}, // PS3.8 Table 9-13
+		{"a context without transfer syntaxes", rq(func(p *AssociateRQ) { p.PresentationContexts[0].TransferSyntaxes = nil }), errInvalidField},
+		{"an RQ without contexts", rq(func(p *AssociateRQ) { p.PresentationContexts = nil }), errInvalidField},
+		{"an RQ carrying a user identity response", rq(func(p *AssociateRQ) { p.UserInfo.UserIdentityResponse = &UserIdentityAC{} }), errInvalidField},
+		{"a 17-character implementation version name", rq(func(p *AssociateRQ) { p.UserInfo.ImplementationVersionName = "DWIAUDIT_0.1.0-17" }), errInvalidField}, // PS3.7 Table D.3-3
 		{"extended negotiation information too long for its item", rq(func(p *AssociateRQ) {
 			p.UserInfo.ExtendedNegotiations = []ExtendedNegotiation{{SOPClassUID: uidMRStorage, Info: make([]byte, 70000)}}
-		}), ErrFieldTooLong},
+		}), errFieldTooLong},
 		{"a user identity primary field over 65535 bytes", rq(func(p *AssociateRQ) {
 			p.UserInfo.UserIdentity = &UserIdentityRQ{Type: 1, Primary: make([]byte, 65536)}
-		}), ErrFieldTooLong},
-		{"an accepted AC context without transfer syntax", ac(func(p *AssociateAC) { p.PresentationContexts[0].TransferSyntax = "" }), ErrInvalidUID},
-		{"an AC carrying a user identity request", ac(func(p *AssociateAC) { p.UserInfo.UserIdentity = &UserIdentityRQ{} }), ErrInvalidField},
-		{"an AC without contexts", ac(func(p *AssociateAC) { p.PresentationContexts = nil }), ErrInvalidField},
-		{"a P-DATA-TF without PDVs", &PDataTF{}, ErrInvalidField}, // PS3.8 9.3.5 "one or more"
-		{"a PDV on an even context ID", &PDataTF{Items: []PDV{{ContextID: 4}}}, ErrInvalidField},
-		{"a nil PDU", nil, ErrInvalidField},
-		{"a nil *AssociateRQ", (*AssociateRQ)(nil), ErrInvalidField},
+		}), errFieldTooLong},
+		{"an accepted AC context without transfer syntax", ac(func(p *AssociateAC) { p.PresentationContexts[0].TransferSyntax = "" }), errInvalidUID},
+		{"an AC carrying a user identity request", ac(func(p *AssociateAC) { p.UserInfo.UserIdentity = &UserIdentityRQ{} }), errInvalidField},
+		{"an AC without contexts", ac(func(p *AssociateAC) { p.PresentationContexts = nil }), errInvalidField},
+		{"a P-DATA-TF without PDVs", &PDataTF{}, errInvalidField}, // PS3.8 9.3.5 "one or more"
+		{"a PDV on an even context ID", &PDataTF{Items: []PDV{{ContextID: 4}}}, errInvalidField},
+		{"a nil PDU", nil, errInvalidField},
+		{"a nil *AssociateRQ", (*AssociateRQ)(nil), errInvalidField},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name+" is refused", func(t *testing.T) {
@@ -856,7 +858,7 @@ func TestEncodingRefusesValuesTheStandardForbids(t *testing.T) {
 			if !bytes.Equal(got, []byte("prefix")) {
 				t.Errorf("dst changed to %q on error", got)
 			}
-			if err := Write(io.Discard, tc.p); !errors.Is(err, tc.want) {
+			if err := write(io.Discard, tc.p); !errors.Is(err, tc.want) {
 				t.Errorf("Write: %v", err)
 			}
 		})
@@ -896,11 +898,11 @@ func TestAETitlesAreTrimmedAndSpacePadded(t *testing.T) {
 func TestWriteMakesOneWriteCallPerPDU(t *testing.T) {
 	var w countingWriter
 	for _, tc := range layoutCases() {
-		if err := Write(&w, tc.p); err != nil {
+		if err := write(&w, tc.p); err != nil {
 			t.Fatal(err)
 		}
 	}
-	pw := NewWriter(&w)
+	pw := newWriter(&w)
 	for _, tc := range layoutCases() {
 		if err := pw.Write(tc.p); err != nil {
 			t.Fatal(err)
@@ -921,7 +923,7 @@ func TestWriteMakesOneWriteCallPerPDU(t *testing.T) {
 	}
 	t.Run("a Writer reusing its buffer costs no allocation per P-DATA-TF", func(t *testing.T) {
 		pd := &PDataTF{Items: []PDV{{ContextID: 1, Last: true, Data: make([]byte, 4096)}}}
-		pw := NewWriter(io.Discard)
+		pw := newWriter(io.Discard)
 		_ = pw.Write(pd)
 		if allocs := testing.AllocsPerRun(100, func() { _ = pw.Write(pd) }); allocs != 0 {
 			t.Errorf("%v allocations", allocs)
@@ -929,10 +931,10 @@ func TestWriteMakesOneWriteCallPerPDU(t *testing.T) {
 	})
 	t.Run("a failing writer's error is wrapped", func(t *testing.T) {
 		boom := errors.New("broken pipe in a test")
-		if err := Write(failingWriter{boom}, &ReleaseRQ{}); !errors.Is(err, boom) {
+		if err := write(failingWriter{boom}, &ReleaseRQ{}); !errors.Is(err, boom) {
 			t.Errorf("Write: %v", err)
 		}
-		if err := NewWriter(failingWriter{boom}).Write(&ReleaseRP{}); !errors.Is(err, boom) {
+		if err := newWriter(failingWriter{boom}).Write(&ReleaseRP{}); !errors.Is(err, boom) {
 			t.Errorf("Writer.Write: %v", err)
 		}
 	})
@@ -956,7 +958,7 @@ func TestAbortReasonForOtherErrors(t *testing.T) {
 	if got := AbortReasonFor(nil); got != AbortReasonNotSpecified {
 		t.Errorf("nil: %v", got)
 	}
-	wrapped := errors.Join(errors.New("context"), &ParseError{Reason: AbortReasonUnexpectedPDUParameter})
+	wrapped := errors.Join(errors.New("context"), &parseError{Reason: AbortReasonUnexpectedPDUParameter})
 	if got := AbortReasonFor(wrapped); got != AbortReasonUnexpectedPDUParameter {
 		t.Errorf("wrapped ParseError: %v", got)
 	}
@@ -982,26 +984,13 @@ func syntheticSeeds() map[string]PDU {
 }
 
 func TestSyntheticSeedsAreCurrent(t *testing.T) {
-	update := os.Getenv("DWIAUDIT_UPDATE_SEEDS") == "1"
 	for name, p := range syntheticSeeds() {
 		t.Run(name+" matches the encoder", func(t *testing.T) {
 			b, err := Encode(p)
 			if err != nil {
 				t.Fatal(err)
 			}
-			path := filepath.Join("testdata", name)
-			if update {
-				if err := os.WriteFile(path, b, 0o644); err != nil {
-					t.Fatal(err)
-				}
-			}
-			have, err := os.ReadFile(path)
-			if err != nil {
-				t.Fatalf("%v; regenerate with DWIAUDIT_UPDATE_SEEDS=1 go test -run TestSyntheticSeeds ./scp/pdu/", err)
-			}
-			if !bytes.Equal(have, b) {
-				t.Errorf("testdata/%s is stale; regenerate with DWIAUDIT_UPDATE_SEEDS=1", name)
-			}
+			testtool.Golden(t, filepath.Join("testdata", name), b)
 		})
 	}
 }
@@ -1056,8 +1045,8 @@ func TestAssociatePDUsShareNothingWithTheReader(t *testing.T) {
 	// Only a P-DATA-TF aliases the Reader's buffer; an A-ASSOCIATE-RQ must
 	// stay intact when the next PDU overwrites it.
 	var stream bytes.Buffer
-	_ = Write(&stream, fullRQ())
-	_ = Write(&stream, &PDataTF{Items: []PDV{{ContextID: 1, Data: bytes.Repeat([]byte{0xee}, 600)}}})
+	_ = write(&stream, fullRQ())
+	_ = write(&stream, &PDataTF{Items: []PDV{{ContextID: 1, Data: bytes.Repeat([]byte{0xee}, 600)}}})
 	rd := NewReader(&stream, 0)
 	first, err := rd.Next()
 	if err != nil {

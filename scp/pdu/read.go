@@ -6,7 +6,7 @@ import (
 	"io"
 )
 
-// MaxAssociatePDULength bounds the PDU-length of every PDU other than
+// maxAssociatePDULength bounds the PDU-length of every PDU other than
 // P-DATA-TF. Only A-ASSOCIATE-RQ/AC are ever large, and a generous one fits
 // well within 256 KiB: presentation context IDs are odd numbers 1-255, so
 // there are at most 128 contexts (PS3.8 9.3.2.2), and 128 contexts each with
@@ -18,14 +18,14 @@ import (
 // contexts of 38 transfer syntaxes, is 129,697 bytes, half the limit (see
 // testdata/README.md). The bound keeps a peer from making us allocate more
 // than this for a PDU we must hold whole before we can parse it.
-const MaxAssociatePDULength = 256 << 10
+const maxAssociatePDULength = 256 << 10
 
-// MaxPDataLengthCeiling is the limit a Reader applies to P-DATA-TF when it
+// maxPDataLengthCeiling is the limit a Reader applies to P-DATA-TF when it
 // is told a maximum of 0. On the wire 0 means "no maximum length is
 // specified" (PS3.8 D.1 Table D.1-1), but a receiver that holds a whole PDU
 // in memory must stop somewhere; 16 MiB is 128 times DCMTK's largest
 // negotiable receive PDU (storescp -pdu accepts 4096..131072).
-const MaxPDataLengthCeiling = 16 << 20
+const maxPDataLengthCeiling = 16 << 20
 
 // PDVOverhead is what one PDV adds to a P-DATA-TF's PDU-length besides its
 // data: the 4-byte item-length, the presentation-context-ID and the message
@@ -49,25 +49,25 @@ type Reader struct {
 
 // NewReader returns a Reader on r. maxPDataLength is the Maximum Length we
 // advertised in our A-ASSOCIATE-RQ or -AC (PS3.8 D.1): a P-DATA-TF whose
-// PDU-length exceeds it is refused with a *TooLongError. 0 applies
-// MaxPDataLengthCeiling.
+// PDU-length exceeds it is refused with a *tooLongError. 0 applies
+// maxPDataLengthCeiling.
 func NewReader(r io.Reader, maxPDataLength uint32) *Reader {
 	rd := &Reader{r: r}
-	rd.SetMaxPDataLength(maxPDataLength)
+	rd.setMaxPDataLength(maxPDataLength)
 	return rd
 }
 
-// SetMaxPDataLength changes the P-DATA-TF limit, e.g. once the association
-// is negotiated. 0 applies MaxPDataLengthCeiling.
-func (r *Reader) SetMaxPDataLength(n uint32) {
+// setMaxPDataLength changes the P-DATA-TF limit, e.g. once the association
+// is negotiated. 0 applies maxPDataLengthCeiling.
+func (r *Reader) setMaxPDataLength(n uint32) {
 	if n == 0 {
-		n = MaxPDataLengthCeiling
+		n = maxPDataLengthCeiling
 	}
 	r.maxPData = n
 }
 
-// MaxPDataLength returns the P-DATA-TF limit in force.
-func (r *Reader) MaxPDataLength() uint32 { return r.maxPData }
+// maxPDataLength returns the P-DATA-TF limit in force.
+func (r *Reader) maxPDataLength() uint32 { return r.maxPData }
 
 // Next reads and decodes the next PDU.
 //
@@ -84,16 +84,16 @@ func (r *Reader) MaxPDataLength() uint32 { return r.maxPData }
 //   - io.EOF, unwrapped, when the stream ends cleanly before the first byte
 //     of a header;
 //   - an error matching io.ErrUnexpectedEOF when it ends inside a PDU;
-//   - *TooLongError (ErrTooLong) when the PDU-length exceeds the limit; the
+//   - *tooLongError (errTooLong) when the PDU-length exceeds the limit; the
 //     body has not been read;
-//   - *ParseError (ErrMalformed) for a body that breaks PS3.8 9.3, carrying
+//   - *parseError (errMalformed) for a body that breaks PS3.8 9.3, carrying
 //     the A-ABORT reason to send; the body has been read. For an unknown
-//     PDU type (also ErrUnknownType, reason unrecognized-PDU) only the
+//     PDU type (also errUnknownType, reason unrecognized-PDU) only the
 //     header has been read, since the length of a PDU we do not know cannot
 //     be trusted to skip by;
 //   - any other read error, wrapped.
 //
-// After an error other than a *ParseError for a known type the stream is
+// After an error other than a *parseError for a known type the stream is
 // no longer at a PDU boundary; the caller aborts the association and
 // closes it (PS3.8 9.2: an unrecognized or invalid PDU, event 19, leads to
 // action AA-8, an A-ABORT; event and action numbers from memory).
@@ -113,7 +113,7 @@ func (r *Reader) Next() (PDU, error) {
 		return nil, unknownType(t)
 	}
 	if length > limit {
-		return nil, &TooLongError{Type: t, Length: length, Max: limit}
+		return nil, &tooLongError{Type: t, Length: length, Max: limit}
 	}
 	n := int(length)
 	if cap(r.buf) < n {
@@ -175,8 +175,8 @@ func decodeBody(t Type, body []byte, pd *PDataTF) (PDU, error) {
 // unknownType is the error for a PDU-type byte outside PS3.8 9.3.1, for
 // which Table 9-26 has the A-ABORT reason unrecognized-PDU.
 func unknownType(t Type) error {
-	return &ParseError{Type: t, Reason: AbortReasonUnrecognizedPDU,
-		Msg: "unknown PDU type 0x" + hex2(byte(t)), Err: ErrUnknownType}
+	return &parseError{Type: t, Reason: AbortReasonUnrecognizedPDU,
+		Msg: "unknown PDU type 0x" + hex2(byte(t)), Err: errUnknownType}
 }
 
 // limitFor returns the PDU-length limit for type t, or false for a type
@@ -186,7 +186,7 @@ func limitFor(t Type, maxPData uint32) (uint32, bool) {
 	case TypePDataTF:
 		return maxPData, true
 	case TypeAssociateRQ, TypeAssociateAC, TypeAssociateRJ, TypeReleaseRQ, TypeReleaseRP, TypeAbort:
-		return MaxAssociatePDULength, true
+		return maxAssociatePDULength, true
 	}
 	return 0, false
 }
@@ -202,12 +202,12 @@ func Decode(b []byte) (PDU, error) {
 	}
 	t := Type(b[0])
 	length := binary.BigEndian.Uint32(b[2:6])
-	limit, ok := limitFor(t, MaxPDataLengthCeiling)
+	limit, ok := limitFor(t, maxPDataLengthCeiling)
 	if !ok {
 		return nil, unknownType(t)
 	}
 	if length > limit {
-		return nil, &TooLongError{Type: t, Length: length, Max: limit}
+		return nil, &tooLongError{Type: t, Length: length, Max: limit}
 	}
 	body := b[headerLength:]
 	if uint64(length) > uint64(len(body)) {
@@ -219,17 +219,17 @@ func Decode(b []byte) (PDU, error) {
 	return decodeBody(t, body, &PDataTF{})
 }
 
-// malformed builds the usual ParseError: a length or value the standard does
+// malformed builds the usual parseError: a length or value the standard does
 // not allow, for which PS3.8 Table 9-26 has invalid-PDU-parameter-value.
-func malformed(t Type, msg string) *ParseError {
-	return &ParseError{Type: t, Reason: AbortReasonInvalidPDUParameterValue, Msg: msg}
+func malformed(t Type, msg string) *parseError {
+	return &parseError{Type: t, Reason: AbortReasonInvalidPDUParameterValue, Msg: msg}
 }
 
-// unexpected builds a ParseError for an item the standard defines but not
+// unexpected builds a parseError for an item the standard defines but not
 // in the place, or not as often, as it was found (unexpected-PDU-parameter,
 // PS3.8 Table 9-26).
-func unexpected(t Type, msg string) *ParseError {
-	return &ParseError{Type: t, Reason: AbortReasonUnexpectedPDUParameter, Msg: msg}
+func unexpected(t Type, msg string) *parseError {
+	return &parseError{Type: t, Reason: AbortReasonUnexpectedPDUParameter, Msg: msg}
 }
 
 // checkFixed checks the PDU-length of the four fixed-size PDUs: "it shall

@@ -18,10 +18,10 @@ func Encode(p PDU) ([]byte, error) {
 	return appendPDU(nil, p)
 }
 
-// Write encodes p and writes it to w with a single Write call, so that a
+// write encodes p and writes it to w with a single Write call, so that a
 // PDU is never interleaved with another writer's bytes and reaches the
 // socket in one system call.
-func Write(w io.Writer, p PDU) error {
+func write(w io.Writer, p PDU) error {
 	b, err := Encode(p)
 	if err != nil {
 		return err
@@ -32,20 +32,20 @@ func Write(w io.Writer, p PDU) error {
 	return nil
 }
 
-// Writer writes PDUs to a stream like Write, one Write call each, but
+// writer writes PDUs to a stream like write, one Write call each, but
 // encodes into a buffer it keeps, so that a steady stream of P-DATA-TF
 // costs no allocation. It is not safe for concurrent use.
-type Writer struct {
+type writer struct {
 	w   io.Writer
 	buf []byte
 }
 
-// NewWriter returns a Writer on w.
-func NewWriter(w io.Writer) *Writer { return &Writer{w: w} }
+// newWriter returns a Writer on w.
+func newWriter(w io.Writer) *writer { return &writer{w: w} }
 
-// Write encodes p into the Writer's buffer and writes it with one Write
+// write encodes p into the Writer's buffer and writes it with one Write
 // call.
-func (w *Writer) Write(p PDU) error {
+func (w *writer) Write(p PDU) error {
 	b, err := appendPDU(w.buf[:0], p)
 	if err != nil {
 		return err
@@ -61,30 +61,30 @@ func appendPDU(dst []byte, p PDU) ([]byte, error) {
 	switch v := p.(type) {
 	case *AssociateRQ:
 		if v != nil {
-			return v.AppendTo(dst)
+			return v.appendTo(dst)
 		}
 	case *AssociateAC:
 		if v != nil {
-			return v.AppendTo(dst)
+			return v.appendTo(dst)
 		}
 	case *AssociateRJ:
 		if v != nil {
-			return v.AppendTo(dst)
+			return v.appendTo(dst)
 		}
 	case *PDataTF:
 		if v != nil {
-			return v.AppendTo(dst)
+			return v.appendTo(dst)
 		}
 	case *ReleaseRQ:
-		return v.AppendTo(dst)
+		return v.appendTo(dst)
 	case *ReleaseRP:
-		return v.AppendTo(dst)
+		return v.appendTo(dst)
 	case *Abort:
 		if v != nil {
-			return v.AppendTo(dst)
+			return v.appendTo(dst)
 		}
 	}
-	return dst, fmt.Errorf("%w: cannot encode PDU %T(%v)", ErrInvalidField, p, p)
+	return dst, fmt.Errorf("%w: cannot encode PDU %T(%v)", errInvalidField, p, p)
 }
 
 // AppendPDataHeader appends the 12 bytes that precede a single data
@@ -128,23 +128,23 @@ func controlByte(command, last bool) byte {
 	return c
 }
 
-// AppendTo appends the P-DATA-TF (PS3.8 9.3.5 Tables 9-22 and 9-23) to dst.
+// appendTo appends the P-DATA-TF (PS3.8 9.3.5 Tables 9-22 and 9-23) to dst.
 // It needs at least one PDV, odd context IDs, and a total that fits the
 // 32-bit PDU-length. On error dst is returned unchanged.
-func (p *PDataTF) AppendTo(dst []byte) ([]byte, error) {
+func (p *PDataTF) appendTo(dst []byte) ([]byte, error) {
 	if len(p.Items) == 0 {
 		// "one or more Presentation-Data-Value Items" (PS3.8 9.3.5)
-		return dst, fmt.Errorf("%w: P-DATA-TF without PDV items", ErrInvalidField)
+		return dst, fmt.Errorf("%w: P-DATA-TF without PDV items", errInvalidField)
 	}
 	var total uint64
 	for i, v := range p.Items {
 		if v.ContextID&1 == 0 {
-			return dst, fmt.Errorf("%w: PDV %d: presentation context ID %d is not odd", ErrInvalidField, i, v.ContextID)
+			return dst, fmt.Errorf("%w: PDV %d: presentation context ID %d is not odd", errInvalidField, i, v.ContextID)
 		}
 		total += PDVOverhead + uint64(len(v.Data))
 	}
 	if total > math.MaxUint32 {
-		return dst, fmt.Errorf("%w: P-DATA-TF PDU-length %d", ErrFieldTooLong, total)
+		return dst, fmt.Errorf("%w: P-DATA-TF PDU-length %d", errFieldTooLong, total)
 	}
 	// One allocation at most, however many PDVs.
 	dst = slices.Grow(dst, headerLength+int(total))
@@ -158,40 +158,40 @@ func (p *PDataTF) AppendTo(dst []byte) ([]byte, error) {
 	return dst, nil
 }
 
-// AppendTo appends the A-ASSOCIATE-RJ (PS3.8 9.3.4 Table 9-21) to dst. The
+// appendTo appends the A-ASSOCIATE-RJ (PS3.8 9.3.4 Table 9-21) to dst. The
 // values are written as given.
-func (p *AssociateRJ) AppendTo(dst []byte) ([]byte, error) {
+func (p *AssociateRJ) appendTo(dst []byte) ([]byte, error) {
 	return append(dst, byte(TypeAssociateRJ), 0, 0, 0, 0, fixedBodyLength,
 		0, byte(p.Result), byte(p.Source), byte(p.Reason)), nil
 }
 
-// AppendTo appends the A-RELEASE-RQ (PS3.8 9.3.6 Table 9-24) to dst.
-func (*ReleaseRQ) AppendTo(dst []byte) ([]byte, error) {
+// appendTo appends the A-RELEASE-RQ (PS3.8 9.3.6 Table 9-24) to dst.
+func (*ReleaseRQ) appendTo(dst []byte) ([]byte, error) {
 	return append(dst, byte(TypeReleaseRQ), 0, 0, 0, 0, fixedBodyLength, 0, 0, 0, 0), nil
 }
 
-// AppendTo appends the A-RELEASE-RP (PS3.8 9.3.7 Table 9-25) to dst.
-func (*ReleaseRP) AppendTo(dst []byte) ([]byte, error) {
+// appendTo appends the A-RELEASE-RP (PS3.8 9.3.7 Table 9-25) to dst.
+func (*ReleaseRP) appendTo(dst []byte) ([]byte, error) {
 	return append(dst, byte(TypeReleaseRP), 0, 0, 0, 0, fixedBodyLength, 0, 0, 0, 0), nil
 }
 
-// AppendTo appends the A-ABORT (PS3.8 9.3.8 Table 9-26) to dst. The values
+// appendTo appends the A-ABORT (PS3.8 9.3.8 Table 9-26) to dst. The values
 // are written as given; with source service-user the reason should be 0
 // ("sent with a value 00H").
-func (p *Abort) AppendTo(dst []byte) ([]byte, error) {
+func (p *Abort) appendTo(dst []byte) ([]byte, error) {
 	return append(dst, byte(TypeAbort), 0, 0, 0, 0, fixedBodyLength,
 		0, 0, byte(p.Source), byte(p.Reason)), nil
 }
 
-// AppendTo appends the A-ASSOCIATE-RQ (PS3.8 9.3.2 Table 9-11) to dst. It
-// checks what it writes: AE titles (CheckAETitle), UIDs (CheckUID), at
+// appendTo appends the A-ASSOCIATE-RQ (PS3.8 9.3.2 Table 9-11) to dst. It
+// checks what it writes: AE titles (CheckAETitle), UIDs (checkUID), at
 // least one presentation context, each with odd ID and at least one
 // transfer syntax, and that every item fits its length field. On error
 // dst is returned unchanged.
-func (p *AssociateRQ) AppendTo(dst []byte) ([]byte, error) {
+func (p *AssociateRQ) appendTo(dst []byte) ([]byte, error) {
 	const t = TypeAssociateRQ
 	if p.UserInfo.UserIdentityResponse != nil {
-		return dst, fmt.Errorf("%w: %s: user identity sub-item 59H belongs in an A-ASSOCIATE-AC", ErrInvalidField, t)
+		return dst, fmt.Errorf("%w: %s: user identity sub-item 59H belongs in an A-ASSOCIATE-AC", errInvalidField, t)
 	}
 	start := len(dst)
 	b, err := appendAssociateFixed(dst, t, p.ProtocolVersion, p.CalledAETitle, p.CallingAETitle, p.ApplicationContext)
@@ -199,7 +199,7 @@ func (p *AssociateRQ) AppendTo(dst []byte) ([]byte, error) {
 		return dst, err
 	}
 	if len(p.PresentationContexts) == 0 {
-		return dst, fmt.Errorf("%w: %s without presentation contexts", ErrInvalidField, t)
+		return dst, fmt.Errorf("%w: %s without presentation contexts", errInvalidField, t)
 	}
 	for _, pc := range p.PresentationContexts {
 		if b, err = appendPresentationContextRQ(b, pc); err != nil {
@@ -215,14 +215,14 @@ func (p *AssociateRQ) AppendTo(dst []byte) ([]byte, error) {
 	return b, nil
 }
 
-// AppendTo appends the A-ASSOCIATE-AC (PS3.8 9.3.3 Table 9-17) to dst,
+// appendTo appends the A-ASSOCIATE-AC (PS3.8 9.3.3 Table 9-17) to dst,
 // with the checks of AssociateRQ.AppendTo; an accepted presentation context
 // needs a transfer syntax, a rejected one may leave it empty. On error dst
 // is returned unchanged.
-func (p *AssociateAC) AppendTo(dst []byte) ([]byte, error) {
+func (p *AssociateAC) appendTo(dst []byte) ([]byte, error) {
 	const t = TypeAssociateAC
 	if p.UserInfo.UserIdentity != nil {
-		return dst, fmt.Errorf("%w: %s: user identity sub-item 58H belongs in an A-ASSOCIATE-RQ", ErrInvalidField, t)
+		return dst, fmt.Errorf("%w: %s: user identity sub-item 58H belongs in an A-ASSOCIATE-RQ", errInvalidField, t)
 	}
 	start := len(dst)
 	b, err := appendAssociateFixed(dst, t, p.ProtocolVersion, p.CalledAETitle, p.CallingAETitle, p.ApplicationContext)
@@ -230,7 +230,7 @@ func (p *AssociateAC) AppendTo(dst []byte) ([]byte, error) {
 		return dst, err
 	}
 	if len(p.PresentationContexts) == 0 {
-		return dst, fmt.Errorf("%w: %s without presentation contexts", ErrInvalidField, t)
+		return dst, fmt.Errorf("%w: %s without presentation contexts", errInvalidField, t)
 	}
 	for _, pc := range p.PresentationContexts {
 		if b, err = appendPresentationContextAC(b, pc); err != nil {
@@ -256,7 +256,7 @@ func appendAssociateFixed(b []byte, t Type, version uint16, called, calling, app
 	if err := CheckAETitle(calling); err != nil {
 		return b, fmt.Errorf("%s calling AE title: %w", t, err)
 	}
-	if err := CheckUID(appCtx); err != nil {
+	if err := checkUID(appCtx); err != nil {
 		return b, fmt.Errorf("%s application context name: %w", t, err)
 	}
 	b = append(b, byte(t), 0, 0, 0, 0, 0) // PDU-length patched by finishPDU
@@ -272,7 +272,7 @@ func appendAssociateFixed(b []byte, t Type, version uint16, called, calling, app
 func finishPDU(b []byte, start int) error {
 	n := uint64(len(b) - start - headerLength)
 	if n > math.MaxUint32 {
-		return fmt.Errorf("%w: %s PDU-length %d", ErrFieldTooLong, Type(b[start]), n)
+		return fmt.Errorf("%w: %s PDU-length %d", errFieldTooLong, Type(b[start]), n)
 	}
 	binary.BigEndian.PutUint32(b[start+2:], uint32(n))
 	return nil
@@ -288,7 +288,7 @@ func beginItem(b []byte, typ, extra byte) ([]byte, int) {
 func endItem(b []byte, start int) error {
 	n := len(b) - start - 4
 	if n > maxItemLength {
-		return fmt.Errorf("%w: item 0x%02x of %d bytes exceeds %d", ErrFieldTooLong, b[start], n, maxItemLength)
+		return fmt.Errorf("%w: item 0x%02x of %d bytes exceeds %d", errFieldTooLong, b[start], n, maxItemLength)
 	}
 	binary.BigEndian.PutUint16(b[start+2:], uint16(n))
 	return nil
@@ -314,7 +314,7 @@ func appendString16(b []byte, s string) []byte {
 
 func appendBytes16(b []byte, v []byte, what string) ([]byte, error) {
 	if len(v) > maxItemLength {
-		return b, fmt.Errorf("%w: %s of %d bytes", ErrFieldTooLong, what, len(v))
+		return b, fmt.Errorf("%w: %s of %d bytes", errFieldTooLong, what, len(v))
 	}
 	b = binary.BigEndian.AppendUint16(b, uint16(len(v)))
 	return append(b, v...), nil
@@ -322,7 +322,7 @@ func appendBytes16(b []byte, v []byte, what string) ([]byte, error) {
 
 func checkContextIDForWrite(id byte) error {
 	if id&1 == 0 {
-		return fmt.Errorf("%w: presentation context ID %d is not odd", ErrInvalidField, id)
+		return fmt.Errorf("%w: presentation context ID %d is not odd", errInvalidField, id)
 	}
 	return nil
 }
@@ -333,17 +333,17 @@ func appendPresentationContextRQ(b []byte, pc PresentationContextRQ) ([]byte, er
 	if err := checkContextIDForWrite(pc.ID); err != nil {
 		return b, err
 	}
-	if err := CheckUID(pc.AbstractSyntax); err != nil {
+	if err := checkUID(pc.AbstractSyntax); err != nil {
 		return b, fmt.Errorf("presentation context %d abstract syntax: %w", pc.ID, err)
 	}
 	if len(pc.TransferSyntaxes) == 0 {
-		return b, fmt.Errorf("%w: presentation context %d without transfer syntaxes", ErrInvalidField, pc.ID)
+		return b, fmt.Errorf("%w: presentation context %d without transfer syntaxes", errInvalidField, pc.ID)
 	}
 	b, start := beginItem(b, itemPresentationCtxRQ, 0)
 	b = append(b, pc.ID, 0, 0, 0) // bytes 6-8 reserved
 	b, _ = appendStringItem(b, itemAbstractSyntax, pc.AbstractSyntax)
 	for _, ts := range pc.TransferSyntaxes {
-		if err := CheckUID(ts); err != nil {
+		if err := checkUID(ts); err != nil {
 			return b, fmt.Errorf("presentation context %d transfer syntax: %w", pc.ID, err)
 		}
 		b, _ = appendStringItem(b, itemTransferSyntax, ts)
@@ -363,7 +363,7 @@ func appendPresentationContextAC(b []byte, pc PresentationContextAC) ([]byte, er
 		return b, err
 	}
 	if pc.Result == PCAcceptance || pc.TransferSyntax != "" {
-		if err := CheckUID(pc.TransferSyntax); err != nil {
+		if err := checkUID(pc.TransferSyntax); err != nil {
 			return b, fmt.Errorf("presentation context %d transfer syntax: %w", pc.ID, err)
 		}
 	}
@@ -386,7 +386,7 @@ func appendUserInfo(b []byte, ui *UserInformation) ([]byte, error) {
 
 	// 52H Implementation Class UID, PS3.7 D.3.3.2 Table D.3-1.
 	if ui.ImplementationClassUID != "" {
-		if err := CheckUID(ui.ImplementationClassUID); err != nil {
+		if err := checkUID(ui.ImplementationClassUID); err != nil {
 			return b, fmt.Errorf("implementation class UID: %w", err)
 		}
 		b, _ = appendStringItem(b, subImplementationClass, ui.ImplementationClassUID)
@@ -403,7 +403,7 @@ func appendUserInfo(b []byte, ui *UserInformation) ([]byte, error) {
 	// 54H SCP/SCU Role Selection, PS3.7 D.3.3.4 Table D.3-9: UID-length,
 	// SOP-class-uid, SCU-role, SCP-role.
 	for _, rs := range ui.RoleSelections {
-		if err := CheckUID(rs.SOPClassUID); err != nil {
+		if err := checkUID(rs.SOPClassUID); err != nil {
 			return b, fmt.Errorf("role selection SOP class: %w", err)
 		}
 		var s int
@@ -425,7 +425,7 @@ func appendUserInfo(b []byte, ui *UserInformation) ([]byte, error) {
 	// SOP-class-uid-length, SOP-class-uid, service-class-application-
 	// information to the end of the sub-item.
 	for _, en := range ui.ExtendedNegotiations {
-		if err := CheckUID(en.SOPClassUID); err != nil {
+		if err := checkUID(en.SOPClassUID); err != nil {
 			return b, fmt.Errorf("extended negotiation SOP class: %w", err)
 		}
 		var s int
@@ -440,10 +440,10 @@ func appendUserInfo(b []byte, ui *UserInformation) ([]byte, error) {
 	// 57H SOP Class Common Extended Negotiation, PS3.7 D.3.3.6
 	// Tables D.3-12 and D.3-13: byte 2 is the sub-item-version, 0.
 	for _, cen := range ui.CommonExtendedNegotiations {
-		if err := CheckUID(cen.SOPClassUID); err != nil {
+		if err := checkUID(cen.SOPClassUID); err != nil {
 			return b, fmt.Errorf("common extended negotiation SOP class: %w", err)
 		}
-		if err := CheckUID(cen.ServiceClassUID); err != nil {
+		if err := checkUID(cen.ServiceClassUID); err != nil {
 			return b, fmt.Errorf("common extended negotiation service class: %w", err)
 		}
 		var s int
@@ -453,14 +453,14 @@ func appendUserInfo(b []byte, ui *UserInformation) ([]byte, error) {
 		rel := len(b)
 		b = append(b, 0, 0) // related-general-sop-class-identification-length
 		for _, uid := range cen.RelatedGeneralSOPClasses {
-			if err := CheckUID(uid); err != nil {
+			if err := checkUID(uid); err != nil {
 				return b, fmt.Errorf("common extended negotiation related general SOP class: %w", err)
 			}
 			b = appendString16(b, uid)
 		}
 		n := len(b) - rel - 2
 		if n > maxItemLength {
-			return b, fmt.Errorf("%w: related general SOP classes of %d bytes", ErrFieldTooLong, n)
+			return b, fmt.Errorf("%w: related general SOP classes of %d bytes", errFieldTooLong, n)
 		}
 		binary.BigEndian.PutUint16(b[rel:], uint16(n))
 		if err := endItem(b, s); err != nil {
@@ -527,7 +527,7 @@ func appendAETitle(b []byte, s string) []byte {
 // 16 characters (PS3.8 9.3.2 Table 9-11: sixteen spaces, "no Application
 // Name specified", "shall not be used") of the ISO 646 G0 set without
 // backslash or control characters (PS3.5 6.2, AE value representation).
-// The error matches ErrInvalidAETitle.
+// The error matches errInvalidAETitle.
 //
 // Decoding does not apply this check, so that the caller can answer a
 // peer's unacceptable AE title with an A-ASSOCIATE-RJ rather than an
@@ -536,34 +536,34 @@ func CheckAETitle(s string) error {
 	t := strings.Trim(s, " ")
 	switch {
 	case t == "":
-		return fmt.Errorf("%w: empty", ErrInvalidAETitle)
+		return fmt.Errorf("%w: empty", errInvalidAETitle)
 	case len(t) > aeTitleLength:
-		return fmt.Errorf("%w: %d characters, more than %d", ErrInvalidAETitle, len(t), aeTitleLength)
+		return fmt.Errorf("%w: %d characters, more than %d", errInvalidAETitle, len(t), aeTitleLength)
 	}
 	for i := 0; i < len(t); i++ {
 		if c := t[i]; c < 0x20 || c > 0x7e || c == '\\' {
-			return fmt.Errorf("%w: character 0x%02x at %d", ErrInvalidAETitle, c, i)
+			return fmt.Errorf("%w: character 0x%02x at %d", errInvalidAETitle, c, i)
 		}
 	}
 	return nil
 }
 
-// CheckUID reports whether s can be sent as a UID or syntax name: 1 to 64
+// checkUID reports whether s can be sent as a UID or syntax name: 1 to 64
 // characters, digits and dots only, so in particular without the NUL or
 // space padding of PS3.5 9.1 ("Components shall not be padded", PS3.8
 // Annex F). Leading zeros in components, which Annex F also forbids, are
 // not refused, because peers' UIDs with them exist and we must be able to
-// echo them back. The error matches ErrInvalidUID.
-func CheckUID(s string) error {
+// echo them back. The error matches errInvalidUID.
+func checkUID(s string) error {
 	switch {
 	case s == "":
-		return fmt.Errorf("%w: empty", ErrInvalidUID)
+		return fmt.Errorf("%w: empty", errInvalidUID)
 	case len(s) > maxUIDLength:
-		return fmt.Errorf("%w: %d characters, more than %d", ErrInvalidUID, len(s), maxUIDLength)
+		return fmt.Errorf("%w: %d characters, more than %d", errInvalidUID, len(s), maxUIDLength)
 	}
 	for i := 0; i < len(s); i++ {
 		if c := s[i]; (c < '0' || c > '9') && c != '.' {
-			return fmt.Errorf("%w: character 0x%02x at %d", ErrInvalidUID, c, i)
+			return fmt.Errorf("%w: character 0x%02x at %d", errInvalidUID, c, i)
 		}
 	}
 	return nil
@@ -573,11 +573,11 @@ func CheckUID(s string) error {
 // ISO 646:1990 (basic G0 set) characters".
 func checkVersionName(s string) error {
 	if len(s) > maxImplementationVersionName {
-		return fmt.Errorf("%w: implementation version name of %d characters, more than %d", ErrInvalidField, len(s), maxImplementationVersionName)
+		return fmt.Errorf("%w: implementation version name of %d characters, more than %d", errInvalidField, len(s), maxImplementationVersionName)
 	}
 	for i := 0; i < len(s); i++ {
 		if c := s[i]; c < 0x20 || c > 0x7e {
-			return fmt.Errorf("%w: implementation version name character 0x%02x at %d", ErrInvalidField, c, i)
+			return fmt.Errorf("%w: implementation version name character 0x%02x at %d", errInvalidField, c, i)
 		}
 	}
 	return nil

@@ -5,30 +5,22 @@
 package scptest
 
 import (
+	"bytes"
 	"os"
 	"os/exec"
+	"regexp"
+	"strings"
 	"testing"
+
+	"dwiaudit/internal/testtool"
 )
 
-// NeedTool returns the path of an outside program the test needs. A
-// missing program fails the test when CI=true (CI installs everything the
-// tests need) and skips it elsewhere with the Debian package to install.
-func NeedTool(t testing.TB, name, debianPackage string) string {
-	t.Helper()
-	path, err := exec.LookPath(name)
-	if err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("%s not found on PATH (CI=true): CI must install Debian package %s", name, debianPackage)
-		}
-		t.Skipf("%s not found on PATH: install Debian package %s", name, debianPackage)
-	}
-	return path
-}
-
-// NeedDCMTK is NeedTool for a DCMTK program.
+// NeedDCMTK returns the path of a DCMTK program (Debian package dcmtk),
+// through testtool.Path: missing, it fails the test under CI=true and
+// skips it elsewhere.
 func NeedDCMTK(t testing.TB, name string) string {
 	t.Helper()
-	return NeedTool(t, name, "dcmtk")
+	return testtool.Path(t, name, "dcmtk")
 }
 
 // DCMTKEnv is the environment for a DCMTK process. Debian's DCMTK leaves
@@ -37,4 +29,43 @@ func NeedDCMTK(t testing.TB, name string) string {
 // documentation of the TCP_NODELAY environment variable).
 func DCMTKEnv() []string {
 	return append(os.Environ(), "TCP_NODELAY=1")
+}
+
+// Dump is what DCMTK's dcmdump printed for one file.
+type Dump struct {
+	Values map[string]string // "0002,0010" -> value, brackets removed
+	Stderr string            // DCMTK's warnings ("W: ") and errors ("E: ")
+	Text   string            // the whole dump
+}
+
+// dumpLine matches one element line of dcmdump output, for example
+// `(0002,0010) UI [1.2.840.10008.1.2.1]   #  20, 1 TransferSyntaxUID`
+// (DCMTK dcmdump output).
+var dumpLine = regexp.MustCompile(`^\s*\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\) ([A-Z][A-Z]) (.*?)\s+#\s*\d+,`)
+
+// DCMDump runs `dcmdump -Un` (UIDs as numbers, not names) on path and
+// fails the test if dcmdump exits non-zero. Values holds every element
+// line, nested ones included, by "gggg,eeee".
+func DCMDump(t testing.TB, path string) Dump {
+	t.Helper()
+	tool := NeedDCMTK(t, "dcmdump")
+	var stdout, stderr bytes.Buffer
+	cmd := exec.Command(tool, "-Un", path)
+	cmd.Stdout, cmd.Stderr = &stdout, &stderr
+	if err := cmd.Run(); err != nil {
+		t.Fatalf("dcmdump %s: %v\n%s%s", path, err, stdout.String(), stderr.String())
+	}
+	d := Dump{Values: map[string]string{}, Stderr: stderr.String(), Text: stdout.String()}
+	for _, line := range strings.Split(stdout.String(), "\n") {
+		m := dumpLine.FindStringSubmatch(line)
+		if m == nil {
+			continue
+		}
+		v := m[4]
+		if strings.HasPrefix(v, "[") && strings.HasSuffix(v, "]") {
+			v = v[1 : len(v)-1]
+		}
+		d.Values[strings.ToUpper(m[1]+","+m[2])] = v
+	}
+	return d
 }
