@@ -17,6 +17,7 @@ import (
 	"text/tabwriter"
 
 	"dwiaudit/audit"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 )
 
@@ -45,9 +46,9 @@ func runCheck(ctx context.Context, env *cliEnv, args []string) int {
 		fmt.Fprintln(env.stderr, "dwiaudit check:", err)
 		return exitUsage
 	}
-	ac := DefaultConfig().Audit
+	ac := config.Default().Audit
 	if *configPath != "" {
-		if ac, err = LoadAuditConfigFile(*configPath); err != nil {
+		if ac, err = config.LoadAuditFile(*configPath); err != nil {
 			fmt.Fprintln(env.stderr, "dwiaudit check:", err)
 			return exitUsage
 		}

@@ -7,6 +7,7 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 )
@@ -55,7 +56,7 @@ func TestTheSchedulerCatchesUpThenFreezesAtDailyAt(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	cfg := DefaultConfig().Reports // daily_at 06:00
+	cfg := config.Default().Reports // daily_at 06:00
 	frozen := make(chan string)
 	run := func(ctx context.Context) *sync.WaitGroup {
 		d := &dailyScheduler{archive: newReportArchive(cfg, st, time.UTC, clk.Now), lists: st, loc: time.UTC,

@@ -27,6 +27,7 @@ import (
 
 	"dwiaudit/audit/phantom"
 	"dwiaudit/audit/report"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 )
@@ -238,7 +239,7 @@ func runDemo(ctx context.Context, env *cliEnv, args []string) int {
 		fmt.Fprintln(env.stderr, "dwiaudit demo:", err)
 		return exitUsage
 	}
-	loc, err := loadLocation(cfg.Node.TimeZone)
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit demo: node.time_zone:", err)
 		return exitUsage
@@ -250,15 +251,15 @@ func runDemo(ctx context.Context, env *cliEnv, args []string) int {
 
 // demoConfig is the default configuration with the demo's folder,
 // loopback ports, short settle, quiet log and the hospital's peers.
-func demoConfig(dataDir, httpListen string) Config {
-	cfg := DefaultConfig()
+func demoConfig(dataDir, httpListen string) config.Config {
+	cfg := config.Default()
 	cfg.Node.DataDir = dataDir
 	cfg.Node.DICOMListen = "127.0.0.1:0"
 	cfg.Node.HTTPListen = httpListen
-	cfg.Audit.Settle = Duration(demoSettle)
-	cfg.Log.Level = LogLevel(slog.LevelWarn)
+	cfg.Audit.Settle = config.Duration(demoSettle)
+	cfg.Log.Level = config.LogLevel(slog.LevelWarn)
 	for _, s := range demoScanners() {
-		cfg.Peers = append(cfg.Peers, PeerConfig{AETitle: s.aeTitle, Scanner: s.label})
+		cfg.Peers = append(cfg.Peers, config.Peer{AETitle: s.aeTitle, Scanner: s.label})
 	}
 	return cfg
 }
@@ -266,7 +267,7 @@ func demoConfig(dataDir, httpListen string) Config {
 // demo is one run of the demonstration.
 type demo struct {
 	env        *cliEnv
-	cfg        Config
+	cfg        config.Config
 	loc        *time.Location
 	studiesDir string
 	scanners   []demoScanner

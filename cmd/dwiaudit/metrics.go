@@ -15,6 +15,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
 	"dwiaudit/audit/metrics"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 	"dwiaudit/store"
@@ -30,7 +31,7 @@ const seedDays = 31
 // configuration (peer scanner labels, protocol and phantom names, the
 // rule IDs), the disk floor, the data folder's free space and the
 // pipeline's backlog read at scrape, and Go runtime and process metrics.
-func newNodeMetrics(cfg Config, free func() (uint64, error), backlog func() int, log *slog.Logger) *metrics.Metrics {
+func newNodeMetrics(cfg config.Config, free func() (uint64, error), backlog func() int, log *slog.Logger) *metrics.Metrics {
 	var scanners, protocols, phantoms []string
 	for _, p := range cfg.Peers {
 		scanners = append(scanners, p.Scanner)

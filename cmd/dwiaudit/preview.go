@@ -22,6 +22,7 @@ import (
 
 	"dwiaudit/audit"
 	"dwiaudit/audit/preview"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 )
@@ -65,7 +66,7 @@ type previews struct {
 }
 
 // newPreviews builds the endpoint on the node's audit configuration.
-func newPreviews(st previewStore, ac AuditConfig, log *slog.Logger) (*previews, error) {
+func newPreviews(st previewStore, ac config.Audit, log *slog.Logger) (*previews, error) {
 	eng, err := ac.Engine(log)
 	if err != nil {
 		return nil, err

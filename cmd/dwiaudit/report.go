@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/config"
 	"dwiaudit/store"
 )
 
@@ -47,7 +48,7 @@ func newReportFlags(env *cliEnv, name, synopsis string) reportFlags {
 	return reportFlags{
 		fs:         fs,
 		format:     fs.String("format", "text", "text, csv, json or html"),
-		data:       fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+defaultDataDir+")"),
+		data:       fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+config.DefaultDataDir+")"),
 		server:     fs.String("server", "", "ask a running dwiaudit serve at URL, e.g. http://127.0.0.1:8080"),
 		configPath: fs.String("config", "", "take the data folder, time zone and reports: settings from this configuration file"),
 	}
@@ -87,13 +88,13 @@ func runReport(ctx context.Context, env *cliEnv, args []string) int {
 
 // prepare parses the flags and loads the configuration; a non-negative
 // code means stop.
-func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.Format, Config, *time.Location, int) {
+func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.Format, config.Config, *time.Location, int) {
 	if code := parseFlags(rf.fs, args); code >= 0 {
-		return 0, Config{}, nil, code
+		return 0, config.Config{}, nil, code
 	}
-	fail := func(format string, a ...any) (report.Format, Config, *time.Location, int) {
+	fail := func(format string, a ...any) (report.Format, config.Config, *time.Location, int) {
 		fmt.Fprintf(env.stderr, "dwiaudit report %s: %s\n", name, fmt.Sprintf(format, a...))
-		return 0, Config{}, nil, exitUsage
+		return 0, config.Config{}, nil, exitUsage
 	}
 	if rf.fs.NArg() != 0 {
 		return fail("unexpected argument %q", rf.fs.Arg(0))
@@ -105,13 +106,13 @@ func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.F
 	if err != nil {
 		return fail("--format %q: use text, csv, json or html", *rf.format)
 	}
-	cfg := DefaultConfig()
+	cfg := config.Default()
 	if *rf.configPath != "" {
-		if cfg, err = LoadConfigFile(*rf.configPath); err != nil {
+		if cfg, err = config.LoadFile(*rf.configPath); err != nil {
 			return fail("%v", err)
 		}
 	}
-	loc, err := loadLocation(cfg.Node.TimeZone)
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		return fail("node.time_zone: %v", err)
 	}
@@ -204,7 +205,7 @@ func runReportCompliance(ctx context.Context, env *cliEnv, args []string) int {
 
 // withFolder opens the data folder read-only for fn. A running server
 // holds the index locked; then the answer is to ask it.
-func withFolder(cfg Config, data string, loc *time.Location, fn func(*store.Store) error) error {
+func withFolder(cfg config.Config, data string, loc *time.Location, fn func(*store.Store) error) error {
 	dir := cfg.Node.DataDir
 	if data != "" {
 		dir = data

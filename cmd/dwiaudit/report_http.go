@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/config"
 	"dwiaudit/store"
 )
 
@@ -32,7 +33,7 @@ type reportsAPI struct {
 // newReportArchive is the archive of daily lists the node and `dwiaudit
 // report --data` serve: a Builder over the store with the reports:
 // section's settings.
-func newReportArchive(cfg ReportsConfig, st *store.Store, loc *time.Location, now func() time.Time) *report.Archive {
+func newReportArchive(cfg config.Reports, st *store.Store, loc *time.Location, now func() time.Time) *report.Archive {
 	return &report.Archive{
 		Builder: &report.Builder{
 			Source:    st,

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 )
@@ -121,7 +122,7 @@ func TestTheDailyListOfARealNodeShowsAMissingB0(t *testing.T) {
 
 func TestTheReportEndpointsAnswerErrorsAsJSON(t *testing.T) {
 	st := openTestStore(t, time.Now)
-	srv := httptest.NewServer(withReports(newAPI(st, time.UTC, func() bool { return true }, discardLog()), newReportArchive(DefaultConfig().Reports, st, time.UTC, time.Now), discardLog()))
+	srv := httptest.NewServer(withReports(newAPI(st, time.UTC, func() bool { return true }, discardLog()), newReportArchive(config.Default().Reports, st, time.UTC, time.Now), discardLog()))
 	defer srv.Close()
 	for _, c := range []struct {
 		name, path string
@@ -164,7 +165,7 @@ func TestAFrozenDayServedOverHTTPIsByteIdentical(t *testing.T) {
 	if err := st.SaveAudit(rec("2.25.77.1", time.Date(2026, 12, 1, 15, 0, 0, 0, time.UTC), miss)); err != nil {
 		t.Fatal(err)
 	}
-	srv := httptest.NewServer(withReports(http.NotFoundHandler(), newReportArchive(DefaultConfig().Reports, st, time.UTC, func() time.Time { return now }), discardLog()))
+	srv := httptest.NewServer(withReports(http.NotFoundHandler(), newReportArchive(config.Default().Reports, st, time.UTC, func() time.Time { return now }), discardLog()))
 	defer srv.Close()
 	var first [][]byte
 	for _, ext := range []string{"json", "csv", "html"} {

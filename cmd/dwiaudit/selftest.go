@@ -21,6 +21,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 )
@@ -41,7 +42,7 @@ func runSelftest(ctx context.Context, env *cliEnv, args []string) int {
 	server := fs.String("server", "http://127.0.0.1:8080", "the node's HTTP address")
 	calling := fs.String("calling-ae", selftestCallingAE, "our calling AE title (a peer the node knows, if it lists peers)")
 	called := fs.String("called-ae", scp.DefaultAETitle, "the node's AE title")
-	patientID := fs.String("patient-id", DefaultTestPatientID, "Patient ID of the suite: one of the node's audit.test_patient_ids, so that compliance reports and drift metrics leave it out")
+	patientID := fs.String("patient-id", config.DefaultTestPatientID, "Patient ID of the suite: one of the node's audit.test_patient_ids, so that compliance reports and drift metrics leave it out")
 	timeout := fs.Duration("timeout", defaultSelftestTimeout, "how long to wait for the audits (the node's settle time plus a little)")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code

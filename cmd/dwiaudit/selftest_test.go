@@ -62,7 +62,7 @@ func TestSelftestPassesAgainstARunningNodeAndMarksItsStudiesAsTest(t *testing.T)
 
 func TestSelftestFailsNamingARuleTheNodeHasSwitchedOff(t *testing.T) {
 	cfg := filepath.Join(t.TempDir(), "dwiaudit.yaml")
-	// audit.rules.<id>.enabled (config.go RuleConfig).
+	// audit.rules.<id>.enabled (config.Rule).
 	if err := os.WriteFile(cfg, []byte("audit:\n  rules:\n    "+rules.IDLowSNR+":\n      enabled: false\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}

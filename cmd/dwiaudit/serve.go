@@ -19,6 +19,7 @@ import (
 	"time"
 
 	"dwiaudit/audit"
+	"dwiaudit/config"
 	"dwiaudit/scp"
 	"dwiaudit/store"
 )
@@ -53,13 +54,13 @@ const (
 func runServe(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "serve", "[flags]")
 	configPath := fs.String("config", "", "configuration file (YAML); without one, the defaults")
-	fs.String("data", "", "data folder (overrides node.data_dir; default "+defaultDataDir+")")
-	fs.String("listen", "", "DICOM listen address host:port (overrides node.dicom_listen; default "+defaultDICOMListen+")")
-	fs.String("http", "", "HTTP listen address host:port (overrides node.http_listen; default "+defaultHTTPListen+")")
+	fs.String("data", "", "data folder (overrides node.data_dir; default "+config.DefaultDataDir+")")
+	fs.String("listen", "", "DICOM listen address host:port (overrides node.dicom_listen; default "+config.DefaultDICOMListen+")")
+	fs.String("http", "", "HTTP listen address host:port (overrides node.http_listen; default "+config.DefaultHTTPListen+")")
 	fs.String("ae-title", "", "our AE title (overrides node.ae_title; default "+scp.DefaultAETitle+")")
 	fs.String("log-format", "", "text or json (overrides log.format; default text)")
 	fs.String("log-level", "", "debug, info, warn or error (overrides log.level; default info)")
-	fs.String("settle", "", "how long a study must receive nothing before it is audited, e.g. 2s (overrides audit.settle; default "+Duration(defaultSettle).String()+")")
+	fs.String("settle", "", "how long a study must receive nothing before it is audited, e.g. 2s (overrides audit.settle; default "+config.Duration(config.DefaultSettle).String()+")")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -78,13 +79,13 @@ func runServe(ctx context.Context, env *cliEnv, args []string) int {
 
 // serveConfig reads the file (or takes the defaults), applies the flags
 // that were given and validates the result, listing every problem.
-func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
-	cfg := DefaultConfig()
+func serveConfig(path string, fs *flag.FlagSet) (config.Config, error) {
+	cfg := config.Default()
 	var problems []string
 	if path != "" {
 		var err error
-		cfg, err = LoadConfigFile(path)
-		var ce *ConfigError
+		cfg, err = config.LoadFile(path)
+		var ce *config.Error
 		switch {
 		case errors.As(err, &ce):
 			problems = append(problems, ce.Problems...)
@@ -120,7 +121,7 @@ func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
 	})
 	// Validate again with the flags applied; the file's own value
 	// problems are already listed.
-	var ce *ConfigError
+	var ce *config.Error
 	if err := cfg.Validate(); errors.As(err, &ce) {
 		for _, p := range ce.Problems {
 			if !slices.Contains(problems, p) {
@@ -130,16 +131,16 @@ func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
 	}
 	problems = append(problems, flagProblems...)
 	if len(problems) > 0 {
-		return cfg, &ConfigError{File: path, Problems: problems}
+		return cfg, &config.Error{File: path, Problems: problems}
 	}
 	return cfg, nil
 }
 
 // serve runs the node on a validated configuration until ctx ends, then
 // stops it gracefully.
-func serve(ctx context.Context, env *cliEnv, cfg Config) int {
-	log := newLogger(env.stderr, cfg.Log)
-	loc, err := loadLocation(cfg.Node.TimeZone)
+func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
+	log := config.NewLogger(env.stderr, cfg.Log)
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve: node.time_zone:", err)
 		return exitUsage
@@ -226,11 +227,11 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		return exitFailure
 	}
 
-	peers := newPeerTable(cfg.Peers)
+	peers := config.NewPeerTable(cfg.Peers)
 	dicom := &scp.Server{
 		AETitle:                cfg.Node.AETitle,
-		AllowedCallingAETitles: peers.callingAETitles(),
-		AllowCalling:           peers.allow,
+		AllowedCallingAETitles: peers.CallingAETitles(),
+		AllowCalling:           peers.Allow,
 		MaxAssociations:        cfg.Limits.MaxAssociations,
 		ARTIMTimeout:           time.Duration(cfg.Limits.ARTIMTimeout),
 		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),

@@ -14,6 +14,7 @@ import (
 	"strings"
 	"time"
 
+	"dwiaudit/config"
 	"dwiaudit/store"
 )
 
@@ -30,7 +31,7 @@ const (
 
 func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "studies", "[--data DIR | --server URL] [--day YYYY-MM-DD] [--format text|json]")
-	data := fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+defaultDataDir+")")
+	data := fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+config.DefaultDataDir+")")
 	server := fs.String("server", "", "ask a running dwiaudit serve at URL, e.g. http://127.0.0.1:8080")
 	configPath := fs.String("config", "", "take the data folder, time zone and HTTP address from this configuration file")
 	day := fs.String("day", "", "only studies with an instance received on this day, YYYY-MM-DD in the node's time zone")
@@ -57,10 +58,10 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 		fmt.Fprintf(env.stderr, "dwiaudit studies: --format %q: use text or json\n", *format)
 		return exitUsage
 	}
-	cfg := DefaultConfig()
+	cfg := config.Default()
 	var err error
 	if *configPath != "" {
-		if cfg, err = LoadConfigFile(*configPath); err != nil {
+		if cfg, err = config.LoadFile(*configPath); err != nil {
 			fmt.Fprintln(env.stderr, "dwiaudit studies:", err)
 			return exitUsage
 		}
@@ -94,8 +95,8 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 
 // studiesFromFolder opens the data folder read-only. A running server
 // holds the index locked; then the answer is to ask it.
-func studiesFromFolder(dir, day string, cfg Config) (StudiesResponse, error) {
-	loc, err := loadLocation(cfg.Node.TimeZone)
+func studiesFromFolder(dir, day string, cfg config.Config) (StudiesResponse, error) {
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		return StudiesResponse{}, fmt.Errorf("node.time_zone: %w", err)
 	}

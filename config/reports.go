@@ -1,4 +1,4 @@
-package main
+package config
 
 // The reports: section of the configuration: when the daily discrepancy
 // list is frozen, how reports show patient IDs, and the base of the
@@ -20,9 +20,9 @@ import (
 // before a department's morning meeting.
 const defaultDailyAt = TimeOfDay(6 * time.Hour)
 
-// ReportsConfig shapes the daily discrepancy list and the compliance
+// Reports shapes the daily discrepancy list and the compliance
 // report.
-type ReportsConfig struct {
+type Reports struct {
 	// DailyAt is when (node time) the list of the previous day is built
 	// and kept unchanged.
 	DailyAt TimeOfDay `yaml:"daily_at"`
@@ -35,13 +35,13 @@ type ReportsConfig struct {
 	BaseURL string `yaml:"base_url"`
 }
 
-// defaultReportsConfig is the reports: section of DefaultConfig.
-func defaultReportsConfig() ReportsConfig {
-	return ReportsConfig{DailyAt: defaultDailyAt, PatientID: PatientIDMode(report.PatientIDMasked)}
+// defaultReports is the reports: section of Default.
+func defaultReports() Reports {
+	return Reports{DailyAt: defaultDailyAt, PatientID: PatientIDMode(report.PatientIDMasked)}
 }
 
 // validate adds the section's problems to p, by field path.
-func (r ReportsConfig) validate(p *problems) {
+func (r Reports) validate(p *problems) {
 	if r.DailyAt < 0 || r.DailyAt >= TimeOfDay(24*time.Hour) {
 		p.addf("reports.daily_at", "%v is not a time of day between 00:00 and 23:59", time.Duration(r.DailyAt))
 	}
