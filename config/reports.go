@@ -13,6 +13,7 @@ import (
 	"go.yaml.in/yaml/v3"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/store"
 )
 
 // defaultDailyAt is when the list of the day before is frozen: 06:00,
@@ -122,3 +123,20 @@ func (m *PatientIDMode) UnmarshalYAML(n *yaml.Node) error {
 
 // MarshalYAML writes the mode's name.
 func (m PatientIDMode) MarshalYAML() (any, error) { return m.String(), nil }
+
+// Archive is the archive of daily lists the node and `dwiaudit report
+// --data` serve: a report.Builder over the store with the section's
+// settings.
+func (r Reports) Archive(st *store.Store, loc *time.Location, now func() time.Time) *report.Archive {
+	return &report.Archive{
+		Builder: &report.Builder{
+			Source:    st,
+			PatientID: report.PatientIDMode(r.PatientID),
+			BaseURL:   r.BaseURL,
+			Location:  loc,
+			Now:       now,
+		},
+		Lists:   st,
+		DailyAt: time.Duration(r.DailyAt),
+	}
+}

@@ -64,7 +64,8 @@ type Options struct {
 //go:embed templates/*.html assets/*
 var files embed.FS
 
-// Handler serves the pages. Register mounts them on a mux.
+// Handler serves the pages; the server's route table (routes) mounts
+// them.
 type Handler struct {
 	opt   Options
 	pages map[string]*template.Template
@@ -108,25 +109,6 @@ func New(opt Options) (*Handler, error) {
 	return h, nil
 }
 
-// Patterns are the mux patterns Register mounts, for a caller that routes
-// everything else elsewhere.
-var Patterns = []string{
-	"GET /{$}",
-	"GET /days/{day}",
-	"GET /studies/{uid}",
-	"GET /scanners",
-	"GET /scanners/{label}",
-	"GET /assets/style.css",
-}
-
-// Register mounts the pages on mux at Patterns.
-func (h *Handler) Register(mux *http.ServeMux) {
-	handlers := []http.HandlerFunc{h.today, h.day, h.study, h.scanners, h.scanner, h.style}
-	for i, p := range Patterns {
-		mux.HandleFunc(p, handlers[i])
-	}
-}
-
 // layout is what every page passes to the layout template.
 type layout struct {
 	Title   string
@@ -150,10 +132,8 @@ func (h *Handler) render(w http.ResponseWriter, status int, page, title, nav str
 	}
 	w.Header().Set("Content-Type", "text/html; charset=utf-8")
 	w.Header().Set("Cache-Control", "no-store")
-	// The pages load nothing from elsewhere and run no script.
-	w.Header().Set("Content-Security-Policy", "default-src 'none'; img-src 'self'; style-src 'self'; form-action 'self'; frame-ancestors 'none'; base-uri 'none'")
-	w.Header().Set("X-Content-Type-Options", "nosniff")
-	w.Header().Set("Referrer-Policy", "no-referrer")
+	// The security headers (Content-Security-Policy: nothing from
+	// elsewhere, no script) are the server's (securityHeaders).
 	w.WriteHeader(status)
 	w.Write(buf.Bytes())
 }
@@ -185,7 +165,6 @@ func (h *Handler) storeFailed(w http.ResponseWriter, what string, err error) {
 func (h *Handler) style(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Content-Type", "text/css; charset=utf-8")
 	w.Header().Set("Cache-Control", "private, max-age=300")
-	w.Header().Set("X-Content-Type-Options", "nosniff")
 	w.Write(h.css)
 }
 

@@ -59,7 +59,7 @@ func TestTheSchedulerCatchesUpThenFreezesAtDailyAt(t *testing.T) {
 	cfg := config.Default().Reports // daily_at 06:00
 	frozen := make(chan string)
 	run := func(ctx context.Context) *sync.WaitGroup {
-		d := &dailyScheduler{archive: newReportArchive(cfg, st, time.UTC, clk.Now), lists: st, loc: time.UTC,
+		d := &dailyScheduler{archive: cfg.Archive(st, time.UTC, clk.Now), lists: st, loc: time.UTC,
 			now: clk.Now, after: clk.After, log: discardLog(), frozen: frozen}
 		var wg sync.WaitGroup
 		wg.Go(func() { d.run(ctx) })

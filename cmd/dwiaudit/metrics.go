@@ -7,7 +7,6 @@ package main
 
 import (
 	"log/slog"
-	"net/http"
 	"runtime"
 	"runtime/debug"
 	"time"
@@ -111,12 +110,4 @@ func seedDriftMetrics(m *metrics.Metrics, st auditsByDay, now time.Time, log *sl
 	if n > 0 {
 		log.Info("drift metrics seeded from stored audits", "audits", n, "days", seedDays)
 	}
-}
-
-// withMetrics serves /metrics beside the API.
-func withMetrics(api http.Handler, m *metrics.Metrics) http.Handler {
-	mux := http.NewServeMux()
-	mux.Handle("/metrics", m.Handler())
-	mux.Handle("/", api)
-	return mux
 }

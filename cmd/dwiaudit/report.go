@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/audit/web"
 	"dwiaudit/config"
 	"dwiaudit/store"
 )
@@ -142,7 +143,7 @@ func runReportDaily(ctx context.Context, env *cliEnv, args []string) int {
 		}
 	} else {
 		err = withFolder(cfg, *rf.data, loc, func(st *store.Store) (err error) {
-			l, err = newReportArchive(cfg.Reports, st, loc, time.Now).Daily(day)
+			l, err = cfg.Reports.Archive(st, loc, time.Now).Daily(day)
 			return err
 		})
 	}
@@ -256,7 +257,7 @@ func askServer(ctx context.Context, server string, path []string, q url.Values) 
 		return nil, fmt.Errorf("reading the server's answer: %w", err)
 	}
 	if res.StatusCode != http.StatusOK {
-		var e errorBody
+		var e web.ErrorBody
 		if json.Unmarshal(body, &e) == nil && e.Error != "" {
 			return nil, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
 		}

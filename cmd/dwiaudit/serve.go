@@ -181,16 +181,6 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
-	pages, err := newWebPages(cfg, st, loc, log.With("component", "web"))
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
-		return exitUsage
-	}
-	prev, err := newPreviews(st, cfg.Audit, log.With("component", "preview"))
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
-		return exitFailure
-	}
 	pipe := &audit.Pipeline{
 		Engine:  eng,
 		Store:   st,
@@ -204,6 +194,13 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 	met := newNodeMetrics(cfg, st.FreeBytes, pipe.Backlog, log.With("component", "metrics"))
 	pipe.Observer = met
 	seedDriftMetrics(met, st, env.clock()().In(loc), log.With("component", "metrics"))
+	archive := cfg.Reports.Archive(st, loc, env.clock())
+	var dicomUp atomic.Bool
+	handler, err := httpHandler(cfg, st, loc, dicomUp.Load, met.Handler(), archive, log)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitFailure
@@ -241,7 +238,6 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 		OnAssociation:          associationMetrics(met),
 		Logger:                 log.With("component", "scp"),
 	}
-	var dicomUp atomic.Bool
 	dicomDone := make(chan error, 1)
 	dicomUp.Store(true)
 	go func() {
@@ -250,10 +246,8 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 		dicomDone <- err
 	}()
 
-	archive := newReportArchive(cfg.Reports, st, loc, env.clock())
 	hs := &http.Server{
-		Handler: pages.handler(withMetrics(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes),
-			archive, log.With("component", "http")), met)),
+		Handler:           handler,
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,

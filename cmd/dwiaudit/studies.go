@@ -14,6 +14,7 @@ import (
 	"strings"
 	"time"
 
+	"dwiaudit/audit/web"
 	"dwiaudit/config"
 	"dwiaudit/store"
 )
@@ -67,7 +68,7 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 		}
 	}
 
-	var resp StudiesResponse
+	var resp web.StudiesResponse
 	if *server != "" {
 		resp, err = studiesFromServer(ctx, *server, *day)
 	} else {
@@ -95,36 +96,36 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 
 // studiesFromFolder opens the data folder read-only. A running server
 // holds the index locked; then the answer is to ask it.
-func studiesFromFolder(dir, day string, cfg config.Config) (StudiesResponse, error) {
+func studiesFromFolder(dir, day string, cfg config.Config) (web.StudiesResponse, error) {
 	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("node.time_zone: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("node.time_zone: %w", err)
 	}
 	st, err := store.Open(store.Options{Dir: dir, ReadOnly: true, Location: loc})
 	switch {
 	case errors.Is(err, store.ErrLocked):
-		return StudiesResponse{}, fmt.Errorf("a running dwiaudit serve holds the data folder %s; ask it instead: dwiaudit studies --server http://%s", dir, cfg.Node.HTTPListen)
+		return web.StudiesResponse{}, fmt.Errorf("a running dwiaudit serve holds the data folder %s; ask it instead: dwiaudit studies --server http://%s", dir, cfg.Node.HTTPListen)
 	case errors.Is(err, store.ErrNoIndex):
-		return StudiesResponse{}, fmt.Errorf("nothing is stored in %s (no index there; is it the data folder?)", dir)
+		return web.StudiesResponse{}, fmt.Errorf("nothing is stored in %s (no index there; is it the data folder?)", dir)
 	case err != nil:
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
 	defer st.Close()
 	list, err := st.Studies(day)
 	if err != nil {
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
-	return studiesBody(day, list, loc), nil
+	return web.StudiesBody(day, list, loc), nil
 }
 
 // studiesFromServer asks GET /api/v1/studies of a running node.
-func studiesFromServer(ctx context.Context, server, day string) (StudiesResponse, error) {
+func studiesFromServer(ctx context.Context, server, day string) (web.StudiesResponse, error) {
 	if !strings.Contains(server, "://") {
 		server = "http://" + server
 	}
 	u, err := url.Parse(server)
 	if err != nil || u.Host == "" {
-		return StudiesResponse{}, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
+		return web.StudiesResponse{}, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
 	}
 	u = u.JoinPath("api", "v1", "studies")
 	if day != "" {
@@ -134,38 +135,38 @@ func studiesFromServer(ctx context.Context, server, day string) (StudiesResponse
 	defer cancel()
 	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u.String(), nil)
 	if err != nil {
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
 	req.Header.Set("Accept", "application/json")
 	if err := clientAuth(req); err != nil {
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
 	res, err := http.DefaultClient.Do(req)
 	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("asking the server: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("asking the server: %w", err)
 	}
 	defer res.Body.Close()
 	body, err := io.ReadAll(io.LimitReader(res.Body, maxStudiesResponse))
 	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("reading the server's answer: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("reading the server's answer: %w", err)
 	}
 	if res.StatusCode != http.StatusOK {
-		var e errorBody
+		var e web.ErrorBody
 		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			return StudiesResponse{}, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
+			return web.StudiesResponse{}, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
 		}
-		return StudiesResponse{}, fmt.Errorf("server answered %s", res.Status)
+		return web.StudiesResponse{}, fmt.Errorf("server answered %s", res.Status)
 	}
-	var out StudiesResponse
+	var out web.StudiesResponse
 	if err := json.Unmarshal(body, &out); err != nil {
-		return StudiesResponse{}, fmt.Errorf("the server's answer is not a study list: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("the server's answer is not a study list: %w", err)
 	}
 	return out, nil
 }
 
 // printStudies writes the list for people: a line per study, an indented
 // line per series, a total.
-func printStudies(w io.Writer, r StudiesResponse) {
+func printStudies(w io.Writer, r web.StudiesResponse) {
 	const tf = "2006-01-02 15:04:05 MST"
 	for _, st := range r.Studies {
 		fmt.Fprintf(w, "study %s", st.StudyInstanceUID)

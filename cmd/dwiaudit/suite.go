@@ -19,6 +19,7 @@ import (
 
 	"dwiaudit/audit/phantom"
 	"dwiaudit/audit/record"
+	"dwiaudit/audit/web"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 	"dwiaudit/scp/part10"
@@ -195,7 +196,7 @@ func sendStudies(ctx context.Context, d *scp.Dialer, addr string, dirs []string)
 // auditView is one series audit as the API shows it, with its findings
 // decoded.
 type auditView struct {
-	AuditJSON
+	web.AuditJSON
 	findings []rules.Finding
 	measures record.Measures // zero when the audit stored none
 }
@@ -235,7 +236,7 @@ func (c *findingsClient) get(ctx context.Context, path string, v any) error {
 	}
 	defer res.Body.Close()
 	if res.StatusCode != http.StatusOK {
-		var eb errorBody
+		var eb web.ErrorBody
 		json.NewDecoder(res.Body).Decode(&eb)
 		return fmt.Errorf("GET %s: %s %s", url, res.Status, eb.Error)
 	}
@@ -252,7 +253,7 @@ func (c *findingsClient) day(ctx context.Context, day string) (string, []auditVi
 	if day != "" {
 		path += "?day=" + day
 	}
-	var body FindingsResponse
+	var body web.FindingsResponse
 	if err := c.get(ctx, path, &body); err != nil {
 		return "", nil, err
 	}

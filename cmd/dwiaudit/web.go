@@ -18,6 +18,7 @@ import (
 
 	"golang.org/x/crypto/bcrypt"
 
+	"dwiaudit/audit/report"
 	"dwiaudit/audit/web"
 	"dwiaudit/config"
 	"dwiaudit/store"
@@ -64,17 +65,15 @@ func clientAuth(req *http.Request) error {
 	return nil
 }
 
-// webPages is the HTTP listener's handler beside the API: the pages and
-// the access control.
-type webPages struct {
-	pages *web.Handler
-	auth  *web.Auth
-}
-
-// newWebPages builds the pages over the store and the access control
-// from the configuration.
-func newWebPages(cfg config.Config, st *store.Store, loc *time.Location, log *slog.Logger) (*webPages, error) {
+// httpHandler builds the HTTP listener's handler (audit/web.Server)
+// from the configuration: the access control, the pages' scanners and
+// phantom tolerances, and an audit engine of the previews' own.
+func httpHandler(cfg config.Config, st *store.Store, loc *time.Location, dicomUp func() bool, metrics http.Handler, archive *report.Archive, log *slog.Logger) (http.Handler, error) {
 	auth, err := httpAuth(cfg.HTTPAuth)
+	if err != nil {
+		return nil, err
+	}
+	eng, err := cfg.Audit.Engine(log.With("component", "preview"))
 	if err != nil {
 		return nil, err
 	}
@@ -86,15 +85,23 @@ func newWebPages(cfg config.Config, st *store.Store, loc *time.Location, log *sl
 	for _, p := range cfg.Peers {
 		scanners = append(scanners, p.Scanner)
 	}
-	pages, err := web.New(web.Options{
-		Store:            st,
-		Location:         loc,
-		Logger:           log,
-		Scanners:         scanners,
-		PhantomTolerance: func(profile string) float64 { return tolerances[profile] },
-		// The same lists as /api/v1/reports/daily: frozen days read as
-		// kept, patient IDs as reports.patient_id says.
-		Daily: newReportArchive(cfg.Reports, st, loc, time.Now),
+	srv, err := web.NewServer(web.ServerOptions{
+		Store:    st,
+		Location: loc,
+		Logger:   log.With("component", "http"),
+		DICOMUp:  dicomUp,
+		Pages: web.Options{
+			Logger:           log.With("component", "web"),
+			Scanners:         scanners,
+			PhantomTolerance: func(profile string) float64 { return tolerances[profile] },
+			// The same lists as /api/v1/reports/daily: frozen days read
+			// as kept, patient IDs as reports.patient_id says.
+			Daily: cfg.Reports.Archive(st, loc, time.Now),
+		},
+		Reports:       archive,
+		PreviewEngine: eng,
+		Metrics:       metrics,
+		Auth:          auth,
 	})
 	if err != nil {
 		return nil, err
@@ -103,16 +110,7 @@ func newWebPages(cfg config.Config, st *store.Store, loc *time.Location, log *sl
 		log.Warn("the HTTP listener is reachable from other machines without authentication (http_auth.allow_unauthenticated)", "http", cfg.Node.HTTPListen)
 	}
 	log.Info("http access control", "auth", cfg.HTTPAuth.Describe(cfg.Node.HTTPListen))
-	return &webPages{pages: pages, auth: auth}, nil
-}
-
-// handler routes the pages' paths to the pages and everything else to
-// api, behind the access control.
-func (w *webPages) handler(api http.Handler) http.Handler {
-	mux := http.NewServeMux()
-	w.pages.Register(mux)
-	mux.Handle("/", api)
-	return w.auth.Wrap(mux)
+	return srv.Handler(), nil
 }
 
 // runHashPassword is `dwiaudit hash-password`: it reads a password from

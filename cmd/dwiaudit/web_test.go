@@ -2,7 +2,6 @@ package main
 
 import (
 	"bytes"
-	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -61,12 +60,7 @@ func authTestHandler(t *testing.T, listen string, auth config.HTTPAuth) http.Han
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	log := slog.New(slog.DiscardHandler)
-	pages, err := newWebPages(cfg, st, time.UTC, log)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return pages.handler(newAPI(st, time.UTC, func() bool { return true }, log))
+	return testHTTPHandler(t, cfg, st, cfg.Reports.Archive(st, time.UTC, time.Now))
 }
 
 func TestAccessControl(t *testing.T) {

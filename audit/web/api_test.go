@@ -1,4 +1,4 @@
-package main
+package web
 
 import (
 	"encoding/json"
@@ -51,7 +51,9 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 		},
 	}}}
 	up := true
-	h := newAPI(f, paris, func() bool { return up }, slog.New(slog.DiscardHandler))
+	s := &Server{api: newAPI(f, paris, func() bool { return up }, slog.New(slog.DiscardHandler)),
+		metrics: http.NotFoundHandler(), auth: &Auth{}, log: slog.New(slog.DiscardHandler)}
+	h := s.Handler()
 
 	t.Run("healthz says ok", func(t *testing.T) {
 		if rec := get(t, h, "GET", "/healthz"); rec.Code != http.StatusOK {
@@ -109,7 +111,7 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 	})
 	t.Run("a day that is not YYYY-MM-DD is a 400 with a JSON error", func(t *testing.T) {
 		rec := get(t, h, "GET", "/api/v1/studies?day=14.03.2025")
-		var e errorBody
+		var e ErrorBody
 		if rec.Code != http.StatusBadRequest || json.Unmarshal(rec.Body.Bytes(), &e) != nil || e.Status != 400 || e.Error == "" {
 			t.Errorf("status %d: %s", rec.Code, rec.Body)
 		}
