@@ -1,9 +1,12 @@
-package main
-
-// What `dwiaudit demo` and `dwiaudit selftest` share: the planted-defect
-// studies (one synthetic phantom case, or a clean study with a damaged
-// file, per rule), sending them to a node with C-STORE, and waiting for
-// the node's audits of them over its HTTP API.
+// Package suite is the planted-defect suite and what is built on it:
+// synthetic studies that each must fire one rule (one phantom case, or
+// a clean study with a damaged file, per rule) and clean ones, sent to
+// a node with C-STORE like a scanner would, and the node's audits of
+// them awaited over its HTTP API and compared. The installation
+// self-test (Selftest, `dwiaudit selftest`) sends the suite once; the
+// demonstration (Scenario, `dwiaudit demo`) spreads it over an invented
+// hospital's scanners and days.
+package suite
 
 import (
 	"bytes"
@@ -97,9 +100,9 @@ func rulePlants() []plant {
 // cleanPlant is the clean brain: no warning or error expected.
 func cleanPlant() plant { return plant{"clean", "", phantom.CaseClean, damageNone} }
 
-// ruleIDs is every rule ID a finding can carry, in the order of
-// rulePlants.
-func ruleIDs() []string {
+// RuleIDs is every rule ID the suite plants a defect for, in the order
+// of the rules' documentation.
+func RuleIDs() []string {
 	var out []string
 	for _, p := range rulePlants() {
 		out = append(out, p.rule)
