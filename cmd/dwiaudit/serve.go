@@ -19,6 +19,7 @@ import (
 	"time"
 
 	"dwiaudit/audit"
+	"dwiaudit/audit/report"
 	"dwiaudit/config"
 	"dwiaudit/scp"
 	"dwiaudit/store"
@@ -266,8 +267,8 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
 	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
-	daily := &dailyScheduler{archive: archive, lists: st, loc: loc, now: env.clock(), after: time.After, log: log.With("component", "reports")}
-	pruning.Go(func() { daily.run(pruneCtx) })
+	daily := &report.Freezer{Archive: archive, Lists: st, Location: loc, Now: env.clock(), Logger: log.With("component", "reports")}
+	pruning.Go(func() { daily.Run(pruneCtx) })
 
 	select {
 	case <-ctx.Done():
