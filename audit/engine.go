@@ -57,9 +57,9 @@ type Engine struct {
 	Analysis analysis.AnalyzeConfig
 	// Tolerances tune volume assembly (dwi.AssembleStudy).
 	Tolerances dwi.Tolerances
-	// Extract tunes file reading (dwi.ExtractFile) in AuditFiles:
+	// Extract tunes file reading (header.ExtractFile) in AuditFiles:
 	// private b-value sources, scanner labels. Pixels are always loaded.
-	Extract dwi.ExtractOptions
+	Extract header.ExtractOptions
 	// Logger gets a line per rule that panics and per study that could
 	// not be assembled; UIDs and rule IDs only, never patient data. Nil
 	// discards.
@@ -193,7 +193,7 @@ type Report struct {
 // AuditFrames audits images already read (what the pipeline calls for a
 // settled series' study): the frames are grouped by study, each study
 // assembled, every diffusion series computed, and the rules run. The
-// frames must carry their pixels (dwi.ExtractOptions.LoadPixels). The
+// frames must carry their pixels (header.ExtractOptions.LoadPixels). The
 // report keeps the studies.
 func (e *Engine) AuditFrames(ctx context.Context, frames []dwi.Frame) (*Report, error) {
 	if err := e.ready(); err != nil {
@@ -274,7 +274,7 @@ func (e *Engine) AuditFiles(ctx context.Context, paths []string) (*Report, error
 		perFile := make([][]dwi.Frame, len(idx))
 		errs := make([]error, len(idx))
 		if err := e.parallel(ctx, len(idx), func(k int) {
-			perFile[k], errs[k] = dwi.ExtractFile(files[idx[k]], opt)
+			perFile[k], errs[k] = header.ExtractFile(files[idx[k]], opt)
 		}); err != nil {
 			return nil, err
 		}

@@ -16,6 +16,7 @@ import (
 
 	"dwiaudit/audit"
 	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/audit/phantom"
 	"dwiaudit/rules"
 	"dwiaudit/scp/part10"
@@ -45,7 +46,7 @@ func TestValidateNamesEveryProblem(t *testing.T) {
 	e.Workers = 0
 	e.Analysis.CSFPercentile = 0
 	e.Tolerances.BValue = -1
-	e.Extract.PrivateSources = []dwi.PrivateSource{{Name: "x", Creator: "ACME", Group: 0x0018}}
+	e.Extract.PrivateSources = []header.PrivateSource{{Name: "x", Creator: "ACME", Group: 0x0018}}
 	err := e.Validate()
 	if !errors.Is(err, audit.ErrInvalidEngine) {
 		t.Fatalf("Validate() = %v, want ErrInvalidEngine", err)
@@ -285,7 +286,7 @@ func TestAuditFramesGivesWhatAuditFilesGives(t *testing.T) {
 	st := writeStudy(t, t.TempDir(), phantom.Options{Case: phantom.CaseMissingSlices, MultiFrame: true})
 	var frames []dwi.Frame
 	for _, p := range st.Files {
-		fr, err := dwi.ExtractFile(p, dwi.ExtractOptions{LoadPixels: true})
+		fr, err := header.ExtractFile(p, header.ExtractOptions{LoadPixels: true})
 		if err != nil {
 			t.Fatal(err)
 		}

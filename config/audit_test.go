@@ -10,7 +10,7 @@ import (
 	"testing"
 	"time"
 
-	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/rules"
 )
 
@@ -83,7 +83,7 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
 		t.Errorf("thresholds %+v: only low_snr.min_b0_snr must change", a.Thresholds)
 	}
 	src := a.ExtractOptions().PrivateSources
-	want := []dwi.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: dwi.ValueIS}}
+	want := []header.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: header.ValueIS}}
 	if !reflect.DeepEqual(src, want) {
 		t.Errorf("private sources %+v, want %+v", src, want)
 	}
@@ -232,7 +232,7 @@ func TestExampleAuditSectionIsTheDefaultsAndItsCommentsParse(t *testing.T) {
 		t.Fatalf("with the audit examples uncommented: %v", err)
 	}
 	a := c.Audit
-	if len(a.PrivateSources) != 1 || a.PrivateSources[0].Group != 0x0019 || a.PrivateSources[0].Element != 0x0C || dwi.ValueKind(a.PrivateSources[0].Read) != dwi.ValueIS {
+	if len(a.PrivateSources) != 1 || a.PrivateSources[0].Group != 0x0019 || a.PrivateSources[0].Element != 0x0C || header.ValueKind(a.PrivateSources[0].Read) != header.ValueIS {
 		t.Errorf("private sources %+v", a.PrivateSources)
 	}
 	if rc := a.RulesConfig(); rc.Enabled(rules.IDScannerADCDisagrees) || *rc.Rules[rules.IDLowSNR].Severity != rules.SeverityInfo {

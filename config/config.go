@@ -26,7 +26,7 @@ import (
 
 	"dwiaudit/audit"
 	"dwiaudit/audit/analysis"
-	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 )
@@ -856,7 +856,7 @@ const severityUnreadable SeverityName = -1
 // MarshalYAML writes the name.
 func (s SeverityName) MarshalYAML() (any, error) { return rules.Severity(s).String(), nil }
 
-// PrivateSource is one private b-value source (dwi.PrivateSource):
+// PrivateSource is one private b-value source (header.PrivateSource):
 // the private creator string that reserves a block in an odd group, the
 // element's offset in that block (the low byte of (gggg,xxee)), how to
 // read it, which value, and a scale to s/mm².
@@ -920,8 +920,8 @@ func trimHex(s string) string {
 	return s
 }
 
-// ValueKindName is a dwi.ValueKind written by name.
-type ValueKindName dwi.ValueKind
+// ValueKindName is a header.ValueKind written by name.
+type ValueKindName header.ValueKind
 
 // UnmarshalYAML reads FD, FL, DS, IS, SL, UL, SS, US or text.
 func (k *ValueKindName) UnmarshalYAML(n *yaml.Node) error {
@@ -929,7 +929,7 @@ func (k *ValueKindName) UnmarshalYAML(n *yaml.Node) error {
 	if err != nil {
 		return err
 	}
-	v, err := dwi.ParseValueKind(t)
+	v, err := header.ParseValueKind(t)
 	if err != nil {
 		*k = valueKindUnreadable
 		return typeError(n, "not a value encoding: use FD, FL, DS, IS, SL, UL, SS, US or text")
@@ -942,7 +942,7 @@ func (k *ValueKindName) UnmarshalYAML(n *yaml.Node) error {
 const valueKindUnreadable ValueKindName = -1
 
 // MarshalYAML writes the name.
-func (k ValueKindName) MarshalYAML() (any, error) { return dwi.ValueKind(k).String(), nil }
+func (k ValueKindName) MarshalYAML() (any, error) { return header.ValueKind(k).String(), nil }
 
 // AnalysisSettings are the analysis settings a site may change
 // (analysis.AnalyzeConfig; the others keep their defaults).
@@ -1041,12 +1041,12 @@ func (a Audit) AnalyzeConfig() analysis.AnalyzeConfig {
 }
 
 // ExtractOptions are the file-reading options: the private sources.
-func (a Audit) ExtractOptions() dwi.ExtractOptions {
-	var o dwi.ExtractOptions
+func (a Audit) ExtractOptions() header.ExtractOptions {
+	var o header.ExtractOptions
 	for _, p := range a.PrivateSources {
-		o.PrivateSources = append(o.PrivateSources, dwi.PrivateSource{
+		o.PrivateSources = append(o.PrivateSources, header.PrivateSource{
 			Name: p.Name, Creator: p.Creator, Group: uint16(p.Group), Element: uint8(p.Element),
-			Read: dwi.ValueKind(p.Read), Index: p.Index, Scale: p.Scale,
+			Read: header.ValueKind(p.Read), Index: p.Index, Scale: p.Scale,
 		})
 	}
 	return o
@@ -1116,7 +1116,7 @@ func (a Audit) validate(p *problems) {
 		if g := uint16(s.Group); g%2 == 0 || g <= 0x0007 || g == 0xFFFF {
 			p.addf(f+".group", "0x%04X is not a private group (odd, 0x0009 to 0xFFFD; PS3.5 7.8.1)", g)
 		}
-		if s.Read == ValueKindName(dwi.ValueInvalid) {
+		if s.Read == ValueKindName(header.ValueInvalid) {
 			p.addf(f+".read", "missing: FD, FL, DS, IS, SL, UL, SS, US or text")
 		}
 		if s.Index < 0 {

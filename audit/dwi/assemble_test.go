@@ -70,11 +70,11 @@ func TestClassicAndMultiframeGiveTheSameVolumes(t *testing.T) {
 	s.slope, s.intercept = 0.5, 3
 	for _, ts := range allSyntaxes {
 		t.Run("classic and Enhanced MR in "+ts+" give the same b-values, directions, grid and pixels", func(t *testing.T) {
-			classic, err := AssembleSeries(extractAll(t, s.classic(t, ts), ExtractOptions{LoadPixels: true}), DefaultTolerances())
+			classic, err := AssembleSeries(extractAll(t, s.classic(t, ts)), DefaultTolerances())
 			if err != nil {
 				t.Fatal(err)
 			}
-			multi, err := AssembleSeries(extractAll(t, [][]byte{s.enhanced(t, ts)}, ExtractOptions{LoadPixels: true}), DefaultTolerances())
+			multi, err := AssembleSeries(extractAll(t, [][]byte{s.enhanced(t, ts)}), DefaultTolerances())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -99,7 +99,7 @@ func TestClassicAndMultiframeGiveTheSameVolumes(t *testing.T) {
 // frames builds a series' frames from its classic files.
 func framesOf(t *testing.T, s testSeries) []Frame {
 	t.Helper()
-	return extractAll(t, s.classic(t, tsExplicitLE), ExtractOptions{LoadPixels: true})
+	return extractAll(t, s.classic(t, tsExplicitLE))
 }
 
 func TestBValuesWithinToleranceFormOneVolume(t *testing.T) {

@@ -1,7 +1,7 @@
 package dwi
 
-// This file is the shared model of a diffusion study: what header
-// extraction (extract.go) produces, what assembly (assemble.go) groups,
+// This file is the shared model of a diffusion study: what the readers
+// of package audit/header produce, what assembly (assemble.go) groups,
 // and what the computation (package audit/adc) and the rules read. Keep
 // it free of I/O.
 
@@ -106,7 +106,10 @@ type Frame struct {
 	SOPClassUID       string
 	TransferSyntaxUID string
 	FrameNumber       int // 1-based within a multi-frame instance; 0 for a single-frame image
-	InstanceNumber    int
+	// Tile is the 1-based slice of a mosaic image (several slices side
+	// by side in one image) that a maker reader split; 0 otherwise.
+	Tile           int
+	InstanceNumber int
 
 	StudyInstanceUID    string
 	SeriesInstanceUID   string
@@ -127,7 +130,7 @@ type Frame struct {
 
 	BValue         float64
 	HasBValue      bool
-	BValueSource   string // "standard" (0018,9087 top level), "per-frame", "shared", or "private:<name>"
+	BValueSource   string // "standard" (0018,9087 top level), "per-frame", "shared", "private:<name>" (a configured source) or "maker:<name>" (a maker reader)
 	Directionality Directionality
 	Gradient       [3]float64 // Diffusion Gradient Orientation (0018,9089), patient axes
 	HasGradient    bool
@@ -151,13 +154,17 @@ type Frame struct {
 }
 
 // ID names the image in facts and errors: its SOP Instance UID, followed
-// by "#n" for frame n of a multi-frame instance. It holds no patient
-// data.
+// by "#n" for frame n of a multi-frame instance and "/k" for slice k of
+// a mosaic. It holds no patient data.
 func (f *Frame) ID() string {
-	if f.FrameNumber == 0 {
-		return f.SOPInstanceUID
+	id := f.SOPInstanceUID
+	if f.FrameNumber != 0 {
+		id += "#" + strconv.Itoa(f.FrameNumber)
 	}
-	return f.SOPInstanceUID + "#" + strconv.Itoa(f.FrameNumber)
+	if f.Tile != 0 {
+		id += "/" + strconv.Itoa(f.Tile)
+	}
+	return id
 }
 
 // Direction is a unit gradient direction; the zero value stands for

@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"fmt"
@@ -7,7 +7,7 @@ import (
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 
-	"dwiaudit/audit/header"
+	"dwiaudit/audit/dwi"
 )
 
 // pixelFormat is how native pixel values are stored (PS3.3 C.7.6.3,
@@ -61,9 +61,9 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 	pf := &pixelFormat{offset: l.ValueOffset}
 	allocated, _ := top.integer(tag.BitsAllocated, ValueUS, bo)
 	switch l.Tag {
-	case header.TagFloatPixelData:
+	case TagFloatPixelData:
 		pf.bytes, pf.float = 4, true
-	case header.TagDoubleFloatPixelData:
+	case TagDoubleFloatPixelData:
 		pf.bytes, pf.float = 8, true
 	default:
 		switch allocated {
@@ -93,7 +93,7 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 const readChunk = 64 << 10
 
 // loadPixels decodes every frame into one slab of float32, rescaled.
-func (x *extraction) loadPixels(frames []Frame, pf *pixelFormat) error {
+func (x *extraction) loadPixels(frames []dwi.Frame, pf *pixelFormat) error {
 	npix := int(pf.frameBytes) / pf.bytes
 	slab := make([]float32, npix*len(frames))
 	chunk := min(int(pf.frameBytes), readChunk/pf.bytes*pf.bytes)

@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"bytes"
@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"slices"
 	"testing"
+
+	"dwiaudit/audit/dwi"
 )
 
 // writeTestdataEnv, set to 1, makes TestTestdataMatchesItsGenerator
@@ -29,13 +31,13 @@ type testdataFile struct {
 	make    func(t testing.TB) []byte
 	frames  int
 	bvalues []float64
-	kind    MapKind
+	kind    dwi.MapKind
 	encaps  bool
 }
 
 func testdataFiles() []testdataFile {
 	x, y, z := [3]float64{1, 0, 0}, [3]float64{0, 1, 0}, [3]float64{0, 0, 1}
-	dwi := newSeries("td", img{b: 0}, img{b: 1000, dir: x}, img{b: 1000, dir: y},
+	diffusionSeries := newSeries("td", img{b: 0}, img{b: 1000, dir: x}, img{b: 1000, dir: y},
 		img{b: 1000, directionality: "BMATRIX", bmatrix: &[6]float64{0, 0, 0, 0, 0, 1000}, dir: z})
 	private := newSeries("tdpriv", img{noB: true, directionality: "DIRECTIONAL", dir: x, extra: []el{
 		txt(0x00190010, "LO", "ACME DIFFUSION 1"), txt(0x0019100C, "IS", "1000")}})
@@ -47,16 +49,16 @@ func testdataFiles() []testdataFile {
 		return func(t testing.TB) []byte { return s.enhanced(t, ts) }
 	}
 	return []testdataFile{
-		{"classic-explicit-le.dcm", classic(dwi, tsExplicitLE, 1), 1, []float64{1000}, KindAcquired, false},
-		{"classic-implicit-le.dcm", classic(dwi, tsImplicitLE, 0), 1, []float64{0}, KindAcquired, false},
-		{"classic-explicit-be.dcm", classic(dwi, tsExplicitBE, 3), 1, []float64{1000}, KindAcquired, false},
-		{"classic-private-b-implicit.dcm", classic(private, tsImplicitLE, 0), 1, []float64{1000}, KindAcquired, false},
-		{"classic-adc-map.dcm", classic(adc, tsExplicitLE, 0), 1, []float64{1000}, KindADC, false},
-		{"enhanced-explicit-le.dcm", enhanced(dwi, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, KindAcquired, false},
-		{"enhanced-deflated.dcm", enhanced(dwi, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, KindAcquired, false},
+		{"classic-explicit-le.dcm", classic(diffusionSeries, tsExplicitLE, 1), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-implicit-le.dcm", classic(diffusionSeries, tsImplicitLE, 0), 1, []float64{0}, dwi.KindAcquired, false},
+		{"classic-explicit-be.dcm", classic(diffusionSeries, tsExplicitBE, 3), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-private-b-implicit.dcm", classic(private, tsImplicitLE, 0), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-adc-map.dcm", classic(adc, tsExplicitLE, 0), 1, []float64{1000}, dwi.KindADC, false},
+		{"enhanced-explicit-le.dcm", enhanced(diffusionSeries, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
+		{"enhanced-deflated.dcm", enhanced(diffusionSeries, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-jpeg-encapsulated.dcm", func(t testing.TB) []byte {
 			return part10File(t, tsJPEGBase, enhancedMR, "2.25.6", encapsulatedElements())
-		}, 2, []float64{0, 1000}, KindAcquired, true},
+		}, 2, []float64{0, 1000}, dwi.KindAcquired, true},
 	}
 }
 
@@ -124,7 +126,7 @@ func FuzzExtract(f *testing.F) {
 			if frames != nil {
 				t.Errorf("frames with error %v", err)
 			}
-			for _, sentinel := range []error{ErrNotDICOM, ErrUnsupportedTransferSyntax, ErrMalformed, ErrPixelData, ErrPrivateSource} {
+			for _, sentinel := range []error{ErrNotPart10, ErrUnknownTransferSyntax, ErrMalformed, ErrPixelData, ErrPrivateSource} {
 				if errors.Is(err, sentinel) {
 					return
 				}
@@ -139,8 +141,8 @@ func FuzzExtract(f *testing.F) {
 			}
 		}
 		if len(frames) > 0 {
-			AssembleSeries(frames, DefaultTolerances()) // must return, whatever it returns
-			AssembleStudy(frames, DefaultTolerances())
+			dwi.AssembleSeries(frames, dwi.DefaultTolerances()) // must return, whatever it returns
+			dwi.AssembleStudy(frames, dwi.DefaultTolerances())
 		}
 	})
 }

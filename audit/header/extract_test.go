@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"encoding/binary"
@@ -14,6 +14,7 @@ import (
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 
+	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/synth"
 )
 
@@ -30,17 +31,17 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 	s.slope, s.intercept = 2, -10
 	want := []struct {
 		b              float64
-		directionality Directionality
+		directionality dwi.Directionality
 		gradient       [3]float64
 		hasGradient    bool
 		hasBMatrix     bool
 	}{
-		{0, DirectionalityNone, [3]float64{}, false, false},
-		{1000, DirectionalityDirectional, [3]float64{0, 0.6, 0.8}, true, false},
-		{1000, DirectionalityBMatrix, [3]float64{}, false, true},
-		{1000, DirectionalityIsotropic, [3]float64{}, false, false},
+		{0, dwi.DirectionalityNone, [3]float64{}, false, false},
+		{1000, dwi.DirectionalityDirectional, [3]float64{0, 0.6, 0.8}, true, false},
+		{1000, dwi.DirectionalityBMatrix, [3]float64{}, false, true},
+		{1000, dwi.DirectionalityIsotropic, [3]float64{}, false, false},
 	}
-	label := func(sc Scanner) string { return sc.StationName + "@" + sc.CallingAETitle }
+	label := func(sc dwi.Scanner) string { return sc.StationName + "@" + sc.CallingAETitle }
 	opt := ExtractOptions{LoadPixels: true, CallingAETitle: "MRI2", ScannerLabel: label}
 	for _, ts := range allSyntaxes {
 		for _, layout := range []string{"classic", "enhanced"} {
@@ -70,7 +71,7 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 						t.Errorf("frame %d: b-matrix %v, want %v", i, f.BMatrix, bm)
 					}
 					p := s.position(s.images[i])
-					g := Geometry{Rows: 8, Columns: 8, PixelSpacing: [2]float64{1.5, 1.5}, Position: p,
+					g := dwi.Geometry{Rows: 8, Columns: 8, PixelSpacing: [2]float64{1.5, 1.5}, Position: p,
 						Orientation: s.orientation, SliceThickness: 4, Known: true}
 					if f.Geometry != g {
 						t.Errorf("frame %d: geometry %+v, want %+v", i, f.Geometry, g)
@@ -82,10 +83,10 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 					if got, want := f.Pixels[3*8+5], float32(2*float64(s.pixel(i, 3, 5))-10); got != want {
 						t.Errorf("frame %d: pixel (3,5) = %v, want %v", i, got, want)
 					}
-					if f.Kind != KindAcquired || f.Encapsulated || f.TransferSyntaxUID != ts {
+					if f.Kind != dwi.KindAcquired || f.Encapsulated || f.TransferSyntaxUID != ts {
 						t.Errorf("frame %d: kind %v encapsulated %v syntax %s", i, f.Kind, f.Encapsulated, f.TransferSyntaxUID)
 					}
-					wantScanner := Scanner{StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Quellvander Ostmire",
+					wantScanner := dwi.Scanner{StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Quellvander Ostmire",
 						Manufacturer: "Synthetic", ModelName: "Test model", CallingAETitle: "MRI2", Label: "QOH-MR2@MRI2"}
 					if f.Scanner != wantScanner {
 						t.Errorf("frame %d: scanner %+v, want %+v", i, f.Scanner, wantScanner)
@@ -254,9 +255,9 @@ func TestExtractRefusesBrokenFilesWithAClearError(t *testing.T) {
 		opt  ExtractOptions
 		want error
 	}{
-		{"a file without the DICM prefix", make([]byte, 300), ExtractOptions{}, ErrNotDICOM},
-		{"an empty file", nil, ExtractOptions{}, ErrNotDICOM},
-		{"a transfer syntax the parser does not know", part10File(t, "1.2.826.0.1.3680043.99.1", mrImage, "2.25.7", classicEls()), ExtractOptions{}, ErrUnsupportedTransferSyntax},
+		{"a file without the DICM prefix", make([]byte, 300), ExtractOptions{}, ErrNotPart10},
+		{"an empty file", nil, ExtractOptions{}, ErrNotPart10},
+		{"a transfer syntax the parser does not know", part10File(t, "1.2.826.0.1.3680043.99.1", mrImage, "2.25.7", classicEls()), ExtractOptions{}, ErrUnknownTransferSyntax},
 		{"rows and columns that do not match the pixel data", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(slices.DeleteFunc(classicEls(), func(e el) bool { return e.tag == tRows }), us(tRows, 9), raw(tPixelData, "OW", pix))), ExtractOptions{LoadPixels: true}, ErrPixelData},
 		{"rows and columns that do not match, header only", part10File(t, tsExplicitLE, mrImage, "2.25.7",
@@ -332,9 +333,9 @@ func TestMissingGeometryFailsAssemblyNotExtraction(t *testing.T) {
 					t.Errorf("frame %s: geometry known", f.ID())
 				}
 			}
-			_, err := AssembleSeries(frames, DefaultTolerances())
-			if !errors.Is(err, ErrMissingGeometry) || !strings.Contains(err.Error(), frames[0].SOPInstanceUID) {
-				t.Errorf("error %v, want ErrMissingGeometry naming the image", err)
+			_, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances())
+			if !errors.Is(err, dwi.ErrMissingGeometry) || !strings.Contains(err.Error(), frames[0].SOPInstanceUID) {
+				t.Errorf("error %v, want dwi.ErrMissingGeometry naming the image", err)
 			}
 		})
 	}
@@ -342,8 +343,8 @@ func TestMissingGeometryFailsAssemblyNotExtraction(t *testing.T) {
 		s := newSeries("badori", img{b: 0})
 		s.orientation = [6]float64{1, 0, 0, 1, 0, 0}
 		frames := extractAll(t, s.classic(t, tsExplicitLE), ExtractOptions{})
-		if _, err := AssembleSeries(frames, DefaultTolerances()); !errors.Is(err, ErrMissingGeometry) {
-			t.Errorf("error %v, want ErrMissingGeometry", err)
+		if _, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances()); !errors.Is(err, dwi.ErrMissingGeometry) {
+			t.Errorf("error %v, want dwi.ErrMissingGeometry", err)
 		}
 	})
 }
@@ -476,12 +477,12 @@ func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	if frames[1].BValue != 1000 {
 		t.Errorf("b %v, want 1000: the header is still read", frames[1].BValue)
 	}
-	series, err := AssembleSeries(frames, DefaultTolerances())
+	series, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances())
 	if err != nil {
 		t.Fatal(err)
 	}
 	if !series.Facts.Encapsulated {
-		t.Error("Facts.Encapsulated not set")
+		t.Error("dwi.Facts.Encapsulated not set")
 	}
 
 	t.Run("more frames than the fragments can hold is refused", func(t *testing.T) {
@@ -501,14 +502,14 @@ func TestDerivedMapsAreRecognised(t *testing.T) {
 	tests := []struct {
 		name string
 		m    img
-		want MapKind
+		want dwi.MapKind
 	}{
-		{"Image Type value 4 ADC (PS3.17 DERIVED\\PRIMARY\\DIFFUSION\\ADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}}, KindADC},
-		{"Image Type value 4 DIFFUSION_ATTNTD (eADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ATTNTD"}}, KindEADC},
-		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, KindOtherDerived},
-		{"Real World Value Mapping in um2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY"}, rwvUnits: "um2/s"}, KindADC},
-		{"Real World Value Mapping in 10-6.mm2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "OTHER"}, rwvUnits: "10-6.mm2/s"}, KindADC},
-		{"an acquired trace", img{b: 1000, iso: true}, KindAcquired},
+		{"Image Type value 4 ADC (PS3.17 DERIVED\\PRIMARY\\DIFFUSION\\ADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}}, dwi.KindADC},
+		{"Image Type value 4 DIFFUSION_ATTNTD (eADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ATTNTD"}}, dwi.KindEADC},
+		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, dwi.KindOtherDerived},
+		{"Real World Value Mapping in um2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY"}, rwvUnits: "um2/s"}, dwi.KindADC},
+		{"Real World Value Mapping in 10-6.mm2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "OTHER"}, rwvUnits: "10-6.mm2/s"}, dwi.KindADC},
+		{"an acquired trace", img{b: 1000, iso: true}, dwi.KindAcquired},
 	}
 	for _, tt := range tests {
 		for _, layout := range []string{"classic", "enhanced"} {
@@ -522,7 +523,7 @@ func TestDerivedMapsAreRecognised(t *testing.T) {
 				if f.Kind != tt.want {
 					t.Errorf("kind %v, want %v", f.Kind, tt.want)
 				}
-				if tt.m.rwvUnits != "" && (len(f.RealWorld) != 1 || f.RealWorld[0] != RealWorldValue{Slope: 1, Units: tt.m.rwvUnits}) {
+				if tt.m.rwvUnits != "" && (len(f.RealWorld) != 1 || f.RealWorld[0] != dwi.RealWorldValue{Slope: 1, Units: tt.m.rwvUnits}) {
 					t.Errorf("real world values %+v", f.RealWorld)
 				}
 			})
