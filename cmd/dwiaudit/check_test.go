@@ -13,6 +13,7 @@ import (
 	"dwiaudit/audit"
 	"dwiaudit/audit/analysis"
 	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 	"dwiaudit/scp/part10"
 )
@@ -252,7 +253,7 @@ func TestCheckJSONGolden(t *testing.T) {
 	var buf bytes.Buffer
 	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
-	if err := enc.Encode(checkBody(rep)); err != nil {
+	if err := enc.Encode(report.CheckBody(rep)); err != nil {
 		t.Fatal(err)
 	}
 	golden := filepath.Join("testdata", "check.golden.json")

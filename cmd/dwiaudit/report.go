@@ -10,10 +10,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
-	"io"
-	"net/http"
 	"net/url"
-	"strings"
 	"time"
 
 	"dwiaudit/audit/report"
@@ -27,9 +24,6 @@ const (
 	// reportHTTPTimeout bounds the request to a server: a year's
 	// compliance report reads two years of audits, seconds at most.
 	reportHTTPTimeout = 2 * time.Minute
-	// maxReportResponse bounds the body read from a server: a day of a
-	// busy node is thousands of rows of a few hundred bytes.
-	maxReportResponse = 256 << 20
 )
 
 const reportSynopsis = `daily [--date YYYY-MM-DD] [--format text|csv|json|html] [--data DIR | --server URL] [--config FILE]
@@ -224,44 +218,12 @@ func withFolder(cfg config.Config, data string, loc *time.Location, fn func(*sto
 	return fn(st)
 }
 
-// askServer GETs a path of a running node's API and returns the body of
-// a 200 answer; any other answer becomes an error with the server's
-// message.
+// askServer GETs a path of a running node's API with the token of
+// $DWIAUDIT_TOKEN_FILE and returns the body of a 200 answer.
 func askServer(ctx context.Context, server string, path []string, q url.Values) ([]byte, error) {
-	if !strings.Contains(server, "://") {
-		server = "http://" + server
-	}
-	u, err := url.Parse(server)
-	if err != nil || u.Host == "" {
-		return nil, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
-	}
-	u = u.JoinPath(path...)
-	u.RawQuery = q.Encode()
-	ctx, cancel := context.WithTimeout(ctx, reportHTTPTimeout)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u.String(), nil)
+	tok, err := clientToken()
 	if err != nil {
 		return nil, err
 	}
-	req.Header.Set("Accept", "application/json")
-	if err := clientAuth(req); err != nil {
-		return nil, err
-	}
-	res, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return nil, fmt.Errorf("asking the server: %w", err)
-	}
-	defer res.Body.Close()
-	body, err := io.ReadAll(io.LimitReader(res.Body, maxReportResponse))
-	if err != nil {
-		return nil, fmt.Errorf("reading the server's answer: %w", err)
-	}
-	if res.StatusCode != http.StatusOK {
-		var e web.ErrorBody
-		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			return nil, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
-		}
-		return nil, fmt.Errorf("server answered %s", res.Status)
-	}
-	return body, nil
+	return web.Client{Server: server, Token: tok, Timeout: reportHTTPTimeout}.Get(ctx, q, path...)
 }

@@ -9,9 +9,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"net/http"
 	"net/url"
-	"strings"
 	"time"
 
 	"dwiaudit/audit/web"
@@ -24,10 +22,6 @@ const (
 	// studiesHTTPTimeout bounds the request to a server: the list is an
 	// index read, and a server that takes longer is not answering.
 	studiesHTTPTimeout = 30 * time.Second
-
-	// maxStudiesResponse bounds the body read from a server: a year of a
-	// busy node is tens of thousands of series, a few tens of MiB.
-	maxStudiesResponse = 256 << 20
 )
 
 func runStudies(ctx context.Context, env *cliEnv, args []string) int {
@@ -120,42 +114,17 @@ func studiesFromFolder(dir, day string, cfg config.Config) (web.StudiesResponse,
 
 // studiesFromServer asks GET /api/v1/studies of a running node.
 func studiesFromServer(ctx context.Context, server, day string) (web.StudiesResponse, error) {
-	if !strings.Contains(server, "://") {
-		server = "http://" + server
+	tok, err := clientToken()
+	if err != nil {
+		return web.StudiesResponse{}, err
 	}
-	u, err := url.Parse(server)
-	if err != nil || u.Host == "" {
-		return web.StudiesResponse{}, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
-	}
-	u = u.JoinPath("api", "v1", "studies")
+	q := url.Values{}
 	if day != "" {
-		u.RawQuery = url.Values{"day": {day}}.Encode()
+		q.Set("day", day)
 	}
-	ctx, cancel := context.WithTimeout(ctx, studiesHTTPTimeout)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u.String(), nil)
+	body, err := web.Client{Server: server, Token: tok, Timeout: studiesHTTPTimeout}.Get(ctx, q, "api", "v1", "studies")
 	if err != nil {
 		return web.StudiesResponse{}, err
-	}
-	req.Header.Set("Accept", "application/json")
-	if err := clientAuth(req); err != nil {
-		return web.StudiesResponse{}, err
-	}
-	res, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return web.StudiesResponse{}, fmt.Errorf("asking the server: %w", err)
-	}
-	defer res.Body.Close()
-	body, err := io.ReadAll(io.LimitReader(res.Body, maxStudiesResponse))
-	if err != nil {
-		return web.StudiesResponse{}, fmt.Errorf("reading the server's answer: %w", err)
-	}
-	if res.StatusCode != http.StatusOK {
-		var e web.ErrorBody
-		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			return web.StudiesResponse{}, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
-		}
-		return web.StudiesResponse{}, fmt.Errorf("server answered %s", res.Status)
 	}
 	var out web.StudiesResponse
 	if err := json.Unmarshal(body, &out); err != nil {

@@ -50,19 +50,18 @@ func httpAuth(a config.HTTPAuth) (*web.Auth, error) {
 // neither in the process list nor in shell history.
 const tokenFileEnv = "DWIAUDIT_TOKEN_FILE"
 
-// clientAuth adds the bearer token of $DWIAUDIT_TOKEN_FILE to a request
-// to a node, when the variable is set.
-func clientAuth(req *http.Request) error {
+// clientToken is the bearer token of $DWIAUDIT_TOKEN_FILE for a
+// request to a node; "" when the variable is not set.
+func clientToken() (string, error) {
 	path := os.Getenv(tokenFileEnv)
 	if path == "" {
-		return nil
+		return "", nil
 	}
 	tok, err := config.ReadToken(path)
 	if err != nil {
-		return fmt.Errorf("%s: %w", tokenFileEnv, err)
+		return "", fmt.Errorf("%s: %w", tokenFileEnv, err)
 	}
-	req.Header.Set("Authorization", "Bearer "+tok)
-	return nil
+	return tok, nil
 }
 
 // httpHandler builds the HTTP listener's handler (audit/web.Server)
