@@ -348,12 +348,67 @@ func Parse(name string, b []byte) (Config, error) {
 			p = append(p, idx.describe(msg))
 		}
 	}
-	// Validate what did decode too, so one run lists every problem.
+	// Validate what did decode too, so one run lists every problem,
+	// each with the line of its field when the file sets it.
 	var verr *Error
 	if err := c.Validate(); errors.As(err, &verr) {
-		p = append(p, verr.Problems...)
+		lines := indexFields(&root).lines()
+		for _, pr := range verr.Problems {
+			field, _, _ := strings.Cut(pr, ": ")
+			if n, ok := lines[field]; ok {
+				pr = fmt.Sprintf("%s (line %d)", pr, n)
+			}
+			p = append(p, pr)
+		}
 	}
 	return c, p.err(name)
+}
+
+// lineSuffix is the " (line N)" Parse puts after a problem.
+var lineSuffix = regexp.MustCompile(` \(line \d+\)$`)
+
+// Load reads the file at path over Default (without a path, the
+// defaults), applies set (the command line's overrides, which return
+// problems of their own) and validates the result. Every problem, of
+// the file (with its line), of set, and of the values set changed,
+// comes back once in one *Error.
+func Load(path string, set func(*Config) []string) (Config, error) {
+	c := Default()
+	var found []string
+	if path != "" {
+		var err error
+		c, err = LoadFile(path)
+		var ce *Error
+		switch {
+		case errors.As(err, &ce):
+			found = append(found, ce.Problems...)
+		case err != nil:
+			return c, err
+		}
+	}
+	var setProblems []string
+	if set != nil {
+		setProblems = set(&c)
+	}
+	// Validate again with the overrides applied; the file's own value
+	// problems are already listed, with their lines.
+	seen := map[string]bool{}
+	for _, pr := range found {
+		seen[lineSuffix.ReplaceAllString(pr, "")] = true
+	}
+	var ce *Error
+	if err := c.Validate(); errors.As(err, &ce) {
+		for _, pr := range ce.Problems {
+			if !seen[pr] {
+				found = append(found, pr)
+			}
+		}
+	}
+	found = append(found, setProblems...)
+	if len(found) > 0 {
+		return c, &Error{File: path, Problems: found}
+	}
+	return c, nil
 }
 
 // fieldIndex maps the lines of a YAML document to the field paths on
@@ -364,6 +419,19 @@ type fieldAt struct {
 	path  string // e.g. "peers[1].ae_title"
 	key   string // the last key, e.g. "ae_title"
 	value string // the scalar value, if any
+}
+
+// lines maps each field path to the line where its key is.
+func (idx fieldIndex) lines() map[string]int {
+	out := map[string]int{}
+	for line, fields := range idx {
+		for _, f := range fields {
+			if n, ok := out[f.path]; !ok || line < n {
+				out[f.path] = line
+			}
+		}
+	}
+	return out
 }
 
 func indexFields(root *yaml.Node) fieldIndex {

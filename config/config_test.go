@@ -255,3 +255,51 @@ func TestPeerTableAllowsOnlyKnownAETitlesFromTheirNetworks(t *testing.T) {
 		t.Errorf("CallingAETitles() = %v", got)
 	}
 }
+
+func TestParseGivesTheLineOfEveryValueProblemTheFileSets(t *testing.T) {
+	yaml := "node:\n  ae_title: QOH_NODE\nlimits:\n  max_pdu_length: 1024\npeers:\n  - ae_title: QOH_MR1\n    scanner: \"QOH MR1\"\n"
+	_, err := Parse("node.yaml", []byte(yaml))
+	var ce *Error
+	if !errors.As(err, &ce) {
+		t.Fatalf("Parse = %v, want a *Error", err)
+	}
+	want := []string{
+		"peers[0].scanner: \"QOH MR1\": use lower-case letters, digits, '.', '_' and '-', starting with a letter or digit (line 7)",
+		"limits.max_pdu_length: 1024 is below 4096 (line 4)",
+	}
+	if !slices.Equal(ce.Problems, want) {
+		t.Errorf("problems:\n  %s\nwant:\n  %s", strings.Join(ce.Problems, "\n  "), strings.Join(want, "\n  "))
+	}
+}
+
+func TestLoadListsEachProblemOnceWithTheOverridesApplied(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "node.yaml")
+	if err := os.WriteFile(path, []byte("limits:\n  max_pdu_length: 1024\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err := Load(path, func(c *Config) []string {
+		c.Node.AETitle = ""
+		return []string{"--log-level: \"chatty\" is not a log level"}
+	})
+	var ce *Error
+	if !errors.As(err, &ce) {
+		t.Fatalf("Load = %v, want a *Error", err)
+	}
+	want := []string{
+		"limits.max_pdu_length: 1024 is below 4096 (line 2)",
+		"node.ae_title: ",
+		"--log-level: ",
+	}
+	if len(ce.Problems) != len(want) {
+		t.Fatalf("problems:\n  %s\nwant %d", strings.Join(ce.Problems, "\n  "), len(want))
+	}
+	for i, w := range want {
+		if !strings.HasPrefix(ce.Problems[i], w) {
+			t.Errorf("problem %d = %q, want prefix %q", i, ce.Problems[i], w)
+		}
+	}
+	c, err := Load("", nil)
+	if err != nil || c.Node.AETitle != "DWIAUDIT" {
+		t.Errorf("Load without a file = %+v, %v; want the defaults", c.Node, err)
+	}
+}

@@ -13,7 +13,6 @@ import (
 	"net"
 	"net/http"
 	"path/filepath"
-	"slices"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -81,60 +80,35 @@ func runServe(ctx context.Context, env *cliEnv, args []string) int {
 // serveConfig reads the file (or takes the defaults), applies the flags
 // that were given and validates the result, listing every problem.
 func serveConfig(path string, fs *flag.FlagSet) (config.Config, error) {
-	cfg := config.Default()
-	var problems []string
-	if path != "" {
-		var err error
-		cfg, err = config.LoadFile(path)
-		var ce *config.Error
-		switch {
-		case errors.As(err, &ce):
-			problems = append(problems, ce.Problems...)
-		case err != nil:
-			return cfg, err
-		}
-	}
-	var flagProblems []string
-	fs.Visit(func(f *flag.Flag) {
-		v := f.Value.String()
-		switch f.Name {
-		case "data":
-			cfg.Node.DataDir = v
-		case "listen":
-			cfg.Node.DICOMListen = v
-		case "http":
-			cfg.Node.HTTPListen = v
-		case "ae-title":
-			cfg.Node.AETitle = v
-		case "log-format":
-			if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--log-format: "+err.Error())
+	return config.Load(path, func(cfg *config.Config) []string {
+		var problems []string
+		fs.Visit(func(f *flag.Flag) {
+			v := f.Value.String()
+			switch f.Name {
+			case "data":
+				cfg.Node.DataDir = v
+			case "listen":
+				cfg.Node.DICOMListen = v
+			case "http":
+				cfg.Node.HTTPListen = v
+			case "ae-title":
+				cfg.Node.AETitle = v
+			case "log-format":
+				if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--log-format: "+err.Error())
+				}
+			case "settle":
+				if err := cfg.Audit.Settle.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--settle: "+err.Error())
+				}
+			case "log-level":
+				if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--log-level: "+err.Error())
+				}
 			}
-		case "settle":
-			if err := cfg.Audit.Settle.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--settle: "+err.Error())
-			}
-		case "log-level":
-			if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--log-level: "+err.Error())
-			}
-		}
+		})
+		return problems
 	})
-	// Validate again with the flags applied; the file's own value
-	// problems are already listed.
-	var ce *config.Error
-	if err := cfg.Validate(); errors.As(err, &ce) {
-		for _, p := range ce.Problems {
-			if !slices.Contains(problems, p) {
-				problems = append(problems, p)
-			}
-		}
-	}
-	problems = append(problems, flagProblems...)
-	if len(problems) > 0 {
-		return cfg, &config.Error{File: path, Problems: problems}
-	}
-	return cfg, nil
 }
 
 // serve runs the node on a validated configuration until ctx ends, then
@@ -194,7 +168,7 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 	}
 	met := newNodeMetrics(cfg, st.FreeBytes, pipe.Backlog, log.With("component", "metrics"))
 	pipe.Observer = met
-	seedDriftMetrics(met, st, env.clock()().In(loc), log.With("component", "metrics"))
+	met.SeedFrom(st, env.clock()().In(loc))
 	archive := cfg.Reports.Archive(st, loc, env.clock())
 	var dicomUp atomic.Bool
 	handler, err := httpHandler(cfg, st, loc, dicomUp.Load, met.Handler(), archive, log)
