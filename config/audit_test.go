@@ -15,7 +15,7 @@ import (
 )
 
 func TestDefaultAuditConfigIsTheRulesDefaults(t *testing.T) {
-	a := DefaultAudit()
+	a := defaultAudit()
 	if a.Settle != Duration(30*time.Second) || a.Workers != 2 {
 		t.Errorf("settle %v, workers %d; want 30s (issue 5) and 2", a.Settle, a.Workers)
 	}
@@ -29,8 +29,8 @@ func TestDefaultAuditConfigIsTheRulesDefaults(t *testing.T) {
 	}
 	a.Protocols[0].BValues[0] = 1
 	a.Rules["x"] = Rule{}
-	if b := DefaultAudit(); b.Protocols[0].BValues[0] == 1 || len(b.Rules) != 0 {
-		t.Error("DefaultAudit shares its lists or map between calls")
+	if b := defaultAudit(); b.Protocols[0].BValues[0] == 1 || len(b.Rules) != 0 {
+		t.Error("defaultAudit shares its lists or map between calls")
 	}
 }
 
@@ -63,7 +63,7 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
 		t.Fatal(err)
 	}
 	a := c.Audit
-	d := DefaultAudit()
+	d := defaultAudit()
 	if a.Settle != Duration(2*time.Second) || a.Workers != 4 {
 		t.Errorf("settle %v workers %d", a.Settle, a.Workers)
 	}
@@ -82,12 +82,12 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
 	if !reflect.DeepEqual(a.Thresholds, wantT) {
 		t.Errorf("thresholds %+v: only low_snr.min_b0_snr must change", a.Thresholds)
 	}
-	src := a.ExtractOptions().PrivateSources
+	src := a.extractOptions().PrivateSources
 	want := []header.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: header.ValueIS}}
 	if !reflect.DeepEqual(src, want) {
 		t.Errorf("private sources %+v, want %+v", src, want)
 	}
-	an := a.AnalyzeConfig()
+	an := a.analyzeConfig()
 	if an.CSFPercentile != 90 || an.ParenchymaADCMax != d.Analysis.ParenchymaADCMax || an.FreeWaterCeiling != d.Analysis.FreeWaterCeiling {
 		t.Errorf("analysis %+v: only csf_percentile must change", an)
 	}
@@ -215,8 +215,8 @@ func TestExampleAuditSectionIsTheDefaultsAndItsCommentsParse(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d := DefaultAudit(); !reflect.DeepEqual(c.Audit, d) {
-		t.Errorf("the example's audit section differs from DefaultAudit:\n got %+v\nwant %+v", c.Audit, d)
+	if d := defaultAudit(); !reflect.DeepEqual(c.Audit, d) {
+		t.Errorf("the example's audit section differs from defaultAudit:\n got %+v\nwant %+v", c.Audit, d)
 	}
 	b, err := os.ReadFile(path)
 	if err != nil {

@@ -166,7 +166,7 @@ func Default() Config {
 			PruneInterval: Duration(defaultPruneInterval),
 		},
 		Log:     Log{Level: LogLevel(slog.LevelInfo), Format: LogText},
-		Audit:   DefaultAudit(),
+		Audit:   defaultAudit(),
 		Reports: defaultReports(),
 	}
 }
@@ -581,9 +581,9 @@ func (s ByteSize) String() string {
 	return strconv.FormatUint(uint64(s), 10)
 }
 
-// ParseByteSize parses a whole number of bytes with an optional suffix
+// parseByteSize parses a whole number of bytes with an optional suffix
 // B, KiB, MiB, GiB or TiB.
-func ParseByteSize(s string) (ByteSize, error) {
+func parseByteSize(s string) (ByteSize, error) {
 	t := strings.TrimSpace(s)
 	mult := uint64(1)
 	for _, u := range byteUnits {
@@ -599,9 +599,9 @@ func ParseByteSize(s string) (ByteSize, error) {
 	return ByteSize(n * mult), nil
 }
 
-// UnmarshalText parses like ParseByteSize.
+// UnmarshalText parses like parseByteSize.
 func (s *ByteSize) UnmarshalText(b []byte) error {
-	v, err := ParseByteSize(string(b))
+	v, err := parseByteSize(string(b))
 	if err != nil {
 		return err
 	}
@@ -609,13 +609,13 @@ func (s *ByteSize) UnmarshalText(b []byte) error {
 	return nil
 }
 
-// UnmarshalYAML parses like ParseByteSize.
+// UnmarshalYAML parses like parseByteSize.
 func (s *ByteSize) UnmarshalYAML(n *yaml.Node) error {
 	t, err := scalar(n)
 	if err != nil {
 		return err
 	}
-	v, err := ParseByteSize(t)
+	v, err := parseByteSize(t)
 	if err != nil {
 		return typeError(n, "not a size such as 262144, 256KiB or 2GiB")
 	}
@@ -680,8 +680,8 @@ func (f LogFormat) String() string {
 	return fmt.Sprintf("LogFormat(%d)", int(f))
 }
 
-// ParseLogFormat parses "text" or "json".
-func ParseLogFormat(s string) (LogFormat, error) {
+// parseLogFormat parses "text" or "json".
+func parseLogFormat(s string) (LogFormat, error) {
 	switch s {
 	case "text":
 		return LogText, nil
@@ -693,7 +693,7 @@ func ParseLogFormat(s string) (LogFormat, error) {
 
 // UnmarshalText parses "text" or "json".
 func (f *LogFormat) UnmarshalText(b []byte) error {
-	v, err := ParseLogFormat(string(b))
+	v, err := parseLogFormat(string(b))
 	if err != nil {
 		return err
 	}
@@ -707,7 +707,7 @@ func (f *LogFormat) UnmarshalYAML(n *yaml.Node) error {
 	if err != nil {
 		return err
 	}
-	v, err := ParseLogFormat(s)
+	v, err := parseLogFormat(s)
 	if err != nil {
 		return typeError(n, "not a log format: use text or json")
 	}
@@ -1020,10 +1020,10 @@ type AnalysisSettings struct {
 	FreeWaterCeiling float64 `yaml:"free_water_ceiling"` // mm²/s: no tissue diffuses faster
 }
 
-// DefaultAudit is the audit section `dwiaudit serve` and `dwiaudit
+// defaultAudit is the audit section `dwiaudit serve` and `dwiaudit
 // check` run on without a file: the rules' defaults (rules.DefaultConfig),
 // the analysis' defaults, no private sources.
-func DefaultAudit() Audit {
+func defaultAudit() Audit {
 	rc := rules.DefaultConfig()
 	a := analysis.DefaultAnalyzeConfig()
 	c := Audit{
@@ -1098,9 +1098,9 @@ func (a Audit) RulesConfig() *rules.Config {
 	return rc
 }
 
-// AnalyzeConfig is the analysis configuration: the defaults with the
+// analyzeConfig is the analysis configuration: the defaults with the
 // section's values.
-func (a Audit) AnalyzeConfig() analysis.AnalyzeConfig {
+func (a Audit) analyzeConfig() analysis.AnalyzeConfig {
 	c := analysis.DefaultAnalyzeConfig()
 	c.ParenchymaADCMax = a.Analysis.ParenchymaADCMax
 	c.CSFPercentile = a.Analysis.CSFPercentile
@@ -1108,8 +1108,8 @@ func (a Audit) AnalyzeConfig() analysis.AnalyzeConfig {
 	return c
 }
 
-// ExtractOptions are the file-reading options: the private sources.
-func (a Audit) ExtractOptions() header.ExtractOptions {
+// extractOptions are the file-reading options: the private sources.
+func (a Audit) extractOptions() header.ExtractOptions {
 	var o header.ExtractOptions
 	for _, p := range a.PrivateSources {
 		o.PrivateSources = append(o.PrivateSources, header.PrivateSource{
@@ -1124,8 +1124,8 @@ func (a Audit) ExtractOptions() header.ExtractOptions {
 // the section's configuration, validated.
 func (a Audit) Engine(log *slog.Logger) (*audit.Engine, error) {
 	e := audit.NewEngine(rules.All(), a.RulesConfig())
-	e.Analysis = a.AnalyzeConfig()
-	e.Extract = a.ExtractOptions()
+	e.Analysis = a.analyzeConfig()
+	e.Extract = a.extractOptions()
 	e.Workers = a.Workers
 	e.Logger = log
 	if err := e.Validate(); err != nil {

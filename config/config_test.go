@@ -200,9 +200,9 @@ func TestByteSizeParsesAndPrintsBinaryUnits(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.in+" is "+tt.str, func(t *testing.T) {
-			got, err := ParseByteSize(tt.in)
+			got, err := parseByteSize(tt.in)
 			if err != nil || got != tt.want {
-				t.Fatalf("ParseByteSize(%q) = %d, %v; want %d", tt.in, got, err, tt.want)
+				t.Fatalf("parseByteSize(%q) = %d, %v; want %d", tt.in, got, err, tt.want)
 			}
 			if got.String() != tt.str {
 				t.Errorf("String() = %q, want %q", got.String(), tt.str)
@@ -211,8 +211,8 @@ func TestByteSizeParsesAndPrintsBinaryUnits(t *testing.T) {
 	}
 	for _, bad := range []string{"", "2GB", "-1", "1.5GiB", "KiB", "99999999999TiB"} {
 		t.Run(bad+" is refused", func(t *testing.T) {
-			if _, err := ParseByteSize(bad); err == nil {
-				t.Errorf("ParseByteSize(%q) succeeded", bad)
+			if _, err := parseByteSize(bad); err == nil {
+				t.Errorf("parseByteSize(%q) succeeded", bad)
 			}
 		})
 	}

@@ -70,8 +70,8 @@ func (r Reports) validate(p *problems) {
 // TimeOfDay is a wall-clock time, written "HH:MM".
 type TimeOfDay time.Duration
 
-// ParseTimeOfDay reads "HH:MM" (00:00 to 23:59).
-func ParseTimeOfDay(s string) (TimeOfDay, error) {
+// parseTimeOfDay reads "HH:MM" (00:00 to 23:59).
+func parseTimeOfDay(s string) (TimeOfDay, error) {
 	t, err := time.Parse("15:04", s)
 	if err != nil || len(s) != 5 {
 		return 0, fmt.Errorf("%q is not a time of day HH:MM (00:00 to 23:59)", s)
@@ -91,7 +91,7 @@ func (t *TimeOfDay) UnmarshalYAML(n *yaml.Node) error {
 	if err != nil {
 		return err
 	}
-	v, err := ParseTimeOfDay(s)
+	v, err := parseTimeOfDay(s)
 	if err != nil {
 		return typeError(n, "not a time of day HH:MM (00:00 to 23:59)")
 	}

@@ -125,9 +125,9 @@ func (m *Metrics) Seed(recs []store.AuditRecord, study func(uid string) (store.S
 // dashboard anyway.
 const seedDays = 31
 
-// AuditsByDay lists the current audits of a day (store.Store.Findings)
+// auditsByDay lists the current audits of a day (store.Store.Findings)
 // and reads their studies.
-type AuditsByDay interface {
+type auditsByDay interface {
 	Findings(day string) ([]store.AuditRecord, error)
 	Study(uid string) (store.Study, error)
 }
@@ -135,7 +135,7 @@ type AuditsByDay interface {
 // SeedFrom sets the drift gauges from the audits of the last seedDays
 // days up to now (in now's time zone, the node's), so that a restart
 // does not blank a dashboard.
-func (m *Metrics) SeedFrom(st AuditsByDay, now time.Time) {
+func (m *Metrics) SeedFrom(st auditsByDay, now time.Time) {
 	n := 0
 	for i := seedDays - 1; i >= 0; i-- {
 		day := now.AddDate(0, 0, -i).Format(time.DateOnly)

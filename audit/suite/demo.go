@@ -31,9 +31,9 @@ import (
 // the daily list.
 func accessionOf(seed int64) string { return fmt.Sprintf("QOHSYN%06d", uint64(seed)%1000000) }
 
-// DemoDays is how many audit days the scenario covers, the last one
+// demoDays is how many audit days the scenario covers, the last one
 // today.
-const DemoDays = 4
+const demoDays = 4
 
 // demoAuditTimeout bounds the wait for one day's audits: the day's
 // studies audit in a few seconds on two cores; a minute means the node
@@ -62,7 +62,7 @@ func Hospital() []Scanner {
 
 // demoStudy is one study of the scenario and what its audit must show.
 type demoStudy struct {
-	day     int // 0 .. DemoDays-1
+	day     int // 0 .. demoDays-1
 	scanner int // index in Hospital
 	plant   plant
 	// bScale is the weighting the scanner applies relative to its
@@ -89,7 +89,7 @@ func (s demoStudy) name() string {
 // ice-water phantom reads its ADC that much high. Inside the ice-water
 // profile's ±3.6% (from memory, DOMAIN.md) for three days, outside it
 // on the fourth.
-func driftScales() [DemoDays]float64 { return [DemoDays]float64{1.005, 1.015, 1.03, 1.05} }
+func driftScales() [demoDays]float64 { return [demoDays]float64{1.005, 1.015, 1.03, 1.05} }
 
 // demoScenario is the four days of studies: clean brains, at least one
 // planted defect for every rule, two true lesions that must not be taken
@@ -209,11 +209,11 @@ type Scenario struct {
 }
 
 // NewScenario is the scenario writing its studies under studiesDir, in
-// the node's time zone loc; its clock starts DemoDays-1 days back.
+// the node's time zone loc; its clock starts demoDays-1 days back.
 func NewScenario(studiesDir string, loc *time.Location) *Scenario {
 	d := &Scenario{studiesDir: studiesDir, loc: loc, scanners: Hospital(), scenario: demoScenario()}
 	d.clock.begin(time.Now(), loc)
-	d.clock.daysBack.Store(DemoDays - 1)
+	d.clock.daysBack.Store(demoDays - 1)
 	return d
 }
 
@@ -228,8 +228,8 @@ func (d *Scenario) Run(ctx context.Context, w io.Writer, node Node) (bool, error
 	d.w, d.node = w, node
 	d.studies, d.series, d.audits = map[string]int{}, map[string]int{}, map[int][]auditView{}
 	client := newFindingsClient("http://" + node.HTTPAddr)
-	for day := range DemoDays {
-		d.clock.daysBack.Store(int64(DemoDays - 1 - day))
+	for day := range demoDays {
+		d.clock.daysBack.Store(int64(demoDays - 1 - day))
 		if err := d.runDay(ctx, client, day); err != nil {
 			return false, fmt.Errorf("day %d: %w", day+1, err)
 		}
@@ -245,7 +245,7 @@ func (d *Scenario) runDay(ctx context.Context, client *findingsClient, day int) 
 	now := d.clock.Now().In(d.loc)
 	dayName := now.Format(time.DateOnly)
 	d.days = append(d.days, dayName)
-	fmt.Fprintf(w, "\n== %s, day %d of %d\n", dayName, day+1, DemoDays)
+	fmt.Fprintf(w, "\n== %s, day %d of %d\n", dayName, day+1, demoDays)
 
 	// Write the day's studies, one folder per scanner so that each
 	// scanner sends its own over its own associations.
@@ -380,7 +380,7 @@ func (d *Scenario) printSummary(w io.Writer) bool {
 		return fmt.Sprintf("%s (%s, %s)", s.name(), d.scanners[s.scanner].Label, d.days[s.day])
 	}
 
-	fmt.Fprintf(w, "\n== Findings per rule over the %d days (warning or above)\n", DemoDays)
+	fmt.Fprintf(w, "\n== Findings per rule over the %d days (warning or above)\n", demoDays)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "  rule\tfindings\tstudies\ton the planted studies\t")
 	for _, id := range RuleIDs() {
@@ -399,7 +399,7 @@ func (d *Scenario) printSummary(w io.Writer) bool {
 	drift := driftScales()
 	label := d.scanners[0].Label
 	fmt.Fprintf(w, "\n== Ice-water phantom on %s, day by day (its gradient calibration drifts: weighting %+.1f%% to %+.1f%%)\n",
-		label, 100*(drift[0]-1), 100*(drift[DemoDays-1]-1))
+		label, 100*(drift[0]-1), 100*(drift[demoDays-1]-1))
 	for i, s := range d.scenario {
 		if s.plant.name != "ice-water-qa" {
 			continue

@@ -128,3 +128,33 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 		}
 	})
 }
+
+func TestEveryAnswerPassesTheMiddleware(t *testing.T) {
+	var logged strings.Builder
+	log := slog.New(slog.NewTextHandler(&logged, &slog.HandlerOptions{Level: slog.LevelDebug}))
+	s := &Server{api: newAPI(&fakeLister{}, time.UTC, func() bool { return true }, log),
+		metrics: http.NotFoundHandler(), auth: &Auth{Token: "qoh-test-token-0123456789abcdef", Open: []string{"/healthz"}}, log: log}
+	h := s.Handler()
+
+	rec := get(t, h, "GET", "/healthz")
+	if rec.Code != http.StatusOK {
+		t.Fatalf("/healthz %d", rec.Code)
+	}
+	for _, hd := range []string{"Content-Security-Policy", "X-Content-Type-Options", "Referrer-Policy"} {
+		if rec.Header().Get(hd) == "" {
+			t.Errorf("/healthz lacks %s", hd)
+		}
+	}
+	// A refused request still gets the security headers and a log line.
+	rec = get(t, h, "GET", "/api/v1/series/2.25.99/preview.png")
+	if rec.Code != http.StatusUnauthorized || rec.Header().Get("X-Content-Type-Options") != "nosniff" {
+		t.Errorf("without the token: %d, headers %v", rec.Code, rec.Header())
+	}
+	out := logged.String()
+	if !strings.Contains(out, `route="GET /healthz" status=200`) || !strings.Contains(out, "route=(unrouted) status=401") {
+		t.Errorf("access log:\n%s", out)
+	}
+	if strings.Contains(out, "2.25.99") {
+		t.Errorf("the access log holds a UID from the path:\n%s", out)
+	}
+}

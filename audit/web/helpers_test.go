@@ -127,7 +127,7 @@ func newPages(t testing.TB, st Store, mod func(*Options)) http.Handler {
 	if mod != nil {
 		mod(&opt)
 	}
-	h, err := New(opt)
+	h, err := newPagesHandler(opt)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -49,7 +49,7 @@ type Server struct {
 	api      *api
 	reports  *reportsAPI
 	previews *previews
-	pages    *Handler
+	pages    *pagesHandler
 	metrics  http.Handler
 	auth     *Auth
 	log      *slog.Logger
@@ -79,7 +79,7 @@ func NewServer(opt ServerOptions) (*Server, error) {
 	if po.Logger == nil {
 		po.Logger = opt.Logger
 	}
-	pages, err := New(po)
+	pages, err := newPagesHandler(po)
 	if err != nil {
 		return nil, err
 	}

@@ -64,16 +64,16 @@ type Options struct {
 //go:embed templates/*.html assets/*
 var files embed.FS
 
-// Handler serves the pages; the server's route table (routes) mounts
+// pagesHandler serves the pages; the server's route table (routes) mounts
 // them.
-type Handler struct {
+type pagesHandler struct {
 	opt   Options
 	pages map[string]*template.Template
 	css   []byte
 }
 
-// New parses the embedded templates and returns the pages' handler.
-func New(opt Options) (*Handler, error) {
+// newPagesHandler parses the embedded templates and returns the pages' handler.
+func newPagesHandler(opt Options) (*pagesHandler, error) {
 	if opt.Store == nil {
 		return nil, errors.New("web: no store")
 	}
@@ -92,7 +92,7 @@ func New(opt Options) (*Handler, error) {
 	if opt.TrendDays <= 0 {
 		opt.TrendDays = DefaultTrendDays
 	}
-	h := &Handler{opt: opt, pages: map[string]*template.Template{}}
+	h := &pagesHandler{opt: opt, pages: map[string]*template.Template{}}
 	funcs := template.FuncMap{"caution": func() string { return Caution }}
 	for _, name := range []string{"day", "study", "scanners", "scanner", "error"} {
 		t, err := template.New("layout.html").Funcs(funcs).ParseFS(files, "templates/layout.html", "templates/"+name+".html")
@@ -118,7 +118,7 @@ type layout struct {
 	Body    any
 }
 
-func (h *Handler) render(w http.ResponseWriter, status int, page, title, nav string, body any) {
+func (h *pagesHandler) render(w http.ResponseWriter, status int, page, title, nav string, body any) {
 	now := h.opt.Now().In(h.opt.Location)
 	var buf bytes.Buffer
 	err := h.pages[page].Execute(&buf, layout{
@@ -144,13 +144,13 @@ type errorPage struct {
 	Message string
 }
 
-func (h *Handler) fail(w http.ResponseWriter, status int, msg string) {
+func (h *pagesHandler) fail(w http.ResponseWriter, status int, msg string) {
 	h.render(w, status, "error", http.StatusText(status), "", errorPage{Status: status, Message: msg})
 }
 
 // storeFailed answers a store error: 503 while the node stops, 404 for
 // something unknown, else 500 (logged without identifiers).
-func (h *Handler) storeFailed(w http.ResponseWriter, what string, err error) {
+func (h *pagesHandler) storeFailed(w http.ResponseWriter, what string, err error) {
 	switch {
 	case errors.Is(err, store.ErrClosed):
 		h.fail(w, http.StatusServiceUnavailable, "The node is stopping; try again in a moment.")
@@ -162,7 +162,7 @@ func (h *Handler) storeFailed(w http.ResponseWriter, what string, err error) {
 	}
 }
 
-func (h *Handler) style(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) style(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Content-Type", "text/css; charset=utf-8")
 	w.Header().Set("Cache-Control", "private, max-age=300")
 	w.Write(h.css)
