@@ -931,14 +931,14 @@ func (s SeverityName) MarshalYAML() (any, error) { return rules.Severity(s).Stri
 // optionally where the gradient direction is. A source overrides the
 // built-in maker readers; the standard attributes override both.
 type PrivateSource struct {
-	Name     string                `yaml:"name"`
-	Creator  string                `yaml:"creator"`
-	Group    HexUint16             `yaml:"group"`   // e.g. "0x0019"
-	Element  HexUint8              `yaml:"element"` // e.g. "0x0C"
-	Read     ValueKindName         `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
-	Index    int                   `yaml:"index"`
-	Scale    float64               `yaml:"scale"`    // 0 or absent means 1
-	Offset   float64               `yaml:"offset"`   // subtracted before scale, e.g. 1e9
+	Name     string          `yaml:"name"`
+	Creator  string          `yaml:"creator"`
+	Group    HexUint16       `yaml:"group"`   // e.g. "0x0019"
+	Element  HexUint8        `yaml:"element"` // e.g. "0x0C"
+	Read     ValueKindName   `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
+	Index    int             `yaml:"index"`
+	Scale    float64         `yaml:"scale"`    // 0 or absent means 1
+	Offset   float64         `yaml:"offset"`   // subtracted before scale, e.g. 1e9
 	Gradient *GradientSource `yaml:"gradient"` // absent: no direction from this source
 }
 
