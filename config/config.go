@@ -800,6 +800,24 @@ func (t *PeerTable) Scanner(callingAE string) string {
 	return t.byAE[strings.TrimSpace(callingAE)].scanner
 }
 
+// Acceptor is the DICOM acceptor of the configuration: our AE title,
+// the peers' allow-list (the returned table, which also gives each
+// peer's scanner label) and the limits. The caller sets its Handler,
+// OnAssociation and Logger.
+func (c Config) Acceptor() (*scp.Server, *PeerTable) {
+	peers := NewPeerTable(c.Peers)
+	return &scp.Server{
+		AETitle:                c.Node.AETitle,
+		AllowedCallingAETitles: peers.CallingAETitles(),
+		AllowCalling:           peers.Allow,
+		MaxAssociations:        c.Limits.MaxAssociations,
+		ARTIMTimeout:           time.Duration(c.Limits.ARTIMTimeout),
+		IdleTimeout:            time.Duration(c.Limits.IdleTimeout),
+		WriteTimeout:           time.Duration(c.Limits.WriteTimeout),
+		MaxPDULength:           uint32(c.Limits.MaxPDULength),
+	}, peers
+}
+
 // ---- The audit: section ----------------------------------------------
 //
 // What the audit engine runs on: when a series counts as settled, how

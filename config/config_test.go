@@ -303,3 +303,29 @@ func TestLoadListsEachProblemOnceWithTheOverridesApplied(t *testing.T) {
 		t.Errorf("Load without a file = %+v, %v; want the defaults", c.Node, err)
 	}
 }
+
+func TestAcceptorCarriesTheNodeThePeersAndTheLimits(t *testing.T) {
+	c := Default()
+	c.Node.AETitle = "QOH_NODE"
+	c.Peers = []Peer{{AETitle: "QOH_MR2", Scanner: "qoh-mr2"}, {AETitle: "QOH_MR1", Scanner: "qoh-mr1", Networks: []string{"10.20.0.0/16"}}}
+	c.Limits.MaxAssociations = 7
+	c.Limits.MaxPDULength = 64 << 10
+	c.Limits.ARTIMTimeout = Duration(7 * time.Second)
+	c.Limits.IdleTimeout = Duration(8 * time.Second)
+	c.Limits.WriteTimeout = Duration(9 * time.Second)
+	srv, peers := c.Acceptor()
+	if srv.AETitle != "QOH_NODE" || srv.MaxAssociations != 7 || srv.MaxPDULength != 64<<10 ||
+		srv.ARTIMTimeout != 7*time.Second || srv.IdleTimeout != 8*time.Second || srv.WriteTimeout != 9*time.Second {
+		t.Errorf("acceptor %+v", srv)
+	}
+	if !slices.Equal(srv.AllowedCallingAETitles, []string{"QOH_MR1", "QOH_MR2"}) {
+		t.Errorf("AllowedCallingAETitles %v", srv.AllowedCallingAETitles)
+	}
+	outside := net.TCPAddrFromAddrPort(netip.MustParseAddrPort("10.21.0.1:104"))
+	if srv.AllowCalling == nil || srv.AllowCalling("QOH_MR1", outside) {
+		t.Error("QOH_MR1 allowed from outside its network")
+	}
+	if peers.Scanner("QOH_MR2") != "qoh-mr2" {
+		t.Errorf("scanner of QOH_MR2 = %q", peers.Scanner("QOH_MR2"))
+	}
+}

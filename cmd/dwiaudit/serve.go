@@ -199,20 +199,10 @@ func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
 		return exitFailure
 	}
 
-	peers := config.NewPeerTable(cfg.Peers)
-	dicom := &scp.Server{
-		AETitle:                cfg.Node.AETitle,
-		AllowedCallingAETitles: peers.CallingAETitles(),
-		AllowCalling:           peers.Allow,
-		MaxAssociations:        cfg.Limits.MaxAssociations,
-		ARTIMTimeout:           time.Duration(cfg.Limits.ARTIMTimeout),
-		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
-		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
-		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
-		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met},
-		OnAssociation:          associationMetrics(met),
-		Logger:                 log.With("component", "scp"),
-	}
+	dicom, peers := cfg.Acceptor()
+	dicom.Handler = &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met}
+	dicom.OnAssociation = associationMetrics(met)
+	dicom.Logger = log.With("component", "scp")
 	dicomDone := make(chan error, 1)
 	dicomUp.Store(true)
 	go func() {
