@@ -119,6 +119,39 @@ func (m *Metrics) Seed(recs []store.AuditRecord, study func(uid string) (store.S
 	}
 }
 
+// seedDays is how many days of stored audits the drift gauges are seeded
+// from at start: a scanner audited in the last month shows its latest
+// values after a restart; one silent for longer is stale on any
+// dashboard anyway.
+const seedDays = 31
+
+// auditsByDay lists the current audits of a day (store.Store.Findings)
+// and reads their studies.
+type auditsByDay interface {
+	Findings(day string) ([]store.AuditRecord, error)
+	Study(uid string) (store.Study, error)
+}
+
+// SeedFrom sets the drift gauges from the audits of the last seedDays
+// days up to now (in now's time zone, the node's), so that a restart
+// does not blank a dashboard.
+func (m *Metrics) SeedFrom(st auditsByDay, now time.Time) {
+	n := 0
+	for i := seedDays - 1; i >= 0; i-- {
+		day := now.AddDate(0, 0, -i).Format(time.DateOnly)
+		recs, err := st.Findings(day)
+		if err != nil {
+			m.log.Warn("seeding the drift metrics: reading stored audits failed", "day", day, "err", err)
+			return
+		}
+		m.Seed(recs, st.Study)
+		n += len(recs)
+	}
+	if n > 0 {
+		m.log.Info("drift metrics seeded from stored audits", "audits", n, "days", seedDays)
+	}
+}
+
 // identifiers are what must never be part of a label: the audit's and
 // its study's UIDs, accession and patient.
 func identifiers(rec store.AuditRecord, st store.Study) []string {

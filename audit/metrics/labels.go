@@ -16,7 +16,7 @@ const (
 	MaxFallbackScanners = 16
 
 	// maxLabelLen is the longest scanner label, the same bound as a
-	// configured peer's label (cmd/dwiaudit config.go, maxScannerLabel).
+	// configured peer's label (config/config.go, maxScannerLabel).
 	maxLabelLen = 32
 )
 

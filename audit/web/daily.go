@@ -47,11 +47,11 @@ func seriesLink(studyUID, seriesUID string) string {
 	return "/studies/" + url.PathEscape(studyUID) + "#series-" + seriesUID
 }
 
-func (h *Handler) today(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) today(w http.ResponseWriter, r *http.Request) {
 	h.dayPage(w, h.opt.Now().In(h.opt.Location).Format(dayLayout))
 }
 
-func (h *Handler) day(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) day(w http.ResponseWriter, r *http.Request) {
 	day := r.PathValue("day")
 	if d, err := time.ParseInLocation(dayLayout, day, h.opt.Location); err != nil || d.Format(dayLayout) != day {
 		h.fail(w, http.StatusBadRequest, "A day is written YYYY-MM-DD, for example 2025-03-04.")
@@ -60,7 +60,7 @@ func (h *Handler) day(w http.ResponseWriter, r *http.Request) {
 	h.dayPage(w, day)
 }
 
-func (h *Handler) dayPage(w http.ResponseWriter, day string) {
+func (h *pagesHandler) dayPage(w http.ResponseWriter, day string) {
 	d, _ := time.ParseInLocation(dayLayout, day, h.opt.Location)
 	today := h.opt.Now().In(h.opt.Location).Format(dayLayout)
 	v := dayView{Day: day, IsToday: day == today, Prev: d.AddDate(0, 0, -1).Format(dayLayout)}

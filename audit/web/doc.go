@@ -1,4 +1,12 @@
-// Package web serves the node's pages for people: the daily discrepancy
+// Package web is the node's HTTP listener: one route table
+// (Server.routes, server.go) and the middleware every request passes
+// through (Server.Handler: access log, security headers, access
+// control), in front of the JSON API (api.go: health checks, studies,
+// findings, and the JSON types the command-line clients decode too),
+// the reports (reports.go), the previews (preview.go), the Prometheus
+// metrics and the pages.
+//
+// The pages are for people: the daily discrepancy
 // list (/ for today, /days/{YYYY-MM-DD} for a past day), a study with its
 // series, measures, findings and previews (/studies/{StudyUID}), and the
 // scanners with trend plots of their ADC measures (/scanners,

@@ -1,12 +1,13 @@
 package web
 
 import (
-	"dwiaudit/audit/report"
 	"fmt"
 	"math"
 	"strconv"
 	"strings"
 	"time"
+
+	"dwiaudit/audit/report"
 )
 
 // Caution is the sentence every page shows.

@@ -3,6 +3,7 @@ package web
 import (
 	"encoding/json"
 	"io"
+	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -115,20 +116,23 @@ func saveAudit(t *testing.T, st *store.Store, rec store.AuditRecord, findings []
 	}
 }
 
-// newPages is the pages' handler over st on a mux, as the node mounts it.
+// newPages is the pages' handler over st behind the server's route
+// table and middleware, as the node mounts it.
 func newPages(t testing.TB, st Store, mod func(*Options)) http.Handler {
 	t.Helper()
 	opt := Options{Store: st, Location: qoh, Now: func() time.Time { return testNow }, Scanners: []string{"qoh-mr1-1.5t", "qoh-mr3-3t"}}
 	if mod != nil {
 		mod(&opt)
 	}
-	h, err := New(opt)
+	h, err := newPagesHandler(opt)
 	if err != nil {
 		t.Fatal(err)
 	}
-	mux := http.NewServeMux()
-	h.Register(mux)
-	return mux
+	s := &Server{pages: h, metrics: http.NotFoundHandler(), auth: &Auth{}, log: opt.Logger}
+	if s.log == nil {
+		s.log = slog.New(slog.DiscardHandler)
+	}
+	return s.Handler()
 }
 
 // getPage GETs path and returns the status and body.

@@ -21,7 +21,7 @@ type scannerLink struct {
 	Seen        bool // a stored series carries it
 }
 
-func (h *Handler) scanners(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) scanners(w http.ResponseWriter, r *http.Request) {
 	seen, err := h.opt.Store.ScannerLabels()
 	if err != nil {
 		h.storeFailed(w, "scanner", err)
@@ -89,7 +89,7 @@ type plotView struct {
 // maxTrendRows bounds the table under the plots: the plots show all.
 const maxTrendRows = 60
 
-func (h *Handler) scanner(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) scanner(w http.ResponseWriter, r *http.Request) {
 	label := r.PathValue("label")
 	days := h.opt.TrendDays
 	if q := r.URL.Query().Get("days"); q != "" {
@@ -201,7 +201,7 @@ func bandWords(tol string) string {
 }
 
 // tolerance is a phantom profile's relative tolerance.
-func (h *Handler) tolerance(profile string) float64 {
+func (h *pagesHandler) tolerance(profile string) float64 {
 	if h.opt.PhantomTolerance != nil {
 		if t := h.opt.PhantomTolerance(profile); t > 0 {
 			return t

@@ -80,7 +80,7 @@ type studyView struct {
 	Findings  int
 }
 
-func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) study(w http.ResponseWriter, r *http.Request) {
 	uid := r.PathValue("uid")
 	st, err := h.opt.Store.Study(uid)
 	if err != nil {
@@ -144,7 +144,7 @@ func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
 }
 
 // fillSeries adds an audit's measures, findings and preview to sv.
-func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.RawMessage) error {
+func (h *pagesHandler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.RawMessage) error {
 	var fs []storedFinding
 	if len(findingsJSON) > 0 {
 		if err := json.Unmarshal(findingsJSON, &fs); err != nil {

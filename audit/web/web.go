@@ -64,15 +64,16 @@ type Options struct {
 //go:embed templates/*.html assets/*
 var files embed.FS
 
-// Handler serves the pages. Register mounts them on a mux.
-type Handler struct {
+// pagesHandler serves the pages; the server's route table (routes) mounts
+// them.
+type pagesHandler struct {
 	opt   Options
 	pages map[string]*template.Template
 	css   []byte
 }
 
-// New parses the embedded templates and returns the pages' handler.
-func New(opt Options) (*Handler, error) {
+// newPagesHandler parses the embedded templates and returns the pages' handler.
+func newPagesHandler(opt Options) (*pagesHandler, error) {
 	if opt.Store == nil {
 		return nil, errors.New("web: no store")
 	}
@@ -91,7 +92,7 @@ func New(opt Options) (*Handler, error) {
 	if opt.TrendDays <= 0 {
 		opt.TrendDays = DefaultTrendDays
 	}
-	h := &Handler{opt: opt, pages: map[string]*template.Template{}}
+	h := &pagesHandler{opt: opt, pages: map[string]*template.Template{}}
 	funcs := template.FuncMap{"caution": func() string { return Caution }}
 	for _, name := range []string{"day", "study", "scanners", "scanner", "error"} {
 		t, err := template.New("layout.html").Funcs(funcs).ParseFS(files, "templates/layout.html", "templates/"+name+".html")
@@ -108,25 +109,6 @@ func New(opt Options) (*Handler, error) {
 	return h, nil
 }
 
-// Patterns are the mux patterns Register mounts, for a caller that routes
-// everything else elsewhere.
-var Patterns = []string{
-	"GET /{$}",
-	"GET /days/{day}",
-	"GET /studies/{uid}",
-	"GET /scanners",
-	"GET /scanners/{label}",
-	"GET /assets/style.css",
-}
-
-// Register mounts the pages on mux at Patterns.
-func (h *Handler) Register(mux *http.ServeMux) {
-	handlers := []http.HandlerFunc{h.today, h.day, h.study, h.scanners, h.scanner, h.style}
-	for i, p := range Patterns {
-		mux.HandleFunc(p, handlers[i])
-	}
-}
-
 // layout is what every page passes to the layout template.
 type layout struct {
 	Title   string
@@ -136,7 +118,7 @@ type layout struct {
 	Body    any
 }
 
-func (h *Handler) render(w http.ResponseWriter, status int, page, title, nav string, body any) {
+func (h *pagesHandler) render(w http.ResponseWriter, status int, page, title, nav string, body any) {
 	now := h.opt.Now().In(h.opt.Location)
 	var buf bytes.Buffer
 	err := h.pages[page].Execute(&buf, layout{
@@ -150,10 +132,8 @@ func (h *Handler) render(w http.ResponseWriter, status int, page, title, nav str
 	}
 	w.Header().Set("Content-Type", "text/html; charset=utf-8")
 	w.Header().Set("Cache-Control", "no-store")
-	// The pages load nothing from elsewhere and run no script.
-	w.Header().Set("Content-Security-Policy", "default-src 'none'; img-src 'self'; style-src 'self'; form-action 'self'; frame-ancestors 'none'; base-uri 'none'")
-	w.Header().Set("X-Content-Type-Options", "nosniff")
-	w.Header().Set("Referrer-Policy", "no-referrer")
+	// The security headers (Content-Security-Policy: nothing from
+	// elsewhere, no script) are the server's (securityHeaders).
 	w.WriteHeader(status)
 	w.Write(buf.Bytes())
 }
@@ -164,13 +144,13 @@ type errorPage struct {
 	Message string
 }
 
-func (h *Handler) fail(w http.ResponseWriter, status int, msg string) {
+func (h *pagesHandler) fail(w http.ResponseWriter, status int, msg string) {
 	h.render(w, status, "error", http.StatusText(status), "", errorPage{Status: status, Message: msg})
 }
 
 // storeFailed answers a store error: 503 while the node stops, 404 for
 // something unknown, else 500 (logged without identifiers).
-func (h *Handler) storeFailed(w http.ResponseWriter, what string, err error) {
+func (h *pagesHandler) storeFailed(w http.ResponseWriter, what string, err error) {
 	switch {
 	case errors.Is(err, store.ErrClosed):
 		h.fail(w, http.StatusServiceUnavailable, "The node is stopping; try again in a moment.")
@@ -182,10 +162,9 @@ func (h *Handler) storeFailed(w http.ResponseWriter, what string, err error) {
 	}
 }
 
-func (h *Handler) style(w http.ResponseWriter, r *http.Request) {
+func (h *pagesHandler) style(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Content-Type", "text/css; charset=utf-8")
 	w.Header().Set("Cache-Control", "private, max-age=300")
-	w.Header().Set("X-Content-Type-Options", "nosniff")
 	w.Write(h.css)
 }
 

@@ -14,6 +14,7 @@ import (
 	"dwiaudit/audit/analysis"
 	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/report"
 	"dwiaudit/internal/testtool"
 	"dwiaudit/rules"
 	"dwiaudit/scp/part10"
@@ -273,7 +274,7 @@ func TestCheckJSONGolden(t *testing.T) {
 	var buf bytes.Buffer
 	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
-	if err := enc.Encode(checkBody(rep)); err != nil {
+	if err := enc.Encode(report.CheckBody(rep)); err != nil {
 		t.Fatal(err)
 	}
 	testtool.Golden(t, filepath.Join("testdata", "check.golden.json"), buf.Bytes())
@@ -287,7 +288,7 @@ func TestCheckJSONGolden(t *testing.T) {
 // slices; audit/phantom) and reads its gradient table back.
 func TestCheckJSONGivesTheGradientTable(t *testing.T) {
 	r := runCLI(t, "check", "--format", "json", checkStudy(t, phantom.CaseClean))
-	var body CheckResponse
+	var body report.CheckResponse
 	if err := json.Unmarshal([]byte(r.stdout), &body); err != nil {
 		t.Fatalf("not JSON: %v\n%s", err, r.stdout)
 	}
@@ -356,7 +357,7 @@ func TestCheckTextListsDerivedSeriesAndIgnoredObjects(t *testing.T) {
 	}
 	series := func(path string) string {
 		r := runCLI(t, "check", "--format", "json", path)
-		var body CheckResponse
+		var body report.CheckResponse
 		if err := json.Unmarshal([]byte(r.stdout), &body); err != nil || len(body.Series) != 1 {
 			t.Fatalf("check of %s: %v\n%s", path, err, r.stdout)
 		}

@@ -17,6 +17,7 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/audit/web"
 	"dwiaudit/scp"
 	"dwiaudit/scp/dimse"
 )
@@ -101,7 +102,7 @@ func TestCrashKeepsEveryAcknowledgedInstance(t *testing.T) {
 	n := startNode(t, dir)
 	n.waitForLog(`msg="data folder open"`, time.Second)
 	t.Logf("final start: %s", logLine(n.stderr.String(), `msg="data folder open"`))
-	var api StudiesResponse
+	var api web.StudiesResponse
 	getJSON(t, n.httpURL+"/api/v1/studies", &api)
 	listed := map[string]int{}
 	for _, st := range api.Studies {

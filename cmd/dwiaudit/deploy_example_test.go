@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"dwiaudit/config"
 	"dwiaudit/rules"
 )
 
@@ -30,7 +31,7 @@ func TestTheExampleShowsTheShippedThresholds(t *testing.T) {
 	end := start + strings.Index(text[start:], "\n\n")
 	block := strings.Replace(text[start:end], "  thresholds: {}\n", "  thresholds:\n", 1)
 	block = strings.ReplaceAll(block, "\n  #  ", "\n    ")
-	c, err := ParseConfig(path, []byte(text[:start]+block+text[end:]))
+	c, err := config.Parse(path, []byte(text[:start]+block+text[end:]))
 	if err != nil {
 		t.Fatalf("with the thresholds uncommented: %v", err)
 	}

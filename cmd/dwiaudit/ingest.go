@@ -6,6 +6,7 @@ import (
 	"io"
 	"time"
 
+	"dwiaudit/config"
 	"dwiaudit/scp"
 	"dwiaudit/scp/dimse"
 	"dwiaudit/store"
@@ -46,7 +47,7 @@ type instanceObserver interface {
 // one.
 type ingest struct {
 	store     instancePutter
-	peers     *peerTable
+	peers     *config.PeerTable
 	instances instanceLooker   // with audit or metrics
 	audit     auditNotifier    // nil: no audit
 	studies   studyLooker      // with metrics
@@ -56,7 +57,7 @@ type ingest struct {
 // HandleStore implements scp.StoreHandler.
 func (h *ingest) HandleStore(ctx context.Context, req *scp.StoreRequest) error {
 	start := time.Now()
-	label := h.peers.scanner(req.CallingAETitle)
+	label := h.peers.Scanner(req.CallingAETitle)
 	ref, err := h.store.Put(ctx, store.PutRequest{
 		SOPClassUID:       req.SOPClassUID,
 		SOPInstanceUID:    req.SOPInstanceUID,

@@ -8,6 +8,7 @@ import (
 	"io"
 	"testing"
 
+	"dwiaudit/config"
 	"dwiaudit/scp"
 	"dwiaudit/scp/dimse"
 	"dwiaudit/store"
@@ -62,7 +63,7 @@ func (p *recordingPutter) Put(ctx context.Context, req store.PutRequest, data io
 
 func TestIngestPassesTheRequestAndTheScannerLabelToTheStore(t *testing.T) {
 	p := &recordingPutter{}
-	h := &ingest{store: p, peers: newPeerTable([]PeerConfig{{AETitle: "QOH_MR1", Scanner: "qoh-mr1-1.5t"}})}
+	h := &ingest{store: p, peers: config.NewPeerTable([]config.Peer{{AETitle: "QOH_MR1", Scanner: "qoh-mr1-1.5t"}})}
 	err := h.HandleStore(context.Background(), &scp.StoreRequest{
 		CallingAETitle: "QOH_MR1", SOPClassUID: scp.MRImageStorage, SOPInstanceUID: "2.25.5",
 		TransferSyntaxUID: scp.ExplicitVRLittleEndian, Data: bytes.NewReader([]byte("data set")),

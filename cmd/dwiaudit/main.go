@@ -15,6 +15,9 @@ import (
 	"time"
 )
 
+// dayLayout is the form of a day on the command line and in the API.
+const dayLayout = time.DateOnly
+
 // exit codes
 const (
 	exitOK      = 0

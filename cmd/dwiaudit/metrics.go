@@ -7,30 +7,22 @@ package main
 
 import (
 	"log/slog"
-	"net/http"
 	"runtime"
 	"runtime/debug"
-	"time"
 
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
 	"dwiaudit/audit/metrics"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
-	"dwiaudit/store"
 )
-
-// seedDays is how many days of stored audits the drift gauges are seeded
-// from at start: a scanner audited in the last month shows its latest
-// values after a restart; one silent for longer is stale on any
-// dashboard anyway.
-const seedDays = 31
 
 // newNodeMetrics builds the node's metrics: label bounds from the
 // configuration (peer scanner labels, protocol and phantom names, the
 // rule IDs), the disk floor, the data folder's free space and the
 // pipeline's backlog read at scrape, and Go runtime and process metrics.
-func newNodeMetrics(cfg Config, free func() (uint64, error), backlog func() int, log *slog.Logger) *metrics.Metrics {
+func newNodeMetrics(cfg config.Config, free func() (uint64, error), backlog func() int, log *slog.Logger) *metrics.Metrics {
 	var scanners, protocols, phantoms []string
 	for _, p := range cfg.Peers {
 		scanners = append(scanners, p.Scanner)
@@ -83,39 +75,4 @@ func associationMetrics(m *metrics.Metrics) func(scp.AssociationSummary) {
 		}
 		m.Association(s.Result, classes)
 	}
-}
-
-// auditsByDay lists the current audits of a day (store.Store.Findings)
-// and reads their studies.
-type auditsByDay interface {
-	Findings(day string) ([]store.AuditRecord, error)
-	Study(uid string) (store.Study, error)
-}
-
-// seedDriftMetrics sets the drift gauges from the audits of the last
-// seedDays days (in the node's time zone), so that a restart does not
-// blank a dashboard.
-func seedDriftMetrics(m *metrics.Metrics, st auditsByDay, now time.Time, log *slog.Logger) {
-	n := 0
-	for i := seedDays - 1; i >= 0; i-- {
-		day := now.AddDate(0, 0, -i).Format(dayLayout)
-		recs, err := st.Findings(day)
-		if err != nil {
-			log.Warn("seeding the drift metrics: reading stored audits failed", "day", day, "err", err)
-			return
-		}
-		m.Seed(recs, st.Study)
-		n += len(recs)
-	}
-	if n > 0 {
-		log.Info("drift metrics seeded from stored audits", "audits", n, "days", seedDays)
-	}
-}
-
-// withMetrics serves /metrics beside the API.
-func withMetrics(api http.Handler, m *metrics.Metrics) http.Handler {
-	mux := http.NewServeMux()
-	mux.Handle("/metrics", m.Handler())
-	mux.Handle("/", api)
-	return mux
 }

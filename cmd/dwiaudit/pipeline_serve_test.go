@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/phantom"
+	"dwiaudit/audit/web"
 	"dwiaudit/rules"
 	"dwiaudit/scp/scptest"
 )
@@ -20,9 +21,9 @@ const findingsWait = 10 * time.Second
 
 // findingRules lists, per series UID, the rules of the findings the node
 // shows for today.
-func findingRules(t *testing.T, n *node) (FindingsResponse, map[string][]string) {
+func findingRules(t *testing.T, n *node) (web.FindingsResponse, map[string][]string) {
 	t.Helper()
-	var body FindingsResponse
+	var body web.FindingsResponse
 	if code := getJSON(t, n.httpURL+"/api/v1/findings?day="+time.Now().Format(dayLayout), &body); code != http.StatusOK {
 		t.Fatalf("GET /api/v1/findings: %d", code)
 	}
@@ -42,7 +43,7 @@ func findingRules(t *testing.T, n *node) (FindingsResponse, map[string][]string)
 
 // awaitFinding polls the API until series shows rule, or fails after
 // within.
-func awaitFinding(t *testing.T, n *node, series, rule string, within time.Duration) AuditJSON {
+func awaitFinding(t *testing.T, n *node, series, rule string, within time.Duration) web.AuditJSON {
 	t.Helper()
 	deadline := time.Now().Add(within)
 	for {
@@ -131,11 +132,11 @@ func TestARestartBetweenReceiptAndAuditLosesNoAudit(t *testing.T) {
 
 func TestFindingsRejectsABadDay(t *testing.T) {
 	n := startNode(t, t.TempDir())
-	var body errorBody
+	var body web.ErrorBody
 	if code := getJSON(t, n.httpURL+"/api/v1/findings?day=yesterday", &body); code != http.StatusBadRequest {
 		t.Errorf("GET ?day=yesterday: %d %+v, want 400", code, body)
 	}
-	var ok FindingsResponse
+	var ok web.FindingsResponse
 	day := time.Now().Format(dayLayout)
 	if code := getJSON(t, n.httpURL+"/api/v1/findings?day="+day, &ok); code != http.StatusOK || ok.Day != day || ok.Audits == nil || len(ok.Audits) != 0 {
 		t.Errorf("GET ?day=%s on an empty node: %d %+v, want 200 with an empty list", day, code, ok)

@@ -10,13 +10,12 @@ import (
 	"errors"
 	"flag"
 	"fmt"
-	"io"
-	"net/http"
 	"net/url"
-	"strings"
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/audit/web"
+	"dwiaudit/config"
 	"dwiaudit/store"
 )
 
@@ -25,9 +24,6 @@ const (
 	// reportHTTPTimeout bounds the request to a server: a year's
 	// compliance report reads two years of audits, seconds at most.
 	reportHTTPTimeout = 2 * time.Minute
-	// maxReportResponse bounds the body read from a server: a day of a
-	// busy node is thousands of rows of a few hundred bytes.
-	maxReportResponse = 256 << 20
 )
 
 const reportSynopsis = `daily [--date YYYY-MM-DD] [--format text|csv|json|html] [--data DIR | --server URL] [--config FILE]
@@ -47,7 +43,7 @@ func newReportFlags(env *cliEnv, name, synopsis string) reportFlags {
 	return reportFlags{
 		fs:         fs,
 		format:     fs.String("format", "text", "text, csv, json or html"),
-		data:       fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+defaultDataDir+")"),
+		data:       fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+config.DefaultDataDir+")"),
 		server:     fs.String("server", "", "ask a running dwiaudit serve at URL, e.g. http://127.0.0.1:8080"),
 		configPath: fs.String("config", "", "take the data folder, time zone and reports: settings from this configuration file"),
 	}
@@ -87,13 +83,13 @@ func runReport(ctx context.Context, env *cliEnv, args []string) int {
 
 // prepare parses the flags and loads the configuration; a non-negative
 // code means stop.
-func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.Format, Config, *time.Location, int) {
+func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.Format, config.Config, *time.Location, int) {
 	if code := parseFlags(rf.fs, args); code >= 0 {
-		return 0, Config{}, nil, code
+		return 0, config.Config{}, nil, code
 	}
-	fail := func(format string, a ...any) (report.Format, Config, *time.Location, int) {
+	fail := func(format string, a ...any) (report.Format, config.Config, *time.Location, int) {
 		fmt.Fprintf(env.stderr, "dwiaudit report %s: %s\n", name, fmt.Sprintf(format, a...))
-		return 0, Config{}, nil, exitUsage
+		return 0, config.Config{}, nil, exitUsage
 	}
 	if rf.fs.NArg() != 0 {
 		return fail("unexpected argument %q", rf.fs.Arg(0))
@@ -105,13 +101,13 @@ func (rf reportFlags) prepare(env *cliEnv, name string, args []string) (report.F
 	if err != nil {
 		return fail("--format %q: use text, csv, json or html", *rf.format)
 	}
-	cfg := DefaultConfig()
+	cfg := config.Default()
 	if *rf.configPath != "" {
-		if cfg, err = LoadConfigFile(*rf.configPath); err != nil {
+		if cfg, err = config.LoadFile(*rf.configPath); err != nil {
 			return fail("%v", err)
 		}
 	}
-	loc, err := loadLocation(cfg.Node.TimeZone)
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		return fail("node.time_zone: %v", err)
 	}
@@ -141,7 +137,7 @@ func runReportDaily(ctx context.Context, env *cliEnv, args []string) int {
 		}
 	} else {
 		err = withFolder(cfg, *rf.data, loc, func(st *store.Store) (err error) {
-			l, err = newReportArchive(cfg.Reports, st, loc, time.Now).Daily(day)
+			l, err = cfg.Reports.Archive(st, loc, time.Now).Daily(day)
 			return err
 		})
 	}
@@ -204,7 +200,7 @@ func runReportCompliance(ctx context.Context, env *cliEnv, args []string) int {
 
 // withFolder opens the data folder read-only for fn. A running server
 // holds the index locked; then the answer is to ask it.
-func withFolder(cfg Config, data string, loc *time.Location, fn func(*store.Store) error) error {
+func withFolder(cfg config.Config, data string, loc *time.Location, fn func(*store.Store) error) error {
 	dir := cfg.Node.DataDir
 	if data != "" {
 		dir = data
@@ -222,44 +218,12 @@ func withFolder(cfg Config, data string, loc *time.Location, fn func(*store.Stor
 	return fn(st)
 }
 
-// askServer GETs a path of a running node's API and returns the body of
-// a 200 answer; any other answer becomes an error with the server's
-// message.
+// askServer GETs a path of a running node's API with the token of
+// $DWIAUDIT_TOKEN_FILE and returns the body of a 200 answer.
 func askServer(ctx context.Context, server string, path []string, q url.Values) ([]byte, error) {
-	if !strings.Contains(server, "://") {
-		server = "http://" + server
-	}
-	u, err := url.Parse(server)
-	if err != nil || u.Host == "" {
-		return nil, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
-	}
-	u = u.JoinPath(path...)
-	u.RawQuery = q.Encode()
-	ctx, cancel := context.WithTimeout(ctx, reportHTTPTimeout)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u.String(), nil)
+	tok, err := clientToken()
 	if err != nil {
 		return nil, err
 	}
-	req.Header.Set("Accept", "application/json")
-	if err := clientAuth(req); err != nil {
-		return nil, err
-	}
-	res, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return nil, fmt.Errorf("asking the server: %w", err)
-	}
-	defer res.Body.Close()
-	body, err := io.ReadAll(io.LimitReader(res.Body, maxReportResponse))
-	if err != nil {
-		return nil, fmt.Errorf("reading the server's answer: %w", err)
-	}
-	if res.StatusCode != http.StatusOK {
-		var e errorBody
-		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			return nil, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
-		}
-		return nil, fmt.Errorf("server answered %s", res.Status)
-	}
-	return body, nil
+	return web.Client{Server: server, Token: tok, Timeout: reportHTTPTimeout}.Get(ctx, q, path...)
 }

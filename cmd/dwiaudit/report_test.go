@@ -15,6 +15,8 @@ import (
 	"time"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/audit/web"
+	"dwiaudit/config"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 	"dwiaudit/store/storetest"
@@ -122,7 +124,7 @@ func TestTheDailyListOfARealNodeShowsAMissingB0(t *testing.T) {
 
 func TestTheReportEndpointsAnswerErrorsAsJSON(t *testing.T) {
 	st := openTestStore(t, time.Now)
-	srv := httptest.NewServer(withReports(newAPI(st, time.UTC, func() bool { return true }, discardLog()), newReportArchive(DefaultConfig().Reports, st, time.UTC, time.Now), discardLog()))
+	srv := httptest.NewServer(testHTTPHandler(t, config.Default(), st, config.Default().Reports.Archive(st, time.UTC, time.Now)))
 	defer srv.Close()
 	for _, c := range []struct {
 		name, path string
@@ -138,7 +140,7 @@ func TestTheReportEndpointsAnswerErrorsAsJSON(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			code, ctype, body := httpGet(t, srv.URL+c.path)
-			var e errorBody
+			var e web.ErrorBody
 			if code != c.status || !strings.HasPrefix(ctype, "application/json") || json.Unmarshal(body, &e) != nil || e.Error == "" {
 				t.Errorf("%d %q %s, want %d with a JSON error", code, ctype, body, c.status)
 			}
@@ -165,7 +167,7 @@ func TestAFrozenDayServedOverHTTPIsByteIdentical(t *testing.T) {
 	if err := st.SaveAudit(rec("2.25.77.1", time.Date(2026, 12, 1, 15, 0, 0, 0, time.UTC), miss)); err != nil {
 		t.Fatal(err)
 	}
-	srv := httptest.NewServer(withReports(http.NotFoundHandler(), newReportArchive(DefaultConfig().Reports, st, time.UTC, func() time.Time { return now }), discardLog()))
+	srv := httptest.NewServer(testHTTPHandler(t, config.Default(), st, config.Default().Reports.Archive(st, time.UTC, func() time.Time { return now })))
 	defer srv.Close()
 	var first [][]byte
 	for _, ext := range []string{"json", "csv", "html"} {
@@ -246,3 +248,14 @@ func openTestStore(t testing.TB, now func() time.Time, dir ...string) *store.Sto
 }
 
 func discardLog() *slog.Logger { return slog.New(slog.DiscardHandler) }
+
+// testHTTPHandler is the node's HTTP handler over st as serve builds it,
+// with the DICOM acceptor up, the reports from archive and no metrics.
+func testHTTPHandler(t testing.TB, cfg config.Config, st *store.Store, archive *report.Archive) http.Handler {
+	t.Helper()
+	h, err := httpHandler(cfg, st, time.UTC, func() bool { return true }, http.NotFoundHandler(), archive, discardLog())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return h
+}

@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"dwiaudit/audit/suite"
 	"dwiaudit/rules"
 )
 
@@ -29,7 +30,7 @@ func TestSelftestPassesAgainstARunningNodeAndMarksItsStudiesAsTest(t *testing.T)
 	if r.code != exitOK {
 		t.Fatalf("selftest exited %d, want 0", r.code)
 	}
-	for _, id := range append(ruleIDs(), "(clean)") {
+	for _, id := range append(suite.RuleIDs(), "(clean)") {
 		m := selftestLine(id).FindStringSubmatch(r.stdout)
 		if m == nil || m[1] != "PASS" {
 			t.Errorf("no PASS line for %s", id)
@@ -50,7 +51,7 @@ func TestSelftestPassesAgainstARunningNodeAndMarksItsStudiesAsTest(t *testing.T)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(recs) < len(rulePlants())+1 {
+	if len(recs) < len(suite.RuleIDs())+1 {
 		t.Fatalf("%d audits stored, want one per study of the suite at least", len(recs))
 	}
 	for _, rec := range recs {
@@ -62,7 +63,7 @@ func TestSelftestPassesAgainstARunningNodeAndMarksItsStudiesAsTest(t *testing.T)
 
 func TestSelftestFailsNamingARuleTheNodeHasSwitchedOff(t *testing.T) {
 	cfg := filepath.Join(t.TempDir(), "dwiaudit.yaml")
-	// audit.rules.<id>.enabled (config.go RuleConfig).
+	// audit.rules.<id>.enabled (config.Rule).
 	if err := os.WriteFile(cfg, []byte("audit:\n  rules:\n    "+rules.IDLowSNR+":\n      enabled: false\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}

@@ -13,12 +13,13 @@ import (
 	"net"
 	"net/http"
 	"path/filepath"
-	"slices"
 	"sync"
 	"sync/atomic"
 	"time"
 
 	"dwiaudit/audit"
+	"dwiaudit/audit/report"
+	"dwiaudit/config"
 	"dwiaudit/scp"
 	"dwiaudit/store"
 )
@@ -53,13 +54,13 @@ const (
 func runServe(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "serve", "[flags]")
 	configPath := fs.String("config", "", "configuration file (YAML); without one, the defaults")
-	fs.String("data", "", "data folder (overrides node.data_dir; default "+defaultDataDir+")")
-	fs.String("listen", "", "DICOM listen address host:port (overrides node.dicom_listen; default "+defaultDICOMListen+")")
-	fs.String("http", "", "HTTP listen address host:port (overrides node.http_listen; default "+defaultHTTPListen+")")
+	fs.String("data", "", "data folder (overrides node.data_dir; default "+config.DefaultDataDir+")")
+	fs.String("listen", "", "DICOM listen address host:port (overrides node.dicom_listen; default "+config.DefaultDICOMListen+")")
+	fs.String("http", "", "HTTP listen address host:port (overrides node.http_listen; default "+config.DefaultHTTPListen+")")
 	fs.String("ae-title", "", "our AE title (overrides node.ae_title; default "+scp.DefaultAETitle+")")
 	fs.String("log-format", "", "text or json (overrides log.format; default text)")
 	fs.String("log-level", "", "debug, info, warn or error (overrides log.level; default info)")
-	fs.String("settle", "", "how long a study must receive nothing before it is audited, e.g. 2s (overrides audit.settle; default "+Duration(defaultSettle).String()+")")
+	fs.String("settle", "", "how long a study must receive nothing before it is audited, e.g. 2s (overrides audit.settle; default "+config.Duration(config.DefaultSettle).String()+")")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -78,68 +79,43 @@ func runServe(ctx context.Context, env *cliEnv, args []string) int {
 
 // serveConfig reads the file (or takes the defaults), applies the flags
 // that were given and validates the result, listing every problem.
-func serveConfig(path string, fs *flag.FlagSet) (Config, error) {
-	cfg := DefaultConfig()
-	var problems []string
-	if path != "" {
-		var err error
-		cfg, err = LoadConfigFile(path)
-		var ce *ConfigError
-		switch {
-		case errors.As(err, &ce):
-			problems = append(problems, ce.Problems...)
-		case err != nil:
-			return cfg, err
-		}
-	}
-	var flagProblems []string
-	fs.Visit(func(f *flag.Flag) {
-		v := f.Value.String()
-		switch f.Name {
-		case "data":
-			cfg.Node.DataDir = v
-		case "listen":
-			cfg.Node.DICOMListen = v
-		case "http":
-			cfg.Node.HTTPListen = v
-		case "ae-title":
-			cfg.Node.AETitle = v
-		case "log-format":
-			if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--log-format: "+err.Error())
+func serveConfig(path string, fs *flag.FlagSet) (config.Config, error) {
+	return config.Load(path, func(cfg *config.Config) []string {
+		var problems []string
+		fs.Visit(func(f *flag.Flag) {
+			v := f.Value.String()
+			switch f.Name {
+			case "data":
+				cfg.Node.DataDir = v
+			case "listen":
+				cfg.Node.DICOMListen = v
+			case "http":
+				cfg.Node.HTTPListen = v
+			case "ae-title":
+				cfg.Node.AETitle = v
+			case "log-format":
+				if err := cfg.Log.Format.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--log-format: "+err.Error())
+				}
+			case "settle":
+				if err := cfg.Audit.Settle.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--settle: "+err.Error())
+				}
+			case "log-level":
+				if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
+					problems = append(problems, "--log-level: "+err.Error())
+				}
 			}
-		case "settle":
-			if err := cfg.Audit.Settle.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--settle: "+err.Error())
-			}
-		case "log-level":
-			if err := cfg.Log.Level.UnmarshalText([]byte(v)); err != nil {
-				flagProblems = append(flagProblems, "--log-level: "+err.Error())
-			}
-		}
+		})
+		return problems
 	})
-	// Validate again with the flags applied; the file's own value
-	// problems are already listed.
-	var ce *ConfigError
-	if err := cfg.Validate(); errors.As(err, &ce) {
-		for _, p := range ce.Problems {
-			if !slices.Contains(problems, p) {
-				problems = append(problems, p)
-			}
-		}
-	}
-	problems = append(problems, flagProblems...)
-	if len(problems) > 0 {
-		return cfg, &ConfigError{File: path, Problems: problems}
-	}
-	return cfg, nil
 }
 
 // serve runs the node on a validated configuration until ctx ends, then
 // stops it gracefully.
-func serve(ctx context.Context, env *cliEnv, cfg Config) int {
-	log := newLogger(env.stderr, cfg.Log)
-	loc, err := loadLocation(cfg.Node.TimeZone)
+func serve(ctx context.Context, env *cliEnv, cfg config.Config) int {
+	log := config.NewLogger(env.stderr, cfg.Log)
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve: node.time_zone:", err)
 		return exitUsage
@@ -180,16 +156,6 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitUsage
 	}
-	pages, err := newWebPages(cfg, st, loc, log.With("component", "web"))
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
-		return exitUsage
-	}
-	prev, err := newPreviews(st, cfg.Audit, log.With("component", "preview"))
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
-		return exitFailure
-	}
 	pipe := &audit.Pipeline{
 		Engine:  eng,
 		Store:   st,
@@ -202,7 +168,14 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	}
 	met := newNodeMetrics(cfg, st.FreeBytes, pipe.Backlog, log.With("component", "metrics"))
 	pipe.Observer = met
-	seedDriftMetrics(met, st, env.clock()().In(loc), log.With("component", "metrics"))
+	met.SeedFrom(st, env.clock()().In(loc))
+	archive := cfg.Reports.Archive(st, loc, env.clock())
+	var dicomUp atomic.Bool
+	handler, err := httpHandler(cfg, st, loc, dicomUp.Load, met.Handler(), archive, log)
+	if err != nil {
+		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
+		return exitUsage
+	}
 	if err := pipe.Start(context.Background()); err != nil {
 		fmt.Fprintln(env.stderr, "dwiaudit serve:", err)
 		return exitFailure
@@ -226,21 +199,10 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		return exitFailure
 	}
 
-	peers := newPeerTable(cfg.Peers)
-	dicom := &scp.Server{
-		AETitle:                cfg.Node.AETitle,
-		AllowedCallingAETitles: peers.callingAETitles(),
-		AllowCalling:           peers.allow,
-		MaxAssociations:        cfg.Limits.MaxAssociations,
-		ARTIMTimeout:           time.Duration(cfg.Limits.ARTIMTimeout),
-		IdleTimeout:            time.Duration(cfg.Limits.IdleTimeout),
-		WriteTimeout:           time.Duration(cfg.Limits.WriteTimeout),
-		MaxPDULength:           uint32(cfg.Limits.MaxPDULength),
-		Handler:                &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met},
-		OnAssociation:          associationMetrics(met),
-		Logger:                 log.With("component", "scp"),
-	}
-	var dicomUp atomic.Bool
+	dicom, peers := cfg.Acceptor()
+	dicom.Handler = &ingest{store: st, peers: peers, instances: st, audit: pipe, studies: st, metrics: met}
+	dicom.OnAssociation = associationMetrics(met)
+	dicom.Logger = log.With("component", "scp")
 	dicomDone := make(chan error, 1)
 	dicomUp.Store(true)
 	go func() {
@@ -249,10 +211,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 		dicomDone <- err
 	}()
 
-	archive := newReportArchive(cfg.Reports, st, loc, env.clock())
 	hs := &http.Server{
-		Handler: pages.handler(withMetrics(withReports(newAPI(st, loc, dicomUp.Load, log.With("component", "http"), prev.routes),
-			archive, log.With("component", "http")), met)),
+		Handler:           handler,
 		ReadHeaderTimeout: httpReadHeaderTimeout,
 		ReadTimeout:       httpReadTimeout,
 		WriteTimeout:      httpWriteTimeout,
@@ -271,8 +231,8 @@ func serve(ctx context.Context, env *cliEnv, cfg Config) int {
 	pruneCtx, stopPrune := context.WithCancel(context.Background())
 	var pruning sync.WaitGroup
 	pruning.Go(func() { pruneLoop(pruneCtx, st, time.Duration(cfg.Retention.PruneInterval), log) })
-	daily := &dailyScheduler{archive: archive, lists: st, loc: loc, now: env.clock(), after: time.After, log: log.With("component", "reports")}
-	pruning.Go(func() { daily.run(pruneCtx) })
+	daily := &report.Freezer{Archive: archive, Lists: st, Location: loc, Now: env.clock(), Logger: log.With("component", "reports")}
+	pruning.Go(func() { daily.Run(pruneCtx) })
 
 	select {
 	case <-ctx.Done():

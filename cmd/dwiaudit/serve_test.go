@@ -27,6 +27,7 @@ import (
 	"time"
 
 	"dwiaudit/audit/synth"
+	"dwiaudit/audit/web"
 	"dwiaudit/scp"
 	"dwiaudit/scp/dimse"
 	"dwiaudit/scp/part10"
@@ -567,7 +568,7 @@ func TestServeEnforcesPeersAndTheirNetworks(t *testing.T) {
 		if rsp, err := storeOne(t, n.dicomAddr, "QOH_MR2", in, in.reader()); err != nil || rsp.Status != dimse.StatusSuccess {
 			t.Fatalf("status %v, release %v", rsp.Status, err)
 		}
-		var got StudiesResponse
+		var got web.StudiesResponse
 		getJSON(t, n.httpURL+"/api/v1/studies", &got)
 		if len(got.Studies) != 1 || len(got.Studies[0].Series) != 1 || got.Studies[0].Series[0].Scanner != "qoh-mr2-3t" {
 			t.Errorf("studies %+v", got)
@@ -578,7 +579,7 @@ func TestServeEnforcesPeersAndTheirNetworks(t *testing.T) {
 func TestServeHoldsItsDataFolder(t *testing.T) {
 	dir := t.TempDir()
 	n := startNode(t, dir)
-	var health healthBody
+	var health web.HealthBody
 	if code := getJSON(t, n.httpURL+"/readyz", &health); code != http.StatusOK || health.Status != "ready" {
 		t.Errorf("readyz %d %+v", code, health)
 	}
@@ -618,7 +619,7 @@ func wantStudies(sent []sentSeries) map[string]map[string]int {
 }
 
 // gotStudies is the same for a study list.
-func gotStudies(r StudiesResponse) map[string]map[string]int {
+func gotStudies(r web.StudiesResponse) map[string]map[string]int {
 	out := map[string]map[string]int{}
 	for _, st := range r.Studies {
 		out[st.StudyInstanceUID] = map[string]int{}
@@ -684,7 +685,7 @@ func TestStorescuToServeShowsUpInStudiesAndTheAPI(t *testing.T) {
 		t.Fatalf("storescu: %v\n%s", err, out)
 	}
 
-	var api StudiesResponse
+	var api web.StudiesResponse
 	if code := getJSON(t, n.httpURL+"/api/v1/studies", &api); code != http.StatusOK {
 		t.Fatalf("GET /api/v1/studies: %d", code)
 	}
@@ -692,14 +693,14 @@ func TestStorescuToServeShowsUpInStudiesAndTheAPI(t *testing.T) {
 		t.Errorf("/api/v1/studies shows %v, want %v", got, want)
 	}
 	today := time.Now().Format(dayLayout)
-	var daily StudiesResponse
+	var daily web.StudiesResponse
 	getJSON(t, n.httpURL+"/api/v1/studies?day="+today, &daily)
 	if got := gotStudies(daily); !sameStudies(got, want) {
 		t.Errorf("/api/v1/studies?day=%s shows %v, want %v", today, got, want)
 	}
 
 	fromServer := runCLI(t, "studies", "--server", n.httpURL, "--format", "json")
-	var viaServer StudiesResponse
+	var viaServer web.StudiesResponse
 	if fromServer.code != exitOK || json.Unmarshal([]byte(fromServer.stdout), &viaServer) != nil {
 		t.Fatalf("studies --server: exit %d", fromServer.code)
 	}
@@ -721,7 +722,7 @@ func TestStorescuToServeShowsUpInStudiesAndTheAPI(t *testing.T) {
 		t.Fatalf("exit code %d after SIGTERM", code)
 	}
 	fromFolder := runCLI(t, "studies", "--data", dir, "--format", "json")
-	var viaFolder StudiesResponse
+	var viaFolder web.StudiesResponse
 	if fromFolder.code != exitOK || json.Unmarshal([]byte(fromFolder.stdout), &viaFolder) != nil {
 		t.Fatalf("studies --data: exit %d", fromFolder.code)
 	}
@@ -765,10 +766,10 @@ func TestStudiesListsWhatTheNodeStored(t *testing.T) {
 	today := time.Now().Format(dayLayout)
 	other := time.Now().AddDate(0, 0, -3).Format(dayLayout)
 
-	list := func(t *testing.T, args ...string) StudiesResponse {
+	list := func(t *testing.T, args ...string) web.StudiesResponse {
 		t.Helper()
 		r := runCLI(t, append([]string{"studies", "--format", "json"}, args...)...)
-		var got StudiesResponse
+		var got web.StudiesResponse
 		if r.code != exitOK || json.Unmarshal([]byte(r.stdout), &got) != nil {
 			t.Fatalf("studies %q: exit %d", args, r.code)
 		}

@@ -9,11 +9,11 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"net/http"
 	"net/url"
-	"strings"
 	"time"
 
+	"dwiaudit/audit/web"
+	"dwiaudit/config"
 	"dwiaudit/store"
 )
 
@@ -22,15 +22,11 @@ const (
 	// studiesHTTPTimeout bounds the request to a server: the list is an
 	// index read, and a server that takes longer is not answering.
 	studiesHTTPTimeout = 30 * time.Second
-
-	// maxStudiesResponse bounds the body read from a server: a year of a
-	// busy node is tens of thousands of series, a few tens of MiB.
-	maxStudiesResponse = 256 << 20
 )
 
 func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 	fs := newFlagSet(env, "studies", "[--data DIR | --server URL] [--day YYYY-MM-DD] [--format text|json]")
-	data := fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+defaultDataDir+")")
+	data := fs.String("data", "", "read the data folder DIR directly (read-only; default node.data_dir, "+config.DefaultDataDir+")")
 	server := fs.String("server", "", "ask a running dwiaudit serve at URL, e.g. http://127.0.0.1:8080")
 	configPath := fs.String("config", "", "take the data folder, time zone and HTTP address from this configuration file")
 	day := fs.String("day", "", "only studies with an instance received on this day, YYYY-MM-DD in the node's time zone")
@@ -57,16 +53,16 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 		fmt.Fprintf(env.stderr, "dwiaudit studies: --format %q: use text or json\n", *format)
 		return exitUsage
 	}
-	cfg := DefaultConfig()
+	cfg := config.Default()
 	var err error
 	if *configPath != "" {
-		if cfg, err = LoadConfigFile(*configPath); err != nil {
+		if cfg, err = config.LoadFile(*configPath); err != nil {
 			fmt.Fprintln(env.stderr, "dwiaudit studies:", err)
 			return exitUsage
 		}
 	}
 
-	var resp StudiesResponse
+	var resp web.StudiesResponse
 	if *server != "" {
 		resp, err = studiesFromServer(ctx, *server, *day)
 	} else {
@@ -94,77 +90,52 @@ func runStudies(ctx context.Context, env *cliEnv, args []string) int {
 
 // studiesFromFolder opens the data folder read-only. A running server
 // holds the index locked; then the answer is to ask it.
-func studiesFromFolder(dir, day string, cfg Config) (StudiesResponse, error) {
-	loc, err := loadLocation(cfg.Node.TimeZone)
+func studiesFromFolder(dir, day string, cfg config.Config) (web.StudiesResponse, error) {
+	loc, err := config.LoadLocation(cfg.Node.TimeZone)
 	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("node.time_zone: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("node.time_zone: %w", err)
 	}
 	st, err := store.Open(store.Options{Dir: dir, ReadOnly: true, Location: loc})
 	switch {
 	case errors.Is(err, store.ErrLocked):
-		return StudiesResponse{}, fmt.Errorf("a running dwiaudit serve holds the data folder %s; ask it instead: dwiaudit studies --server http://%s", dir, cfg.Node.HTTPListen)
+		return web.StudiesResponse{}, fmt.Errorf("a running dwiaudit serve holds the data folder %s; ask it instead: dwiaudit studies --server http://%s", dir, cfg.Node.HTTPListen)
 	case errors.Is(err, store.ErrNoIndex):
-		return StudiesResponse{}, fmt.Errorf("nothing is stored in %s (no index there; is it the data folder?)", dir)
+		return web.StudiesResponse{}, fmt.Errorf("nothing is stored in %s (no index there; is it the data folder?)", dir)
 	case err != nil:
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
 	defer st.Close()
 	list, err := st.Studies(day)
 	if err != nil {
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
-	return studiesBody(day, list, loc), nil
+	return web.StudiesBody(day, list, loc), nil
 }
 
 // studiesFromServer asks GET /api/v1/studies of a running node.
-func studiesFromServer(ctx context.Context, server, day string) (StudiesResponse, error) {
-	if !strings.Contains(server, "://") {
-		server = "http://" + server
+func studiesFromServer(ctx context.Context, server, day string) (web.StudiesResponse, error) {
+	tok, err := clientToken()
+	if err != nil {
+		return web.StudiesResponse{}, err
 	}
-	u, err := url.Parse(server)
-	if err != nil || u.Host == "" {
-		return StudiesResponse{}, fmt.Errorf("--server %q is not a URL such as http://127.0.0.1:8080", server)
-	}
-	u = u.JoinPath("api", "v1", "studies")
+	q := url.Values{}
 	if day != "" {
-		u.RawQuery = url.Values{"day": {day}}.Encode()
+		q.Set("day", day)
 	}
-	ctx, cancel := context.WithTimeout(ctx, studiesHTTPTimeout)
-	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u.String(), nil)
+	body, err := web.Client{Server: server, Token: tok, Timeout: studiesHTTPTimeout}.Get(ctx, q, "api", "v1", "studies")
 	if err != nil {
-		return StudiesResponse{}, err
+		return web.StudiesResponse{}, err
 	}
-	req.Header.Set("Accept", "application/json")
-	if err := clientAuth(req); err != nil {
-		return StudiesResponse{}, err
-	}
-	res, err := http.DefaultClient.Do(req)
-	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("asking the server: %w", err)
-	}
-	defer res.Body.Close()
-	body, err := io.ReadAll(io.LimitReader(res.Body, maxStudiesResponse))
-	if err != nil {
-		return StudiesResponse{}, fmt.Errorf("reading the server's answer: %w", err)
-	}
-	if res.StatusCode != http.StatusOK {
-		var e errorBody
-		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			return StudiesResponse{}, fmt.Errorf("server answered %s: %s", res.Status, e.Error)
-		}
-		return StudiesResponse{}, fmt.Errorf("server answered %s", res.Status)
-	}
-	var out StudiesResponse
+	var out web.StudiesResponse
 	if err := json.Unmarshal(body, &out); err != nil {
-		return StudiesResponse{}, fmt.Errorf("the server's answer is not a study list: %w", err)
+		return web.StudiesResponse{}, fmt.Errorf("the server's answer is not a study list: %w", err)
 	}
 	return out, nil
 }
 
 // printStudies writes the list for people: a line per study, an indented
 // line per series, a total.
-func printStudies(w io.Writer, r StudiesResponse) {
+func printStudies(w io.Writer, r web.StudiesResponse) {
 	const tf = "2006-01-02 15:04:05 MST"
 	for _, st := range r.Studies {
 		fmt.Fprintf(w, "study %s", st.StudyInstanceUID)

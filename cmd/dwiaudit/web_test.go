@@ -2,19 +2,17 @@ package main
 
 import (
 	"bytes"
-	"errors"
-	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"os"
 	"path/filepath"
-	"reflect"
 	"strings"
 	"testing"
 	"time"
 
 	"golang.org/x/crypto/bcrypt"
 
+	"dwiaudit/config"
 	"dwiaudit/store"
 	"dwiaudit/store/storetest"
 )
@@ -42,59 +40,6 @@ func cheapHash(t *testing.T, pass string) string {
 	return string(h)
 }
 
-func TestHTTPAuthConfigProblemsNameTheirFields(t *testing.T) {
-	good := tokenFile(t, testToken+"\n")
-	hash := cheapHash(t, "quellvander")
-	tests := []struct {
-		name   string
-		listen string
-		auth   HTTPAuthConfig
-		want   []string // problem prefixes; none for a valid configuration
-	}{
-		{"loopback IPv4 runs without authentication", "127.0.0.1:8080", HTTPAuthConfig{}, nil},
-		{"loopback IPv6 runs without authentication", "[::1]:8080", HTTPAuthConfig{}, nil},
-		{"localhost runs without authentication", "localhost:8080", HTTPAuthConfig{}, nil},
-		{"every interface without authentication is refused", "0.0.0.0:8080", HTTPAuthConfig{}, []string{"http_auth: node.http_listen \"0.0.0.0:8080\" is reachable from other machines"}},
-		{"an empty host without authentication is refused", ":8080", HTTPAuthConfig{}, []string{"http_auth: node.http_listen \":8080\""}},
-		{"a LAN address without authentication is refused", "10.20.0.5:8080", HTTPAuthConfig{}, []string{"http_auth:"}},
-		{"allow_unauthenticated accepts the risk explicitly", "0.0.0.0:8080", HTTPAuthConfig{AllowUnauthenticated: true}, nil},
-		{"a token file protects a non-loopback listener", "0.0.0.0:8080", HTTPAuthConfig{BearerTokenFile: good}, nil},
-		{"users protect a non-loopback listener", "0.0.0.0:8080", HTTPAuthConfig{Users: []HTTPUserConfig{{Name: "physics", PasswordHash: hash}}}, nil},
-		{"a missing token file is named", "127.0.0.1:8080", HTTPAuthConfig{BearerTokenFile: filepath.Join(t.TempDir(), "absent")}, []string{"http_auth.bearer_token_file:"}},
-		{"an empty token file is named", "127.0.0.1:8080", HTTPAuthConfig{BearerTokenFile: tokenFile(t, " \n")}, []string{"http_auth.bearer_token_file:"}},
-		{"a short token is named", "127.0.0.1:8080", HTTPAuthConfig{BearerTokenFile: tokenFile(t, "short")}, []string{"http_auth.bearer_token_file:"}},
-		{"every user problem is listed at once", "0.0.0.0:8080", HTTPAuthConfig{Users: []HTTPUserConfig{
-			{Name: "", PasswordHash: hash},
-			{Name: "a:b", PasswordHash: hash},
-			{Name: "physics", PasswordHash: "plain-text"},
-			{Name: "physics", PasswordHash: hash},
-		}}, []string{"http_auth.users[0].name: empty", "http_auth.users[1].name:", "http_auth.users[2].password_hash: not a bcrypt hash", "http_auth.users[3].name: duplicate"}},
-	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			c := DefaultConfig()
-			c.Node.HTTPListen = tt.listen
-			c.HTTPAuth = tt.auth
-			err := c.Validate()
-			var ce *ConfigError
-			if tt.want == nil {
-				if err != nil {
-					t.Fatalf("Validate = %v, want no problem", err)
-				}
-				return
-			}
-			if !errors.As(err, &ce) || len(ce.Problems) != len(tt.want) {
-				t.Fatalf("Validate = %v, want %d problem(s) %q", err, len(tt.want), tt.want)
-			}
-			for i, w := range tt.want {
-				if !strings.HasPrefix(ce.Problems[i], w) {
-					t.Errorf("problem %d = %q, want prefix %q", i, ce.Problems[i], w)
-				}
-			}
-		})
-	}
-}
-
 func TestServeOnANonLoopbackAddressWithoutAuthenticationExitsTwo(t *testing.T) {
 	r := runCLI(t, "serve", "--data", t.TempDir(), "--listen", "127.0.0.1:0", "--http", "0.0.0.0:0")
 	if r.code != exitUsage || !strings.Contains(r.stderr, "http_auth: node.http_listen \"0.0.0.0:0\" is reachable from other machines") ||
@@ -103,60 +48,24 @@ func TestServeOnANonLoopbackAddressWithoutAuthenticationExitsTwo(t *testing.T) {
 	}
 }
 
-func TestExampleHTTPAuthSectionIsTheDefaultAndItsUserParses(t *testing.T) {
-	path := filepath.Join("..", "..", "deploy", "dwiaudit.example.yaml")
-	c, err := LoadConfigFile(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	// An empty list in the file is no users, as the default's nil.
-	got := c.HTTPAuth
-	if len(got.Users) == 0 {
-		got.Users = nil
-	}
-	if d := DefaultConfig().HTTPAuth; !reflect.DeepEqual(got, d) {
-		t.Errorf("the example's http_auth differs from the default:\n got %+v\nwant %+v", c.HTTPAuth, d)
-	}
-	b, err := os.ReadFile(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	text := strings.Replace(string(b), "  users: []\n  # - {", "  users:\n    - {", 1)
-	text = strings.Replace(text, `http_listen: "127.0.0.1:8080"`, `http_listen: "0.0.0.0:8080"`, 1)
-	c, err = ParseConfig(path, []byte(text))
-	if err != nil {
-		t.Fatalf("with the example user uncommented on a non-loopback address: %v", err)
-	}
-	if len(c.HTTPAuth.Users) != 1 || c.HTTPAuth.Users[0].Name != "physics" {
-		t.Errorf("users %+v", c.HTTPAuth.Users)
-	}
-}
-
-// authTestHandler is the serve handler (pages and API behind the access
-// control) over a real store in a temporary folder.
-func authTestHandler(t *testing.T, listen string, auth HTTPAuthConfig) http.Handler {
+func authTestHandler(t *testing.T, listen string, auth config.HTTPAuth) http.Handler {
 	t.Helper()
 	st, _ := storetest.Open(t, store.Options{Location: time.UTC, Describe: describeInstance})
-	cfg := DefaultConfig()
+	cfg := config.Default()
 	cfg.Node.HTTPListen = listen
 	cfg.HTTPAuth = auth
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	log := slog.New(slog.DiscardHandler)
-	pages, err := newWebPages(cfg, st, time.UTC, log)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return pages.handler(newAPI(st, time.UTC, func() bool { return true }, log))
+	return testHTTPHandler(t, cfg, st, cfg.Reports.Archive(st, time.UTC, time.Now))
 }
 
 func TestAccessControl(t *testing.T) {
-	open := authTestHandler(t, "127.0.0.1:8080", HTTPAuthConfig{})
+	open := authTestHandler(t, "127.0.0.1:8080", config.HTTPAuth{})
 	hash := cheapHash(t, "quell-vander-pass")
-	guarded := authTestHandler(t, "0.0.0.0:8080", HTTPAuthConfig{
+	guarded := authTestHandler(t, "0.0.0.0:8080", config.HTTPAuth{
 		BearerTokenFile: tokenFile(t, testToken),
-		Users:           []HTTPUserConfig{{Name: "physics", PasswordHash: hash}},
+		Users:           []config.HTTPUser{{Name: "physics", PasswordHash: hash}},
 	})
 	type req struct {
 		path   string
@@ -225,8 +134,8 @@ func TestHashPasswordPrintsAHashTheConfigurationAccepts(t *testing.T) {
 	if err := bcrypt.CompareHashAndPassword([]byte(hash), []byte("quell-vander-pass")); err != nil {
 		t.Fatalf("hash %q does not match the password: %v", hash, err)
 	}
-	c := DefaultConfig()
-	c.HTTPAuth.Users = []HTTPUserConfig{{Name: "physics", PasswordHash: hash}}
+	c := config.Default()
+	c.HTTPAuth.Users = []config.HTTPUser{{Name: "physics", PasswordHash: hash}}
 	if err := c.Validate(); err != nil {
 		t.Errorf("the printed hash is refused: %v", err)
 	}

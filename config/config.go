@@ -1,7 +1,10 @@
-package main
-
-// The node's configuration: one YAML file, every field optional, decoded
-// over DefaultConfig so that `dwiaudit serve` runs without any file.
+// Package config is the node's configuration: one YAML file, every
+// field optional, decoded over Default so that `dwiaudit serve` runs
+// without any file; Validate lists every problem with its field (and,
+// for a file, its line); and the mapping of the sections to the
+// options of the audit engine (Audit.Engine), the DICOM acceptor
+// (PeerTable) and the reports.
+package config
 
 import (
 	"bytes"
@@ -30,11 +33,11 @@ import (
 
 // Defaults of the configuration (README, issue 3).
 const (
-	defaultDataDir     = "./dwiaudit-data"
-	defaultDICOMListen = ":11112" // the registered DICOM port (PS3.8 G.1, from memory)
-	// defaultHTTPListen is loopback: the API is unauthenticated, so
+	DefaultDataDir     = "./dwiaudit-data"
+	DefaultDICOMListen = ":11112" // the registered DICOM port (PS3.8 G.1, from memory)
+	// DefaultHTTPListen is loopback: the API is unauthenticated, so
 	// opening it to the network is a decision for whoever deploys it.
-	defaultHTTPListen = "127.0.0.1:8080"
+	DefaultHTTPListen = "127.0.0.1:8080"
 	defaultTimeZone   = "Local"
 
 	// defaultDiskFloor keeps room for the index, the logs and the
@@ -84,18 +87,18 @@ var scannerLabelPattern = regexp.MustCompile(`^[a-z0-9][a-z0-9._-]*$`)
 
 // Config is the whole configuration file.
 type Config struct {
-	Node      NodeConfig      `yaml:"node"`
-	Peers     []PeerConfig    `yaml:"peers"`
-	Limits    LimitsConfig    `yaml:"limits"`
-	Retention RetentionConfig `yaml:"retention"`
-	Log       LogConfig       `yaml:"log"`
-	Audit     AuditConfig     `yaml:"audit"`
-	HTTPAuth  HTTPAuthConfig  `yaml:"http_auth"`
-	Reports   ReportsConfig   `yaml:"reports"`
+	Node      Node      `yaml:"node"`
+	Peers     []Peer    `yaml:"peers"`
+	Limits    Limits    `yaml:"limits"`
+	Retention Retention `yaml:"retention"`
+	Log       Log       `yaml:"log"`
+	Audit     Audit     `yaml:"audit"`
+	HTTPAuth  HTTPAuth  `yaml:"http_auth"`
+	Reports   Reports   `yaml:"reports"`
 }
 
-// NodeConfig is who and where the node is.
-type NodeConfig struct {
+// Node is who and where the node is.
+type Node struct {
 	AETitle     string `yaml:"ae_title"`     // our AE title; the called AE title must match it
 	DICOMListen string `yaml:"dicom_listen"` // host:port of the DICOM acceptor
 	HTTPListen  string `yaml:"http_listen"`  // host:port of the HTTP API and health checks
@@ -103,8 +106,8 @@ type NodeConfig struct {
 	TimeZone    string `yaml:"time_zone"`    // IANA name, "Local" or "UTC": what a receive day is
 }
 
-// PeerConfig is one calling AE title allowed to associate.
-type PeerConfig struct {
+// Peer is one calling AE title allowed to associate.
+type Peer struct {
 	AETitle string `yaml:"ae_title"`
 	// Scanner is the label the node uses for the peer in metrics and
 	// reports.
@@ -115,8 +118,8 @@ type PeerConfig struct {
 	Networks []string `yaml:"networks"`
 }
 
-// LimitsConfig bounds what peers can make the node do.
-type LimitsConfig struct {
+// Limits bounds what peers can make the node do.
+type Limits struct {
 	MaxAssociations int      `yaml:"max_associations"`
 	MaxPDULength    ByteSize `yaml:"max_pdu_length"` // the Maximum Length we advertise (PS3.8 D.1)
 	ARTIMTimeout    Duration `yaml:"artim_timeout"`  // PS3.8 9.1.5
@@ -127,30 +130,30 @@ type LimitsConfig struct {
 	DiskFloor ByteSize `yaml:"disk_floor"`
 }
 
-// RetentionConfig says how long instance files are kept.
-type RetentionConfig struct {
+// Retention says how long instance files are kept.
+type Retention struct {
 	InstanceFiles Duration `yaml:"instance_files"`
 	PruneInterval Duration `yaml:"prune_interval"`
 }
 
-// LogConfig shapes the log.
-type LogConfig struct {
+// Log shapes the log.
+type Log struct {
 	Level  LogLevel  `yaml:"level"`
 	Format LogFormat `yaml:"format"`
 }
 
-// DefaultConfig returns the configuration `dwiaudit serve` runs on
+// Default returns the configuration `dwiaudit serve` runs on
 // without a file. Each call returns a fresh value.
-func DefaultConfig() Config {
+func Default() Config {
 	return Config{
-		Node: NodeConfig{
+		Node: Node{
 			AETitle:     scp.DefaultAETitle,
-			DICOMListen: defaultDICOMListen,
-			HTTPListen:  defaultHTTPListen,
-			DataDir:     defaultDataDir,
+			DICOMListen: DefaultDICOMListen,
+			HTTPListen:  DefaultHTTPListen,
+			DataDir:     DefaultDataDir,
 			TimeZone:    defaultTimeZone,
 		},
-		Limits: LimitsConfig{
+		Limits: Limits{
 			MaxAssociations: scp.DefaultMaxAssociations,
 			MaxPDULength:    scp.DefaultMaxPDULength,
 			ARTIMTimeout:    Duration(scp.DefaultARTIMTimeout),
@@ -158,24 +161,24 @@ func DefaultConfig() Config {
 			WriteTimeout:    Duration(scp.DefaultWriteTimeout),
 			DiskFloor:       defaultDiskFloor,
 		},
-		Retention: RetentionConfig{
+		Retention: Retention{
 			InstanceFiles: Duration(defaultRetention),
 			PruneInterval: Duration(defaultPruneInterval),
 		},
-		Log:     LogConfig{Level: LogLevel(slog.LevelInfo), Format: LogText},
-		Audit:   DefaultAuditConfig(),
-		Reports: defaultReportsConfig(),
+		Log:     Log{Level: LogLevel(slog.LevelInfo), Format: LogText},
+		Audit:   defaultAudit(),
+		Reports: defaultReports(),
 	}
 }
 
-// ConfigError lists every problem found in a configuration. Each problem
+// Error lists every problem found in a configuration. Each problem
 // names its field path, e.g. "limits.max_pdu_length: 1024 is below 4096".
-type ConfigError struct {
+type Error struct {
 	File     string // the file the configuration came from; "" for flags and defaults
 	Problems []string
 }
 
-func (e *ConfigError) Error() string {
+func (e *Error) Error() string {
 	src := "configuration"
 	if e.File != "" {
 		src = e.File
@@ -184,7 +187,7 @@ func (e *ConfigError) Error() string {
 }
 
 // Validate reports every problem of c at once, or nil. The error is a
-// *ConfigError.
+// *Error.
 func (c Config) Validate() error {
 	var p problems
 
@@ -197,7 +200,7 @@ func (c Config) Validate() error {
 	if n.DataDir == "" {
 		p.addf("node.data_dir", "empty")
 	}
-	if _, err := loadLocation(n.TimeZone); err != nil {
+	if _, err := LoadLocation(n.TimeZone); err != nil {
 		p.addf("node.time_zone", "%v", err)
 	}
 
@@ -281,11 +284,11 @@ func (p problems) err(file string) error {
 	if len(p) == 0 {
 		return nil
 	}
-	return &ConfigError{File: file, Problems: slices.Clone(p)}
+	return &Error{File: file, Problems: slices.Clone(p)}
 }
 
-// loadLocation is time.LoadLocation with an error that says what to do.
-func loadLocation(name string) (*time.Location, error) {
+// LoadLocation is time.LoadLocation with an error that says what to do.
+func LoadLocation(name string) (*time.Location, error) {
 	if name == "" {
 		return nil, errors.New(`empty; use an IANA name such as "Europe/London", "Local" or "UTC"`)
 	}
@@ -300,10 +303,10 @@ func loadLocation(name string) (*time.Location, error) {
 // few kilobytes, and a YAML alias bomb should not get a chance.
 const maxConfigFileSize = 1 << 20
 
-// LoadConfigFile reads a configuration file over DefaultConfig and
+// LoadFile reads a configuration file over Default and
 // validates it. Every problem, of YAML syntax, unknown keys, types or
-// values, comes back in one *ConfigError.
-func LoadConfigFile(path string) (Config, error) {
+// values, comes back in one *Error.
+func LoadFile(path string) (Config, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return Config{}, err
@@ -314,19 +317,19 @@ func LoadConfigFile(path string) (Config, error) {
 		return Config{}, err
 	}
 	if len(b) > maxConfigFileSize {
-		return Config{}, &ConfigError{File: path, Problems: []string{fmt.Sprintf("larger than %v", ByteSize(maxConfigFileSize))}}
+		return Config{}, &Error{File: path, Problems: []string{fmt.Sprintf("larger than %v", ByteSize(maxConfigFileSize))}}
 	}
-	return ParseConfig(path, b)
+	return Parse(path, b)
 }
 
-// ParseConfig decodes YAML over DefaultConfig and validates the result.
+// Parse decodes YAML over Default and validates the result.
 // Unknown keys are errors (a misspelt key would otherwise silently keep
 // its default). name labels the errors.
-func ParseConfig(name string, b []byte) (Config, error) {
-	c := DefaultConfig()
+func Parse(name string, b []byte) (Config, error) {
+	c := Default()
 	var root yaml.Node
 	if err := yaml.Unmarshal(b, &root); err != nil {
-		return c, &ConfigError{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
+		return c, &Error{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
 	}
 	if len(root.Content) == 0 {
 		// An empty file, or comments only: the defaults.
@@ -338,19 +341,74 @@ func ParseConfig(name string, b []byte) (Config, error) {
 	if err := dec.Decode(&c); err != nil {
 		var te *yaml.TypeError
 		if !errors.As(err, &te) {
-			return c, &ConfigError{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
+			return c, &Error{File: name, Problems: []string{strings.TrimPrefix(err.Error(), "yaml: ")}}
 		}
 		idx := indexFields(&root)
 		for _, msg := range te.Errors {
 			p = append(p, idx.describe(msg))
 		}
 	}
-	// Validate what did decode too, so one run lists every problem.
-	var verr *ConfigError
+	// Validate what did decode too, so one run lists every problem,
+	// each with the line of its field when the file sets it.
+	var verr *Error
 	if err := c.Validate(); errors.As(err, &verr) {
-		p = append(p, verr.Problems...)
+		lines := indexFields(&root).lines()
+		for _, pr := range verr.Problems {
+			field, _, _ := strings.Cut(pr, ": ")
+			if n, ok := lines[field]; ok {
+				pr = fmt.Sprintf("%s (line %d)", pr, n)
+			}
+			p = append(p, pr)
+		}
 	}
 	return c, p.err(name)
+}
+
+// lineSuffix is the " (line N)" Parse puts after a problem.
+var lineSuffix = regexp.MustCompile(` \(line \d+\)$`)
+
+// Load reads the file at path over Default (without a path, the
+// defaults), applies set (the command line's overrides, which return
+// problems of their own) and validates the result. Every problem, of
+// the file (with its line), of set, and of the values set changed,
+// comes back once in one *Error.
+func Load(path string, set func(*Config) []string) (Config, error) {
+	c := Default()
+	var found []string
+	if path != "" {
+		var err error
+		c, err = LoadFile(path)
+		var ce *Error
+		switch {
+		case errors.As(err, &ce):
+			found = append(found, ce.Problems...)
+		case err != nil:
+			return c, err
+		}
+	}
+	var setProblems []string
+	if set != nil {
+		setProblems = set(&c)
+	}
+	// Validate again with the overrides applied; the file's own value
+	// problems are already listed, with their lines.
+	seen := map[string]bool{}
+	for _, pr := range found {
+		seen[lineSuffix.ReplaceAllString(pr, "")] = true
+	}
+	var ce *Error
+	if err := c.Validate(); errors.As(err, &ce) {
+		for _, pr := range ce.Problems {
+			if !seen[pr] {
+				found = append(found, pr)
+			}
+		}
+	}
+	found = append(found, setProblems...)
+	if len(found) > 0 {
+		return c, &Error{File: path, Problems: found}
+	}
+	return c, nil
 }
 
 // fieldIndex maps the lines of a YAML document to the field paths on
@@ -361,6 +419,19 @@ type fieldAt struct {
 	path  string // e.g. "peers[1].ae_title"
 	key   string // the last key, e.g. "ae_title"
 	value string // the scalar value, if any
+}
+
+// lines maps each field path to the line where its key is.
+func (idx fieldIndex) lines() map[string]int {
+	out := map[string]int{}
+	for line, fields := range idx {
+		for _, f := range fields {
+			if n, ok := out[f.path]; !ok || line < n {
+				out[f.path] = line
+			}
+		}
+	}
+	return out
 }
 
 func indexFields(root *yaml.Node) fieldIndex {
@@ -510,9 +581,9 @@ func (s ByteSize) String() string {
 	return strconv.FormatUint(uint64(s), 10)
 }
 
-// ParseByteSize parses a whole number of bytes with an optional suffix
+// parseByteSize parses a whole number of bytes with an optional suffix
 // B, KiB, MiB, GiB or TiB.
-func ParseByteSize(s string) (ByteSize, error) {
+func parseByteSize(s string) (ByteSize, error) {
 	t := strings.TrimSpace(s)
 	mult := uint64(1)
 	for _, u := range byteUnits {
@@ -528,9 +599,9 @@ func ParseByteSize(s string) (ByteSize, error) {
 	return ByteSize(n * mult), nil
 }
 
-// UnmarshalText parses like ParseByteSize.
+// UnmarshalText parses like parseByteSize.
 func (s *ByteSize) UnmarshalText(b []byte) error {
-	v, err := ParseByteSize(string(b))
+	v, err := parseByteSize(string(b))
 	if err != nil {
 		return err
 	}
@@ -538,13 +609,13 @@ func (s *ByteSize) UnmarshalText(b []byte) error {
 	return nil
 }
 
-// UnmarshalYAML parses like ParseByteSize.
+// UnmarshalYAML parses like parseByteSize.
 func (s *ByteSize) UnmarshalYAML(n *yaml.Node) error {
 	t, err := scalar(n)
 	if err != nil {
 		return err
 	}
-	v, err := ParseByteSize(t)
+	v, err := parseByteSize(t)
 	if err != nil {
 		return typeError(n, "not a size such as 262144, 256KiB or 2GiB")
 	}
@@ -609,8 +680,8 @@ func (f LogFormat) String() string {
 	return fmt.Sprintf("LogFormat(%d)", int(f))
 }
 
-// ParseLogFormat parses "text" or "json".
-func ParseLogFormat(s string) (LogFormat, error) {
+// parseLogFormat parses "text" or "json".
+func parseLogFormat(s string) (LogFormat, error) {
 	switch s {
 	case "text":
 		return LogText, nil
@@ -622,7 +693,7 @@ func ParseLogFormat(s string) (LogFormat, error) {
 
 // UnmarshalText parses "text" or "json".
 func (f *LogFormat) UnmarshalText(b []byte) error {
-	v, err := ParseLogFormat(string(b))
+	v, err := parseLogFormat(string(b))
 	if err != nil {
 		return err
 	}
@@ -636,7 +707,7 @@ func (f *LogFormat) UnmarshalYAML(n *yaml.Node) error {
 	if err != nil {
 		return err
 	}
-	v, err := ParseLogFormat(s)
+	v, err := parseLogFormat(s)
 	if err != nil {
 		return typeError(n, "not a log format: use text or json")
 	}
@@ -647,8 +718,8 @@ func (f *LogFormat) UnmarshalYAML(n *yaml.Node) error {
 // MarshalYAML writes the String form.
 func (f LogFormat) MarshalYAML() (any, error) { return f.String(), nil }
 
-// newLogger builds the node's logger from the log configuration.
-func newLogger(w io.Writer, c LogConfig) *slog.Logger {
+// NewLogger builds the node's logger from the log configuration.
+func NewLogger(w io.Writer, c Log) *slog.Logger {
 	opts := &slog.HandlerOptions{Level: slog.Level(c.Level)}
 	if c.Format == LogJSON {
 		return slog.New(slog.NewJSONHandler(w, opts))
@@ -656,11 +727,11 @@ func newLogger(w io.Writer, c LogConfig) *slog.Logger {
 	return slog.New(slog.NewTextHandler(w, opts))
 }
 
-// peerTable answers the questions the acceptor and the ingest adapter
+// PeerTable answers the questions the acceptor and the ingest adapter
 // ask about peers: may this calling AE title associate from that
 // address, and which scanner label does it carry.
-type peerTable struct {
-	byAE map[string]peerEntry // calling AE title, trimmed -> entry; read-only after newPeerTable
+type PeerTable struct {
+	byAE map[string]peerEntry // calling AE title, trimmed -> entry; read-only after NewPeerTable
 }
 
 type peerEntry struct {
@@ -668,9 +739,9 @@ type peerEntry struct {
 	networks []netip.Prefix // empty: any source address
 }
 
-// newPeerTable builds the table from validated peers.
-func newPeerTable(peers []PeerConfig) *peerTable {
-	t := &peerTable{byAE: make(map[string]peerEntry, len(peers))}
+// NewPeerTable builds the table from validated peers.
+func NewPeerTable(peers []Peer) *PeerTable {
+	t := &PeerTable{byAE: make(map[string]peerEntry, len(peers))}
 	for _, p := range peers {
 		e := peerEntry{scanner: p.Scanner}
 		for _, n := range p.Networks {
@@ -683,10 +754,10 @@ func newPeerTable(peers []PeerConfig) *peerTable {
 	return t
 }
 
-// callingAETitles lists the allowed calling AE titles for
+// CallingAETitles lists the allowed calling AE titles for
 // scp.Server.AllowedCallingAETitles; nil (any) when no peer is
 // configured.
-func (t *peerTable) callingAETitles() []string {
+func (t *PeerTable) CallingAETitles() []string {
 	if len(t.byAE) == 0 {
 		return nil
 	}
@@ -698,9 +769,9 @@ func (t *peerTable) callingAETitles() []string {
 	return out
 }
 
-// allow is scp.Server.AllowCalling: a peer with networks may associate
+// Allow is scp.Server.AllowCalling: a peer with networks may associate
 // only from inside one of them.
-func (t *peerTable) allow(callingAE string, remote net.Addr) bool {
+func (t *PeerTable) Allow(callingAE string, remote net.Addr) bool {
 	if len(t.byAE) == 0 {
 		return true
 	}
@@ -723,10 +794,28 @@ func (t *peerTable) allow(callingAE string, remote net.Addr) bool {
 	return slices.ContainsFunc(e.networks, func(p netip.Prefix) bool { return p.Contains(addr) })
 }
 
-// scanner returns the scanner label of a calling AE title; without a
+// Scanner returns the scanner label of a calling AE title; without a
 // configured peer it is "" (unknown scanner).
-func (t *peerTable) scanner(callingAE string) string {
+func (t *PeerTable) Scanner(callingAE string) string {
 	return t.byAE[strings.TrimSpace(callingAE)].scanner
+}
+
+// Acceptor is the DICOM acceptor of the configuration: our AE title,
+// the peers' allow-list (the returned table, which also gives each
+// peer's scanner label) and the limits. The caller sets its Handler,
+// OnAssociation and Logger.
+func (c Config) Acceptor() (*scp.Server, *PeerTable) {
+	peers := NewPeerTable(c.Peers)
+	return &scp.Server{
+		AETitle:                c.Node.AETitle,
+		AllowedCallingAETitles: peers.CallingAETitles(),
+		AllowCalling:           peers.Allow,
+		MaxAssociations:        c.Limits.MaxAssociations,
+		ARTIMTimeout:           time.Duration(c.Limits.ARTIMTimeout),
+		IdleTimeout:            time.Duration(c.Limits.IdleTimeout),
+		WriteTimeout:           time.Duration(c.Limits.WriteTimeout),
+		MaxPDULength:           uint32(c.Limits.MaxPDULength),
+	}, peers
 }
 
 // ---- The audit: section ----------------------------------------------
@@ -746,12 +835,12 @@ const (
 	// under, and the one test study ID the node knows without a file.
 	DefaultTestPatientID = "DWIAUDIT-SELFTEST"
 
-	// defaultSettle is how long a series must be quiet before it is
+	// DefaultSettle is how long a series must be quiet before it is
 	// audited: scanners send a series over one association in seconds,
 	// a PACS auto-route may pause between series for tens of seconds
 	// (common practice); 30 s audits a finished series soon after it
 	// ends without catching most series half sent.
-	defaultSettle = 30 * time.Second
+	DefaultSettle = 30 * time.Second
 	// minSettle: less than a second would audit series while their
 	// images are still arriving one C-STORE after another.
 	minSettle = time.Second
@@ -772,8 +861,8 @@ const (
 	maxPlausibleADC = 0.01
 )
 
-// AuditConfig is the audit: section.
-type AuditConfig struct {
+// Audit is the audit: section.
+type Audit struct {
 	// Settle is how long a series must receive no instance before it is
 	// audited (the pipeline); a later instance re-opens it.
 	Settle Duration `yaml:"settle"`
@@ -782,47 +871,47 @@ type AuditConfig struct {
 	// TestPatientIDs are Patient IDs (0010,0020) of test studies (the
 	// installation self-test sends one): audited like any other, but
 	// left out of compliance reports and drift metrics.
-	TestPatientIDs []string              `yaml:"test_patient_ids"`
-	Protocols      []ProtocolConfig      `yaml:"protocols"`
-	Phantoms       []PhantomConfig       `yaml:"phantoms"`
-	Rules          map[string]RuleConfig `yaml:"rules"`
-	Thresholds     rules.Thresholds      `yaml:"thresholds"`
-	PrivateSources []PrivateSourceConfig `yaml:"private_sources"`
-	Analysis       AnalysisSettings      `yaml:"analysis"`
+	TestPatientIDs []string         `yaml:"test_patient_ids"`
+	Protocols      []Protocol       `yaml:"protocols"`
+	Phantoms       []Phantom        `yaml:"phantoms"`
+	Rules          map[string]Rule  `yaml:"rules"`
+	Thresholds     rules.Thresholds `yaml:"thresholds"`
+	PrivateSources []PrivateSource  `yaml:"private_sources"`
+	Analysis       AnalysisSettings `yaml:"analysis"`
 }
 
-// MatchConfig selects series (rules.Match): any pattern of any list
+// Match selects series (rules.Match): any pattern of any list
 // matching selects the series. Patterns are Go regular expressions (RE2
 // syntax); body parts are compared whole, ignoring case.
-type MatchConfig struct {
+type Match struct {
 	SeriesDescription []string `yaml:"series_description"`
 	ProtocolName      []string `yaml:"protocol_name"`
 	BodyPart          []string `yaml:"body_part"`
 }
 
-// ProtocolConfig is one protocol (rules.Protocol).
-type ProtocolConfig struct {
-	Name            string      `yaml:"name"`
-	Match           MatchConfig `yaml:"match"`
-	BValues         []float64   `yaml:"bvalues"`          // s/mm²
-	BValueTolerance float64     `yaml:"bvalue_tolerance"` // s/mm²
-	LowestB         float64     `yaml:"lowest_b"`         // the "b0" of the protocol, s/mm²
-	MinDirections   int         `yaml:"min_directions"`
-	ParenchymaADC   []float64   `yaml:"parenchyma_adc"` // [low, high], mm²/s
-	Head            bool        `yaml:"head"`           // CSF and free-water checks apply
+// Protocol is one protocol (rules.Protocol).
+type Protocol struct {
+	Name            string    `yaml:"name"`
+	Match           Match     `yaml:"match"`
+	BValues         []float64 `yaml:"bvalues"`          // s/mm²
+	BValueTolerance float64   `yaml:"bvalue_tolerance"` // s/mm²
+	LowestB         float64   `yaml:"lowest_b"`         // the "b0" of the protocol, s/mm²
+	MinDirections   int       `yaml:"min_directions"`
+	ParenchymaADC   []float64 `yaml:"parenchyma_adc"` // [low, high], mm²/s
+	Head            bool      `yaml:"head"`           // CSF and free-water checks apply
 }
 
-// PhantomConfig is one phantom profile (rules.PhantomProfile).
-type PhantomConfig struct {
-	Name        string      `yaml:"name"`
-	Match       MatchConfig `yaml:"match"`
-	ExpectedADC float64     `yaml:"expected_adc"` // mm²/s
-	Tolerance   float64     `yaml:"tolerance"`    // relative, 0.036 for 3.6%
+// Phantom is one phantom profile (rules.PhantomProfile).
+type Phantom struct {
+	Name        string  `yaml:"name"`
+	Match       Match   `yaml:"match"`
+	ExpectedADC float64 `yaml:"expected_adc"` // mm²/s
+	Tolerance   float64 `yaml:"tolerance"`    // relative, 0.036 for 3.6%
 }
 
-// RuleConfig switches a rule off or sets the severity of its findings
+// Rule switches a rule off or sets the severity of its findings
 // (rules.RuleSettings); absent keys keep the rule's own choice.
-type RuleConfig struct {
+type Rule struct {
 	Enabled  *bool         `yaml:"enabled"`
 	Severity *SeverityName `yaml:"severity"`
 }
@@ -853,29 +942,29 @@ const severityUnreadable SeverityName = -1
 // MarshalYAML writes the name.
 func (s SeverityName) MarshalYAML() (any, error) { return rules.Severity(s).String(), nil }
 
-// PrivateSourceConfig is one private b-value source (header.PrivateSource):
+// PrivateSource is one private b-value source (header.PrivateSource):
 // the private creator string that reserves a block in an odd group, the
 // element's offset in that block (the low byte of (gggg,xxee)), how to
 // read it, which value, an offset to subtract and a scale to s/mm², and
 // optionally where the gradient direction is. A source overrides the
 // built-in maker readers; the standard attributes override both.
-type PrivateSourceConfig struct {
-	Name     string                `yaml:"name"`
-	Creator  string                `yaml:"creator"`
-	Group    HexUint16             `yaml:"group"`   // e.g. "0x0019"
-	Element  HexUint8              `yaml:"element"` // e.g. "0x0C"
-	Read     ValueKindName         `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
-	Index    int                   `yaml:"index"`
-	Scale    float64               `yaml:"scale"`    // 0 or absent means 1
-	Offset   float64               `yaml:"offset"`   // subtracted before scale, e.g. 1e9
-	Gradient *GradientSourceConfig `yaml:"gradient"` // absent: no direction from this source
+type PrivateSource struct {
+	Name     string          `yaml:"name"`
+	Creator  string          `yaml:"creator"`
+	Group    HexUint16       `yaml:"group"`   // e.g. "0x0019"
+	Element  HexUint8        `yaml:"element"` // e.g. "0x0C"
+	Read     ValueKindName   `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
+	Index    int             `yaml:"index"`
+	Scale    float64         `yaml:"scale"`    // 0 or absent means 1
+	Offset   float64         `yaml:"offset"`   // subtracted before scale, e.g. 1e9
+	Gradient *GradientSource `yaml:"gradient"` // absent: no direction from this source
 }
 
-// GradientSourceConfig is where a private source's scanner keeps the
+// GradientSource is where a private source's scanner keeps the
 // gradient direction (header.GradientSource): one element of three
 // values or three elements of one, in the block of creator (default:
 // the source's) in group (default: the source's).
-type GradientSourceConfig struct {
+type GradientSource struct {
 	Creator   string        `yaml:"creator"`
 	Group     HexUint16     `yaml:"group"`
 	Elements  []HexUint8    `yaml:"elements"` // e.g. ["0x0D"] or ["0xBB", "0xBC", "0xBD"]
@@ -965,18 +1054,18 @@ type AnalysisSettings struct {
 	FreeWaterCeiling float64 `yaml:"free_water_ceiling"` // mm²/s: no tissue diffuses faster
 }
 
-// DefaultAuditConfig is the audit section `dwiaudit serve` and `dwiaudit
+// defaultAudit is the audit section `dwiaudit serve` and `dwiaudit
 // check` run on without a file: the rules' defaults (rules.DefaultConfig),
 // the analysis' defaults, no private sources.
-func DefaultAuditConfig() AuditConfig {
+func defaultAudit() Audit {
 	rc := rules.DefaultConfig()
 	a := analysis.DefaultAnalyzeConfig()
-	c := AuditConfig{
-		Settle:         Duration(defaultSettle),
+	c := Audit{
+		Settle:         Duration(DefaultSettle),
 		Workers:        defaultAuditWorkers,
 		TestPatientIDs: []string{DefaultTestPatientID},
-		Rules:          map[string]RuleConfig{},
-		PrivateSources: []PrivateSourceConfig{},
+		Rules:          map[string]Rule{},
+		PrivateSources: []PrivateSource{},
 		Thresholds:     rc.Thresholds,
 		Analysis: AnalysisSettings{
 			ParenchymaADCMax: a.ParenchymaADCMax,
@@ -985,17 +1074,17 @@ func DefaultAuditConfig() AuditConfig {
 		},
 	}
 	for _, p := range rc.Protocols {
-		c.Protocols = append(c.Protocols, ProtocolConfig{
+		c.Protocols = append(c.Protocols, Protocol{
 			Name: p.Name, Match: matchConfig(p.Match), BValues: slices.Clone(p.BValues),
 			BValueTolerance: p.BTolerance, LowestB: p.LowestB, MinDirections: p.MinDirections,
 			ParenchymaADC: []float64{p.ParenchymaADC[0], p.ParenchymaADC[1]}, Head: p.Head,
 		})
 	}
 	for _, p := range rc.Phantoms {
-		c.Phantoms = append(c.Phantoms, PhantomConfig{Name: p.Name, Match: matchConfig(p.Match), ExpectedADC: p.ExpectedADC, Tolerance: p.Tolerance})
+		c.Phantoms = append(c.Phantoms, Phantom{Name: p.Name, Match: matchConfig(p.Match), ExpectedADC: p.ExpectedADC, Tolerance: p.Tolerance})
 	}
 	for id, s := range rc.Rules {
-		r := RuleConfig{}
+		r := Rule{}
 		if s.Enabled != nil {
 			r.Enabled = new(*s.Enabled)
 		}
@@ -1007,17 +1096,17 @@ func DefaultAuditConfig() AuditConfig {
 	return c
 }
 
-func matchConfig(m rules.Match) MatchConfig {
-	return MatchConfig{SeriesDescription: slices.Clone(m.SeriesDescription), ProtocolName: slices.Clone(m.ProtocolName), BodyPart: slices.Clone(m.BodyPart)}
+func matchConfig(m rules.Match) Match {
+	return Match{SeriesDescription: slices.Clone(m.SeriesDescription), ProtocolName: slices.Clone(m.ProtocolName), BodyPart: slices.Clone(m.BodyPart)}
 }
 
-func (m MatchConfig) rules() rules.Match {
+func (m Match) rules() rules.Match {
 	return rules.Match{SeriesDescription: slices.Clone(m.SeriesDescription), ProtocolName: slices.Clone(m.ProtocolName), BodyPart: slices.Clone(m.BodyPart)}
 }
 
 // RulesConfig is the configuration the rules read, not yet validated
 // (audit.Engine validates it).
-func (a AuditConfig) RulesConfig() *rules.Config {
+func (a Audit) RulesConfig() *rules.Config {
 	rc := &rules.Config{Thresholds: a.Thresholds}
 	if len(a.Rules) > 0 {
 		rc.Rules = map[string]rules.RuleSettings{}
@@ -1043,9 +1132,9 @@ func (a AuditConfig) RulesConfig() *rules.Config {
 	return rc
 }
 
-// AnalyzeConfig is the analysis configuration: the defaults with the
+// analyzeConfig is the analysis configuration: the defaults with the
 // section's values.
-func (a AuditConfig) AnalyzeConfig() analysis.AnalyzeConfig {
+func (a Audit) analyzeConfig() analysis.AnalyzeConfig {
 	c := analysis.DefaultAnalyzeConfig()
 	c.ParenchymaADCMax = a.Analysis.ParenchymaADCMax
 	c.CSFPercentile = a.Analysis.CSFPercentile
@@ -1053,8 +1142,8 @@ func (a AuditConfig) AnalyzeConfig() analysis.AnalyzeConfig {
 	return c
 }
 
-// ExtractOptions are the file-reading options: the private sources.
-func (a AuditConfig) ExtractOptions() header.ExtractOptions {
+// extractOptions are the file-reading options: the private sources.
+func (a Audit) extractOptions() header.ExtractOptions {
 	var o header.ExtractOptions
 	for _, p := range a.PrivateSources {
 		src := header.PrivateSource{
@@ -1074,10 +1163,10 @@ func (a AuditConfig) ExtractOptions() header.ExtractOptions {
 
 // Engine builds the audit engine of the section: every shipped rule,
 // the section's configuration, validated.
-func (a AuditConfig) Engine(log *slog.Logger) (*audit.Engine, error) {
+func (a Audit) Engine(log *slog.Logger) (*audit.Engine, error) {
 	e := audit.NewEngine(rules.All(), a.RulesConfig())
-	e.Analysis = a.AnalyzeConfig()
-	e.Extract = a.ExtractOptions()
+	e.Analysis = a.analyzeConfig()
+	e.Extract = a.extractOptions()
 	e.Workers = a.Workers
 	e.Logger = log
 	if err := e.Validate(); err != nil {
@@ -1090,7 +1179,7 @@ func (a AuditConfig) Engine(log *slog.Logger) (*audit.Engine, error) {
 // protocols, phantoms, rules and thresholds are judged by the rules'
 // own validation (rules.Config.Validate, which names fields by the same
 // YAML paths); the rest here.
-func (a AuditConfig) validate(p *problems) {
+func (a Audit) validate(p *problems) {
 	if s := time.Duration(a.Settle); s < minSettle || s > maxSettle {
 		p.addf("audit.settle", "%v is outside %v..%v", a.Settle, Duration(minSettle), Duration(maxSettle))
 	}
@@ -1187,12 +1276,12 @@ func (p *problems) unique(field, name string, i int, seen map[string]int, list s
 	}
 }
 
-// LoadAuditConfigFile reads a node configuration file for `dwiaudit
+// LoadAuditFile reads a node configuration file for `dwiaudit
 // check`: only the audit: section counts, so problems of other sections
 // are not reported.
-func LoadAuditConfigFile(path string) (AuditConfig, error) {
-	c, err := LoadConfigFile(path)
-	var ce *ConfigError
+func LoadAuditFile(path string) (Audit, error) {
+	c, err := LoadFile(path)
+	var ce *Error
 	if !errors.As(err, &ce) {
 		return c.Audit, err
 	}
@@ -1205,7 +1294,7 @@ func LoadAuditConfigFile(path string) (AuditConfig, error) {
 	if len(kept) == 0 {
 		return c.Audit, nil
 	}
-	return c.Audit, &ConfigError{File: ce.File, Problems: kept}
+	return c.Audit, &Error{File: ce.File, Problems: kept}
 }
 
 // otherSection says whether a problem names a field outside audit:.
@@ -1216,13 +1305,4 @@ func otherSection(problem string) bool {
 		}
 	}
 	return false
-}
-
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	slices.Sort(keys)
-	return keys
 }

@@ -1,4 +1,4 @@
-package main
+package web
 
 import (
 	"encoding/json"
@@ -51,7 +51,9 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 		},
 	}}}
 	up := true
-	h := newAPI(f, paris, func() bool { return up }, slog.New(slog.DiscardHandler))
+	s := &Server{api: newAPI(f, paris, func() bool { return up }, slog.New(slog.DiscardHandler)),
+		metrics: http.NotFoundHandler(), auth: &Auth{}, log: slog.New(slog.DiscardHandler)}
+	h := s.Handler()
 
 	t.Run("healthz says ok", func(t *testing.T) {
 		if rec := get(t, h, "GET", "/healthz"); rec.Code != http.StatusOK {
@@ -109,7 +111,7 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 	})
 	t.Run("a day that is not YYYY-MM-DD is a 400 with a JSON error", func(t *testing.T) {
 		rec := get(t, h, "GET", "/api/v1/studies?day=14.03.2025")
-		var e errorBody
+		var e ErrorBody
 		if rec.Code != http.StatusBadRequest || json.Unmarshal(rec.Body.Bytes(), &e) != nil || e.Status != 400 || e.Error == "" {
 			t.Errorf("status %d: %s", rec.Code, rec.Body)
 		}
@@ -125,4 +127,34 @@ func TestAPIAnswersEveryRequestInJSON(t *testing.T) {
 			t.Errorf("status %d, Allow %q", rec.Code, rec.Header().Get("Allow"))
 		}
 	})
+}
+
+func TestEveryAnswerPassesTheMiddleware(t *testing.T) {
+	var logged strings.Builder
+	log := slog.New(slog.NewTextHandler(&logged, &slog.HandlerOptions{Level: slog.LevelDebug}))
+	s := &Server{api: newAPI(&fakeLister{}, time.UTC, func() bool { return true }, log),
+		metrics: http.NotFoundHandler(), auth: &Auth{Token: "qoh-test-token-0123456789abcdef", Open: []string{"/healthz"}}, log: log}
+	h := s.Handler()
+
+	rec := get(t, h, "GET", "/healthz")
+	if rec.Code != http.StatusOK {
+		t.Fatalf("/healthz %d", rec.Code)
+	}
+	for _, hd := range []string{"Content-Security-Policy", "X-Content-Type-Options", "Referrer-Policy"} {
+		if rec.Header().Get(hd) == "" {
+			t.Errorf("/healthz lacks %s", hd)
+		}
+	}
+	// A refused request still gets the security headers and a log line.
+	rec = get(t, h, "GET", "/api/v1/series/2.25.99/preview.png")
+	if rec.Code != http.StatusUnauthorized || rec.Header().Get("X-Content-Type-Options") != "nosniff" {
+		t.Errorf("without the token: %d, headers %v", rec.Code, rec.Header())
+	}
+	out := logged.String()
+	if !strings.Contains(out, `route="GET /healthz" status=200`) || !strings.Contains(out, "route=(unrouted) status=401") {
+		t.Errorf("access log:\n%s", out)
+	}
+	if strings.Contains(out, "2.25.99") {
+		t.Errorf("the access log holds a UID from the path:\n%s", out)
+	}
 }

@@ -1,16 +1,13 @@
-package main
+package report
 
-// `dwiaudit check`: audit DICOM files on disk with no server, for a
-// technologist at a workstation and for scripts (--format json, exit
-// status by --fail-on).
+// The report of `dwiaudit check`, the audit of DICOM files on disk with
+// no server: tables for a technologist at a workstation (PrintCheck)
+// and a stable JSON for scripts (CheckBody).
 
 import (
-	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
-	"io/fs"
 	"math"
 	"strconv"
 	"strings"
@@ -20,83 +17,6 @@ import (
 	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 )
-
-// cautionLine ends every text report (DOMAIN.md, Safety wording).
-const cautionLine = "dwiaudit checks acquisitions; it does not diagnose. Clinical decisions rest with the radiologist and local policy."
-
-func runCheck(ctx context.Context, env *cliEnv, args []string) int {
-	flags := newFlagSet(env, "check", "[--config FILE] [--format text|json] [--fail-on warning|error] PATH...")
-	configPath := flags.String("config", "", "take the audit settings from the audit: section of this node configuration file (other sections are not used)")
-	format := flags.String("format", "text", "text (tables for people) or json (a stable interface for scripts)")
-	failOn := flags.String("fail-on", "error", "exit 1 when a finding of this severity or above exists: warning or error")
-	if code := parseFlags(flags, args); code >= 0 {
-		return code
-	}
-	if flags.NArg() == 0 {
-		fmt.Fprintln(env.stderr, "dwiaudit check: name at least one file or folder")
-		flags.Usage()
-		return exitUsage
-	}
-	if *format != "text" && *format != "json" {
-		fmt.Fprintf(env.stderr, "dwiaudit check: --format %q: use text or json\n", *format)
-		return exitUsage
-	}
-	threshold, err := parseFailOn(*failOn)
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-		return exitUsage
-	}
-	ac := DefaultConfig().Audit
-	if *configPath != "" {
-		if ac, err = LoadAuditConfigFile(*configPath); err != nil {
-			fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-			return exitUsage
-		}
-	}
-	eng, err := ac.Engine(nil)
-	if err != nil {
-		fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-		return exitUsage
-	}
-	rep, err := eng.AuditFiles(ctx, flags.Args())
-	switch {
-	case errors.Is(err, fs.ErrNotExist):
-		fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-		return exitUsage
-	case err != nil:
-		fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-		return exitFailure
-	}
-
-	if *format == "json" {
-		enc := json.NewEncoder(env.stdout)
-		enc.SetIndent("", "  ")
-		if err := enc.Encode(checkBody(rep)); err != nil {
-			fmt.Fprintln(env.stderr, "dwiaudit check:", err)
-			return exitFailure
-		}
-	} else {
-		printCheck(env.stdout, rep)
-	}
-	for _, f := range rep.Findings {
-		if f.Severity >= threshold {
-			return exitFailure
-		}
-	}
-	return exitOK
-}
-
-// parseFailOn reads --fail-on: warning or error (info findings never
-// fail a check: they are notes).
-func parseFailOn(s string) (rules.Severity, error) {
-	switch s {
-	case "warning":
-		return rules.SeverityWarning, nil
-	case "error":
-		return rules.SeverityError, nil
-	}
-	return 0, fmt.Errorf("--fail-on %q: use warning or error", s)
-}
 
 // CheckResponse is the JSON of `dwiaudit check --format json`: a stable
 // interface for scripts. Add nothing here without a new format version;
@@ -143,8 +63,8 @@ type CheckFinding struct {
 	Expected  any    `json:"expected"`
 }
 
-// checkBody turns a report into the JSON body.
-func checkBody(rep *audit.Report) CheckResponse {
+// CheckBody turns a report into the JSON body.
+func CheckBody(rep *audit.Report) CheckResponse {
 	out := CheckResponse{Series: []CheckSeries{}, Findings: []CheckFinding{}}
 	for _, s := range rep.Series {
 		bv := s.BValues
@@ -223,9 +143,9 @@ func jsonValue(v any) any {
 	return v
 }
 
-// printCheck writes the text report: the series, the findings, a count
+// PrintCheck writes the text report: the series, the findings, a count
 // and the caution line.
-func printCheck(w io.Writer, rep *audit.Report) {
+func PrintCheck(w io.Writer, rep *audit.Report) {
 	studies := map[string]bool{}
 	for _, s := range rep.Series {
 		studies[s.StudyUID] = true
@@ -300,7 +220,7 @@ func printCheck(w io.Writer, rep *audit.Report) {
 	}
 	fmt.Fprintf(w, "\n%s, %s, %s.\n", plural(counts[rules.SeverityError], "error", "errors"),
 		plural(counts[rules.SeverityWarning], "warning", "warnings"), plural(counts[rules.SeverityInfo], "note", "notes"))
-	fmt.Fprintln(w, cautionLine)
+	fmt.Fprintln(w, Caution)
 }
 
 // noteText shortens why a series was not computed to fit a column; the

@@ -1,12 +1,14 @@
-package main
+package report_test
 
 import (
 	"context"
 	"encoding/json"
+	"log/slog"
 	"sync"
 	"testing"
 	"time"
 
+	"dwiaudit/audit/report"
 	"dwiaudit/rules"
 	"dwiaudit/store"
 )
@@ -48,20 +50,20 @@ func expectFrozen(t *testing.T, frozen <-chan string, want ...string) {
 
 func TestTheSchedulerCatchesUpThenFreezesAtDailyAt(t *testing.T) {
 	clk := &fakeTimer{now: time.Date(2026, 12, 2, 5, 0, 0, 0, time.UTC), tick: make(chan time.Time), asked: make(chan struct{}, 16)}
-	st := openTestStore(t, clk.Now)
+	st, _ := newStore(t, time.UTC, clk.Now)
 	f, _ := json.Marshal([]rules.Finding{{Rule: rules.IDMissingB0, Severity: rules.SeverityError, Message: "no b0"}})
 	for _, at := range []time.Time{time.Date(2026, 11, 30, 12, 0, 0, 0, time.UTC), time.Date(2026, 12, 1, 12, 0, 0, 0, time.UTC)} {
 		if err := st.SaveAudit(store.AuditRecord{AuditTime: at, StudyInstanceUID: "2.25.5", SeriesUID: "2.25.5." + at.Format("02"), Findings: f}); err != nil {
 			t.Fatal(err)
 		}
 	}
-	cfg := DefaultConfig().Reports // daily_at 06:00
 	frozen := make(chan string)
 	run := func(ctx context.Context) *sync.WaitGroup {
-		d := &dailyScheduler{archive: newReportArchive(cfg, st, time.UTC, clk.Now), lists: st, loc: time.UTC,
-			now: clk.Now, after: clk.After, log: discardLog(), frozen: frozen}
+		archive := &report.Archive{Builder: &report.Builder{Source: st, Location: time.UTC, Now: clk.Now}, Lists: st, DailyAt: 6 * time.Hour}
+		d := &report.Freezer{Archive: archive, Lists: st, Location: time.UTC,
+			Now: clk.Now, After: clk.After, Logger: slog.New(slog.DiscardHandler), Frozen: frozen}
 		var wg sync.WaitGroup
-		wg.Go(func() { d.run(ctx) })
+		wg.Go(func() { d.Run(ctx) })
 		return &wg
 	}
 	ctx, cancel := context.WithCancel(t.Context())
@@ -83,11 +85,11 @@ func TestTheSchedulerCatchesUpThenFreezesAtDailyAt(t *testing.T) {
 	wg.Wait()
 	clk.mu.Lock()
 	for _, w := range clk.waits {
-		if w <= 0 || w > dailyRecheck {
-			t.Errorf("slept %v; want 0 < wait <= %v", w, dailyRecheck)
+		if w <= 0 || w > report.DailyRecheck {
+			t.Errorf("slept %v; want 0 < wait <= %v", w, report.DailyRecheck)
 		}
 	}
-	if clk.waits[0] != dailyRecheck || clk.waits[1] != 10*time.Minute {
+	if clk.waits[0] != report.DailyRecheck || clk.waits[1] != 10*time.Minute {
 		t.Errorf("waits %v, want 10m (capped) then 10m to 06:00", clk.waits)
 	}
 	clk.mu.Unlock()

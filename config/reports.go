@@ -1,4 +1,4 @@
-package main
+package config
 
 // The reports: section of the configuration: when the daily discrepancy
 // list is frozen, how reports show patient IDs, and the base of the
@@ -13,6 +13,7 @@ import (
 	"go.yaml.in/yaml/v3"
 
 	"dwiaudit/audit/report"
+	"dwiaudit/store"
 )
 
 // defaultDailyAt is when the list of the day before is frozen: 06:00,
@@ -20,9 +21,9 @@ import (
 // before a department's morning meeting.
 const defaultDailyAt = TimeOfDay(6 * time.Hour)
 
-// ReportsConfig shapes the daily discrepancy list and the compliance
+// Reports shapes the daily discrepancy list and the compliance
 // report.
-type ReportsConfig struct {
+type Reports struct {
 	// DailyAt is when (node time) the list of the previous day is built
 	// and kept unchanged.
 	DailyAt TimeOfDay `yaml:"daily_at"`
@@ -35,13 +36,13 @@ type ReportsConfig struct {
 	BaseURL string `yaml:"base_url"`
 }
 
-// defaultReportsConfig is the reports: section of DefaultConfig.
-func defaultReportsConfig() ReportsConfig {
-	return ReportsConfig{DailyAt: defaultDailyAt, PatientID: PatientIDMode(report.PatientIDMasked)}
+// defaultReports is the reports: section of Default.
+func defaultReports() Reports {
+	return Reports{DailyAt: defaultDailyAt, PatientID: PatientIDMode(report.PatientIDMasked)}
 }
 
 // validate adds the section's problems to p, by field path.
-func (r ReportsConfig) validate(p *problems) {
+func (r Reports) validate(p *problems) {
 	if r.DailyAt < 0 || r.DailyAt >= TimeOfDay(24*time.Hour) {
 		p.addf("reports.daily_at", "%v is not a time of day between 00:00 and 23:59", time.Duration(r.DailyAt))
 	}
@@ -69,8 +70,8 @@ func (r ReportsConfig) validate(p *problems) {
 // TimeOfDay is a wall-clock time, written "HH:MM".
 type TimeOfDay time.Duration
 
-// ParseTimeOfDay reads "HH:MM" (00:00 to 23:59).
-func ParseTimeOfDay(s string) (TimeOfDay, error) {
+// parseTimeOfDay reads "HH:MM" (00:00 to 23:59).
+func parseTimeOfDay(s string) (TimeOfDay, error) {
 	t, err := time.Parse("15:04", s)
 	if err != nil || len(s) != 5 {
 		return 0, fmt.Errorf("%q is not a time of day HH:MM (00:00 to 23:59)", s)
@@ -90,7 +91,7 @@ func (t *TimeOfDay) UnmarshalYAML(n *yaml.Node) error {
 	if err != nil {
 		return err
 	}
-	v, err := ParseTimeOfDay(s)
+	v, err := parseTimeOfDay(s)
 	if err != nil {
 		return typeError(n, "not a time of day HH:MM (00:00 to 23:59)")
 	}
@@ -122,3 +123,20 @@ func (m *PatientIDMode) UnmarshalYAML(n *yaml.Node) error {
 
 // MarshalYAML writes the mode's name.
 func (m PatientIDMode) MarshalYAML() (any, error) { return m.String(), nil }
+
+// Archive is the archive of daily lists the node and `dwiaudit report
+// --data` serve: a report.Builder over the store with the section's
+// settings.
+func (r Reports) Archive(st *store.Store, loc *time.Location, now func() time.Time) *report.Archive {
+	return &report.Archive{
+		Builder: &report.Builder{
+			Source:    st,
+			PatientID: report.PatientIDMode(r.PatientID),
+			BaseURL:   r.BaseURL,
+			Location:  loc,
+			Now:       now,
+		},
+		Lists:   st,
+		DailyAt: time.Duration(r.DailyAt),
+	}
+}

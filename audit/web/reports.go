@@ -1,11 +1,11 @@
-package main
+package web
 
 // The reports in the HTTP API:
 //
 //	GET /api/v1/reports/daily/{YYYY-MM-DD}.{csv,json,html}
 //	GET /api/v1/reports/compliance?from=YYYY-MM-DD&to=YYYY-MM-DD[&format=json|csv|html]
 //
-// Errors are JSON like every other answer of the API (httpapi.go).
+// Errors are JSON like every other answer of the API (api.go).
 
 import (
 	"bytes"
@@ -14,7 +14,6 @@ import (
 	"log/slog"
 	"net/http"
 	"strings"
-	"time"
 
 	"dwiaudit/audit/report"
 	"dwiaudit/store"
@@ -29,35 +28,9 @@ type reportsAPI struct {
 	log     *slog.Logger
 }
 
-// newReportArchive is the archive of daily lists the node and `dwiaudit
-// report --data` serve: a Builder over the store with the reports:
-// section's settings.
-func newReportArchive(cfg ReportsConfig, st *store.Store, loc *time.Location, now func() time.Time) *report.Archive {
-	return &report.Archive{
-		Builder: &report.Builder{
-			Source:    st,
-			PatientID: report.PatientIDMode(cfg.PatientID),
-			BaseURL:   cfg.BaseURL,
-			Location:  loc,
-			Now:       now,
-		},
-		Lists:   st,
-		DailyAt: time.Duration(cfg.DailyAt),
-	}
-}
-
-// withReports routes the report endpoints to their handlers and
-// everything else to next (the rest of the API).
-func withReports(next http.Handler, a *report.Archive, log *slog.Logger) http.Handler {
-	r := &reportsAPI{archive: a, log: log}
-	mux := http.NewServeMux()
-	mux.HandleFunc(reportsPrefix+"daily/{file}", getOnly(r.daily))
-	mux.HandleFunc(reportsPrefix+"compliance", getOnly(r.compliance))
-	mux.HandleFunc(reportsPrefix, func(w http.ResponseWriter, req *http.Request) {
-		writeError(w, http.StatusNotFound, fmt.Sprintf("no such report %q; use %sdaily/YYYY-MM-DD.{csv,json,html} or %scompliance?from=&to=", req.URL.Path, reportsPrefix, reportsPrefix))
-	})
-	mux.Handle("/", next)
-	return mux
+// noSuchReport answers a path under reportsPrefix that is no report.
+func (r *reportsAPI) noSuchReport(w http.ResponseWriter, req *http.Request) {
+	writeError(w, http.StatusNotFound, fmt.Sprintf("no such report %q; use %sdaily/YYYY-MM-DD.{csv,json,html} or %scompliance?from=&to=", req.URL.Path, reportsPrefix, reportsPrefix))
 }
 
 // daily answers GET /api/v1/reports/daily/{date}.{csv,json,html}.

@@ -1,9 +1,12 @@
-package main
-
-// What `dwiaudit demo` and `dwiaudit selftest` share: the planted-defect
-// studies (one synthetic phantom case, or a clean study with a damaged
-// file, per rule), sending them to a node with C-STORE, and waiting for
-// the node's audits of them over its HTTP API.
+// Package suite is the planted-defect suite and what is built on it:
+// synthetic studies that each must fire one rule (one phantom case, or
+// a clean study with a damaged file, per rule) and clean ones, sent to
+// a node with C-STORE like a scanner would, and the node's audits of
+// them awaited over its HTTP API and compared. The installation
+// self-test (Selftest, `dwiaudit selftest`) sends the suite once; the
+// demonstration (Scenario, `dwiaudit demo`) spreads it over an invented
+// hospital's scanners and days.
+package suite
 
 import (
 	"bytes"
@@ -19,6 +22,7 @@ import (
 
 	"dwiaudit/audit/phantom"
 	"dwiaudit/audit/record"
+	"dwiaudit/audit/web"
 	"dwiaudit/rules"
 	"dwiaudit/scp"
 	"dwiaudit/scp/part10"
@@ -96,9 +100,9 @@ func rulePlants() []plant {
 // cleanPlant is the clean brain: no warning or error expected.
 func cleanPlant() plant { return plant{"clean", "", phantom.CaseClean, damageNone} }
 
-// ruleIDs is every rule ID a finding can carry, in the order of
-// rulePlants.
-func ruleIDs() []string {
+// RuleIDs is every rule ID the suite plants a defect for, in the order
+// of the rules' documentation.
+func RuleIDs() []string {
 	var out []string
 	for _, p := range rulePlants() {
 		out = append(out, p.rule)
@@ -195,7 +199,7 @@ func sendStudies(ctx context.Context, d *scp.Dialer, addr string, dirs []string)
 // auditView is one series audit as the API shows it, with its findings
 // decoded.
 type auditView struct {
-	AuditJSON
+	web.AuditJSON
 	findings []rules.Finding
 	measures record.Measures // zero when the audit stored none
 }
@@ -235,7 +239,7 @@ func (c *findingsClient) get(ctx context.Context, path string, v any) error {
 	}
 	defer res.Body.Close()
 	if res.StatusCode != http.StatusOK {
-		var eb errorBody
+		var eb web.ErrorBody
 		json.NewDecoder(res.Body).Decode(&eb)
 		return fmt.Errorf("GET %s: %s %s", url, res.Status, eb.Error)
 	}
@@ -252,7 +256,7 @@ func (c *findingsClient) day(ctx context.Context, day string) (string, []auditVi
 	if day != "" {
 		path += "?day=" + day
 	}
-	var body FindingsResponse
+	var body web.FindingsResponse
 	if err := c.get(ctx, path, &body); err != nil {
 		return "", nil, err
 	}

@@ -1,7 +1,9 @@
-package main
+package web
 
-// The node's HTTP API: health checks for the service manager and load
-// balancer, and the list of what is stored. Every answer, errors
+// The node's JSON API: health checks for the service manager and load
+// balancer, and the list of what is stored; and the JSON types of every
+// answer, shared with the command-line clients (dwiaudit studies
+// --server, dwiaudit selftest, dwiaudit demo). Every answer, errors
 // included, is JSON.
 
 import (
@@ -14,9 +16,6 @@ import (
 
 	"dwiaudit/store"
 )
-
-// dayLayout is the form of a receive day in the API and the CLI.
-const dayLayout = "2006-01-02"
 
 // studyLister is what the HTTP API needs of the store.
 type studyLister interface {
@@ -31,7 +30,7 @@ type findingsLister interface {
 	Findings(day string) ([]store.AuditRecord, error)
 }
 
-// api serves the HTTP endpoints.
+// api serves the JSON endpoints of the store and the node's health.
 type api struct {
 	store    studyLister
 	findings findingsLister // nil when the store keeps no audits
@@ -40,46 +39,32 @@ type api struct {
 	log      *slog.Logger
 }
 
-// newAPI builds the API's handler; each of more registers further
-// routes on its mux (previews.routes).
-func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger, more ...func(*http.ServeMux)) http.Handler {
+func newAPI(st studyLister, loc *time.Location, dicomUp func() bool, log *slog.Logger) *api {
 	a := &api{store: st, loc: loc, dicomUp: dicomUp, log: log}
 	a.findings, _ = st.(findingsLister)
-	mux := http.NewServeMux()
-	// Patterns without a method, and getOnly inside, so that a wrong
-	// method gets a JSON 405 like every other error.
-	mux.HandleFunc("/healthz", getOnly(a.healthz))
-	mux.HandleFunc("/readyz", getOnly(a.readyz))
-	mux.HandleFunc("/api/v1/studies", getOnly(a.studies))
-	mux.HandleFunc("/api/v1/findings", getOnly(a.findingsOfDay))
-	for _, m := range more {
-		m(mux)
-	}
-	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
-		writeError(w, http.StatusNotFound, fmt.Sprintf("no such endpoint %q", r.URL.Path))
-	})
-	return mux
+	return a
 }
 
-func getOnly(h http.HandlerFunc) http.HandlerFunc {
-	return func(w http.ResponseWriter, r *http.Request) {
-		if r.Method != http.MethodGet && r.Method != http.MethodHead {
-			w.Header().Set("Allow", "GET, HEAD")
-			writeError(w, http.StatusMethodNotAllowed, "method "+r.Method+" not allowed; use GET")
-			return
-		}
-		h(w, r)
-	}
+// methodNotAllowed answers a request whose path is a JSON endpoint's
+// with a method other than GET or HEAD.
+func methodNotAllowed(w http.ResponseWriter, r *http.Request) {
+	w.Header().Set("Allow", "GET, HEAD")
+	writeError(w, http.StatusMethodNotAllowed, "method "+r.Method+" not allowed; use GET")
 }
 
-// errorBody is the body of every error answer.
-type errorBody struct {
+// noSuchEndpoint answers every path the route table does not know.
+func noSuchEndpoint(w http.ResponseWriter, r *http.Request) {
+	writeError(w, http.StatusNotFound, fmt.Sprintf("no such endpoint %q", r.URL.Path))
+}
+
+// ErrorBody is the body of every error answer.
+type ErrorBody struct {
 	Error  string `json:"error"`
 	Status int    `json:"status"`
 }
 
 func writeError(w http.ResponseWriter, status int, msg string) {
-	writeJSON(w, status, errorBody{Error: msg, Status: status})
+	writeJSON(w, status, ErrorBody{Error: msg, Status: status})
 }
 
 func writeJSON(w http.ResponseWriter, status int, v any) {
@@ -91,8 +76,8 @@ func writeJSON(w http.ResponseWriter, status int, v any) {
 	enc.Encode(v) // a failed write means the client went away
 }
 
-// healthBody answers /healthz and /readyz.
-type healthBody struct {
+// HealthBody answers /healthz and /readyz.
+type HealthBody struct {
 	Status string            `json:"status"`           // "ok", "ready" or "not ready"
 	Checks map[string]string `json:"checks,omitempty"` // check -> "ok" or the problem
 }
@@ -100,13 +85,13 @@ type healthBody struct {
 // healthz says the process is alive and serving HTTP; nothing more, so
 // that a service manager restarts only what is really stuck.
 func (a *api) healthz(w http.ResponseWriter, r *http.Request) {
-	writeJSON(w, http.StatusOK, healthBody{Status: "ok"})
+	writeJSON(w, http.StatusOK, HealthBody{Status: "ok"})
 }
 
 // readyz says whether the node can take studies: the index answers and
 // the DICOM acceptor is listening.
 func (a *api) readyz(w http.ResponseWriter, r *http.Request) {
-	body := healthBody{Status: "ready", Checks: map[string]string{"store": "ok", "dicom_listener": "ok"}}
+	body := HealthBody{Status: "ready", Checks: map[string]string{"store": "ok", "dicom_listener": "ok"}}
 	status := http.StatusOK
 	if err := a.store.Ping(); err != nil {
 		body.Checks["store"] = err.Error()
@@ -139,7 +124,7 @@ func (a *api) studies(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusInternalServerError, "listing studies failed: "+err.Error())
 		return
 	}
-	writeJSON(w, http.StatusOK, studiesBody(day, list, a.loc))
+	writeJSON(w, http.StatusOK, StudiesBody(day, list, a.loc))
 }
 
 // StudiesResponse is the body of GET /api/v1/studies and the JSON output
@@ -183,8 +168,9 @@ type SeriesJSON struct {
 	LastReceived      time.Time `json:"last_received"`
 }
 
-// studiesBody converts the store's studies, with receive times in loc.
-func studiesBody(day string, list []store.Study, loc *time.Location) StudiesResponse {
+// StudiesBody converts the store's studies, with receive times in loc:
+// the API's answer, and `dwiaudit studies --data`'s.
+func StudiesBody(day string, list []store.Study, loc *time.Location) StudiesResponse {
 	out := StudiesResponse{Day: day, Studies: make([]StudyJSON, 0, len(list))}
 	for _, st := range list {
 		sj := StudyJSON{

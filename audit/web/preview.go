@@ -1,4 +1,4 @@
-package main
+package web
 
 // GET /api/v1/series/{uid}/preview.png[?slice=N]: one slice of a stored
 // diffusion series as the audit computed it (b0, DWI, eADC, ADC) with
@@ -64,12 +64,9 @@ type previews struct {
 	log       *slog.Logger
 }
 
-// newPreviews builds the endpoint on the node's audit configuration.
-func newPreviews(st previewStore, ac AuditConfig, log *slog.Logger) (*previews, error) {
-	eng, err := ac.Engine(log)
-	if err != nil {
-		return nil, err
-	}
+// newPreviews builds the endpoint on an audit engine of its own, which
+// it sets to keep the computed studies (their maps).
+func newPreviews(st previewStore, eng *audit.Engine, log *slog.Logger) (*previews, error) {
 	eng.KeepStudies = true
 	r, err := preview.NewRenderer()
 	if err != nil {
@@ -80,11 +77,6 @@ func newPreviews(st previewStore, ac AuditConfig, log *slog.Logger) (*previews, 
 		cache:     newStudyCache(previewCacheStudies),
 		computing: make(chan struct{}, 1),
 	}, nil
-}
-
-// routes registers the endpoint on the API's mux.
-func (p *previews) routes(mux *http.ServeMux) {
-	mux.HandleFunc("/api/v1/series/{uid}/preview.png", getOnly(p.serve))
 }
 
 func (p *previews) serve(w http.ResponseWriter, r *http.Request) {

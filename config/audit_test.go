@@ -1,4 +1,4 @@
-package main
+package config
 
 import (
 	"errors"
@@ -15,7 +15,7 @@ import (
 )
 
 func TestDefaultAuditConfigIsTheRulesDefaults(t *testing.T) {
-	a := DefaultAuditConfig()
+	a := defaultAudit()
 	if a.Settle != Duration(30*time.Second) || a.Workers != 2 {
 		t.Errorf("settle %v, workers %d; want 30s (issue 5) and 2", a.Settle, a.Workers)
 	}
@@ -28,9 +28,9 @@ func TestDefaultAuditConfigIsTheRulesDefaults(t *testing.T) {
 		t.Errorf("the default audit section has problems: %v", p)
 	}
 	a.Protocols[0].BValues[0] = 1
-	a.Rules["x"] = RuleConfig{}
-	if b := DefaultAuditConfig(); b.Protocols[0].BValues[0] == 1 || len(b.Rules) != 0 {
-		t.Error("DefaultAuditConfig shares its lists or map between calls")
+	a.Rules["x"] = Rule{}
+	if b := defaultAudit(); b.Protocols[0].BValues[0] == 1 || len(b.Rules) != 0 {
+		t.Error("defaultAudit shares its lists or map between calls")
 	}
 }
 
@@ -60,12 +60,12 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
   analysis:
     csf_percentile: 90
 `
-	c, err := ParseConfig("node.yaml", []byte(yaml))
+	c, err := Parse("node.yaml", []byte(yaml))
 	if err != nil {
 		t.Fatal(err)
 	}
 	a := c.Audit
-	d := DefaultAuditConfig()
+	d := defaultAudit()
 	if a.Settle != Duration(2*time.Second) || a.Workers != 4 {
 		t.Errorf("settle %v workers %d", a.Settle, a.Workers)
 	}
@@ -84,13 +84,13 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
 	if !reflect.DeepEqual(a.Thresholds, wantT) {
 		t.Errorf("thresholds %+v: only low_snr.min_b0_snr must change", a.Thresholds)
 	}
-	src := a.ExtractOptions().PrivateSources
+	src := a.extractOptions().PrivateSources
 	want := []header.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: header.ValueIS, Offset: 1e9,
 		Gradient: &header.GradientSource{Element: []uint8{0xBB, 0xBC, 0xBD}, Read: header.ValueDS, ImageAxes: true}}}
 	if !reflect.DeepEqual(src, want) {
 		t.Errorf("private sources %+v, want %+v", src, want)
 	}
-	an := a.AnalyzeConfig()
+	an := a.analyzeConfig()
 	if an.CSFPercentile != 90 || an.ParenchymaADCMax != d.Analysis.ParenchymaADCMax || an.FreeWaterCeiling != d.Analysis.FreeWaterCeiling {
 		t.Errorf("analysis %+v: only csf_percentile must change", an)
 	}
@@ -138,10 +138,10 @@ func TestAuditSectionProblemsNameTheirFields(t *testing.T) {
   analysis:
     csf_percentile: 0
 `
-	_, err := ParseConfig("node.yaml", []byte(yaml))
-	var ce *ConfigError
+	_, err := Parse("node.yaml", []byte(yaml))
+	var ce *Error
 	if !errors.As(err, &ce) {
-		t.Fatalf("ParseConfig = %v, want a *ConfigError", err)
+		t.Fatalf("Parse = %v, want a *Error", err)
 	}
 	want := []string{
 		"audit.rules.missing-b0.severity: cannot use `loud`: not a severity",
@@ -181,7 +181,7 @@ func TestHexNumbersReadWithOrWithout0x(t *testing.T) {
 	for _, tt := range []struct{ group, element string }{{`"0x0019"`, `"0x0C"`}, {`"0019"`, `"0c"`}, {`0x0019`, `0x0C`}, {`"19"`, `"C"`}} {
 		t.Run("group "+tt.group+" element "+tt.element, func(t *testing.T) {
 			y := "audit:\n  private_sources:\n    - {name: a, creator: ACME, read: FD, group: " + tt.group + ", element: " + tt.element + "}\n"
-			c, err := ParseConfig("x.yaml", []byte(y))
+			c, err := Parse("x.yaml", []byte(y))
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -198,9 +198,9 @@ func TestLoadAuditConfigFileIgnoresOtherSections(t *testing.T) {
 	if err := os.WriteFile(path, []byte(body), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	a, err := LoadAuditConfigFile(path)
+	a, err := LoadAuditFile(path)
 	if err != nil {
-		t.Fatalf("LoadAuditConfigFile = %v, want the other sections' problems ignored", err)
+		t.Fatalf("LoadAuditFile = %v, want the other sections' problems ignored", err)
 	}
 	if a.Settle != Duration(5*time.Second) {
 		t.Errorf("settle %v, want 5s", a.Settle)
@@ -208,21 +208,21 @@ func TestLoadAuditConfigFileIgnoresOtherSections(t *testing.T) {
 	if err := os.WriteFile(path, []byte(body+"  workers: 100\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	_, err = LoadAuditConfigFile(path)
-	var ce *ConfigError
+	_, err = LoadAuditFile(path)
+	var ce *Error
 	if !errors.As(err, &ce) || len(ce.Problems) != 1 || !strings.HasPrefix(ce.Problems[0], "audit.workers:") {
-		t.Errorf("LoadAuditConfigFile = %v, want audit.workers only", err)
+		t.Errorf("LoadAuditFile = %v, want audit.workers only", err)
 	}
 }
 
 func TestExampleAuditSectionIsTheDefaultsAndItsCommentsParse(t *testing.T) {
-	path := filepath.Join("..", "..", "deploy", "dwiaudit.example.yaml")
-	c, err := LoadConfigFile(path)
+	path := filepath.Join("..", "deploy", "dwiaudit.example.yaml")
+	c, err := LoadFile(path)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d := DefaultAuditConfig(); !reflect.DeepEqual(c.Audit, d) {
-		t.Errorf("the example's audit section differs from DefaultAuditConfig:\n got %+v\nwant %+v", c.Audit, d)
+	if d := defaultAudit(); !reflect.DeepEqual(c.Audit, d) {
+		t.Errorf("the example's audit section differs from defaultAudit:\n got %+v\nwant %+v", c.Audit, d)
 	}
 	b, err := os.ReadFile(path)
 	if err != nil {
@@ -233,7 +233,7 @@ func TestExampleAuditSectionIsTheDefaultsAndItsCommentsParse(t *testing.T) {
 		text = strings.Replace(text, r[0], r[1], 1)
 	}
 	text = strings.ReplaceAll(text, "\n  #  ", "\n    ")
-	c, err = ParseConfig(path, []byte(text))
+	c, err = Parse(path, []byte(text))
 	if err != nil {
 		t.Fatalf("with the audit examples uncommented: %v", err)
 	}

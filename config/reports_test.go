@@ -1,4 +1,4 @@
-package main
+package config
 
 import (
 	"path/filepath"
@@ -10,14 +10,14 @@ import (
 )
 
 func TestTheExampleConfigShowsTheReportsDefaults(t *testing.T) {
-	c, err := LoadConfigFile(filepath.Join("..", "..", "deploy", "dwiaudit.example.yaml"))
+	c, err := LoadFile(filepath.Join("..", "deploy", "dwiaudit.example.yaml"))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d := DefaultConfig(); c.Reports != d.Reports {
+	if d := Default(); c.Reports != d.Reports {
 		t.Errorf("reports: example %+v, defaults %+v", c.Reports, d.Reports)
 	}
-	if d := DefaultConfig().Reports; d.DailyAt != TimeOfDay(6*time.Hour) || report.PatientIDMode(d.PatientID) != report.PatientIDMasked || d.BaseURL != "" {
+	if d := Default().Reports; d.DailyAt != TimeOfDay(6*time.Hour) || report.PatientIDMode(d.PatientID) != report.PatientIDMasked || d.BaseURL != "" {
 		t.Errorf("defaults %+v, want 06:00, masked, relative links", d)
 	}
 }
@@ -40,7 +40,7 @@ func TestTheReportsSectionParsesAndListsEveryProblem(t *testing.T) {
 		{"an unknown key", "reports:\n  daily: \"06:00\"\n", []string{"reports.daily: unknown field (line 2)"}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
-			_, err := ParseConfig("test.yaml", []byte(c.yaml))
+			_, err := Parse("test.yaml", []byte(c.yaml))
 			if len(c.problems) == 0 {
 				if err != nil {
 					t.Fatalf("refused: %v", err)
@@ -58,7 +58,7 @@ func TestTheReportsSectionParsesAndListsEveryProblem(t *testing.T) {
 		})
 	}
 	t.Run("values decode", func(t *testing.T) {
-		cfg, err := ParseConfig("test.yaml", []byte("reports: {daily_at: \"07:45\", patient_id: full}"))
+		cfg, err := Parse("test.yaml", []byte("reports: {daily_at: \"07:45\", patient_id: full}"))
 		if err != nil {
 			t.Fatal(err)
 		}

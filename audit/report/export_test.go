@@ -1,0 +1,4 @@
+package report
+
+// DailyRecheck is dailyRecheck, for the external tests.
+const DailyRecheck = dailyRecheck
