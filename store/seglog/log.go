@@ -270,14 +270,16 @@ func (l *Log) Append(uid string, payload []byte) (Pos, error) {
 	size := recordSize(uid, int64(len(payload)))
 
 	l.mu.Lock()
+	l.appending++ // before a roll can create a file, so Close waits for it
 	s, err := l.reserveLocked(size)
 	if err != nil {
+		l.appending--
+		l.cond.Broadcast()
 		l.mu.Unlock()
 		return Pos{}, err
 	}
 	off := s.reserved
 	s.reserved += size
-	l.appending++
 	l.mu.Unlock()
 
 	var hb [headerSize + maxUID]byte
@@ -559,6 +561,8 @@ func (l *Log) Close() error {
 
 // closeFiles closes every segment file.
 func (l *Log) closeFiles() error {
+	l.mu.Lock()
+	defer l.mu.Unlock()
 	var errs []error
 	for _, s := range l.segs {
 		if s.f != nil {
