@@ -35,6 +35,12 @@ type Pos struct {
 // String renders a position as segment:offset.
 func (p Pos) String() string { return fmt.Sprintf("%d:%d", p.Segment, p.Offset) }
 
+// After is the position just after a record of uid and n payload bytes
+// at p: the replay mark once that record is applied (Entry.Next).
+func (p Pos) After(uid string, n int64) Pos {
+	return Pos{p.Segment, p.Offset + recordSize(uid, n)}
+}
+
 // Less orders positions by segment, then offset.
 func (p Pos) Less(q Pos) bool {
 	if p.Segment != q.Segment {

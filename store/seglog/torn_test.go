@@ -13,7 +13,7 @@ import (
 // tornFixture writes records of the given payload sizes to a fresh log
 // and returns the folder, the segment path and the offset where the last
 // record starts.
-func tornFixture(t *testing.T, sizes []int) (dir, seg string, lastStart int64, whole []byte) {
+func tornFixture(t testing.TB, sizes []int) (dir, seg string, lastStart int64, whole []byte) {
 	t.Helper()
 	dir = t.TempDir()
 	l, err := Open(dir, Options{})
