@@ -140,9 +140,13 @@ func Open(dir string, opts Options) (*Log, error) {
 		l.closeFiles()
 		return nil, err
 	}
-	if len(segs) > 0 {
-		l.active = segs[len(segs)-1]
+	// New records must land at or after the mark, or a caller replaying
+	// from it would never see them: if the mark names a segment past the
+	// last one held (its records deleted), appending starts a new one.
+	if n := len(segs); n > 0 && segs[n-1].id >= opts.From.Segment {
+		l.active = segs[n-1]
 	}
+	l.nextID = max(l.nextID, opts.From.Segment+1)
 	return l, nil
 }
 
