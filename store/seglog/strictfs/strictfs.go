@@ -81,9 +81,10 @@ func New(seed uint64) *FS {
 	return &FS{rng: rand.New(rand.NewPCG(seed, seed^0x9e3779b97f4a7c15)), names: map[string]*inode{}, durable: map[string]*inode{}, dirs: map[string]bool{"/": true, ".": true}, budget: -1}
 }
 
-// CutAfter arms an automatic power cut: the n-th mutating operation from
-// now (write, truncation, fdatasync, creation, rename, removal, directory
-// sync) fails with ErrPowerCut, as does everything after it.
+// CutAfter arms an automatic power cut: n more mutating operations
+// (write, truncation, fdatasync, creation, rename, removal, directory
+// sync) succeed, the next one fails with ErrPowerCut, as does everything
+// after it.
 func (f *FS) CutAfter(n int) {
 	f.mu.Lock()
 	defer f.mu.Unlock()
