@@ -17,6 +17,8 @@
 # node's ratio to storescp, CPU per image (utime + stime of the receiver
 # from /proc/<pid>/stat, proc(5), over the sending only) and peak RSS
 # (VmHWM from /proc/<pid>/status). Every run checks that all images arrived.
+# storescp runs as DCMTK ships it (no --fork): it serves one association at
+# a time, so its parallel senders queue.
 #
 # scp: the Go benchmarks of scp/bench_test.go (our requestor into our
 # acceptor, DCMTK's storescu into storescp --ignore, and the ratio);
