@@ -5,6 +5,7 @@ import (
 	"errors"
 	"os"
 	"runtime"
+	"strings"
 	"testing"
 )
 
@@ -105,5 +106,33 @@ func TestAFailedWriteFailsEveryRecordBehindIt(t *testing.T) {
 	}
 	if _, err := l.Append(uidFor(4), []byte("again")); err != nil {
 		t.Fatalf("Append after reopening: %v", err)
+	}
+}
+
+// readFailFS fails every read of a segment.
+type readFailFS struct{ OSFS }
+
+func (f readFailFS) OpenFile(name string, flag int) (File, error) {
+	file, err := f.OSFS.OpenFile(name, flag)
+	if err != nil || !strings.HasSuffix(name, segSuffix) {
+		return file, err
+	}
+	return readFailFile{file}, nil
+}
+
+type readFailFile struct{ File }
+
+func (readFailFile) ReadAt([]byte, int64) (int, error) { return 0, errInjected }
+
+// TestAReadErrorAtReplayIsNotATornTail: Open fails and cuts nothing when
+// a segment cannot be read, rather than taking the unreadable record for
+// a torn tail.
+func TestAReadErrorAtReplayIsNotATornTail(t *testing.T) {
+	dir, seg, _, whole := tornFixture(t, []int{100, 200})
+	if _, err := Open(dir, Options{FS: readFailFS{}}); !errors.Is(err, errInjected) {
+		t.Fatalf("Open with failing reads: %v, want the read error", err)
+	}
+	if b, err := os.ReadFile(seg); err != nil || !bytes.Equal(b, whole) {
+		t.Fatalf("segment changed by a failed Open: %d bytes of %d, %v", len(b), len(whole), err)
 	}
 }

@@ -235,6 +235,9 @@ func (l *Log) replay(segs []*segment, from Pos, fn func(Entry) error) error {
 		for off < size {
 			h, uid, err := readRecord(s.f, off, size, *bp)
 			if err != nil {
+				if !errors.As(err, new(badRecord)) {
+					return fmt.Errorf("seglog: replay %s at %d: %w", s.name, off, err)
+				}
 				if !last {
 					return fmt.Errorf("%w: segment %s offset %d: %v", ErrCorrupt, s.name, off, err)
 				}
@@ -475,8 +478,11 @@ func (l *Log) Read(pos Pos) (*Record, error) {
 	bp := l.bufs.Get().(*[]byte)
 	defer l.bufs.Put(bp)
 	h, uid, err := readRecord(s.f, pos.Offset, size, *bp)
-	if err != nil {
+	if errors.As(err, new(badRecord)) {
 		return nil, fmt.Errorf("%w: segment %s offset %d: %v", ErrCorrupt, s.name, pos.Offset, err)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("seglog: read %s at %d: %w", s.name, pos.Offset, err)
 	}
 	start := pos.Offset + headerSize + int64(h.uidLen)
 	return &Record{Pos: pos, UID: uid, SectionReader: io.NewSectionReader(s.f, start, h.payload)}, nil

@@ -115,7 +115,7 @@ func decodeHeader(b []byte) (header, error) {
 // checksum. buf is scratch for that read.
 func readRecord(f io.ReaderAt, off, size int64, buf []byte) (header, string, error) {
 	if size-off < headerSize {
-		return header{}, "", fmt.Errorf("short header: %d bytes left", size-off)
+		return header{}, "", badRecord{fmt.Sprintf("short header: %d bytes left", size-off)}
 	}
 	var hb [headerSize + maxUID]byte
 	if _, err := f.ReadAt(hb[:headerSize], off); err != nil {
@@ -123,10 +123,10 @@ func readRecord(f io.ReaderAt, off, size int64, buf []byte) (header, string, err
 	}
 	h, err := decodeHeader(hb[:headerSize])
 	if err != nil {
-		return header{}, "", err
+		return header{}, "", badRecord{err.Error()}
 	}
 	if end := off + headerSize + int64(h.uidLen) + h.payload; end > size || end < off {
-		return header{}, "", fmt.Errorf("record of %d payload bytes runs past the end (%d)", h.payload, size)
+		return header{}, "", badRecord{fmt.Sprintf("record of %d payload bytes runs past the end (%d)", h.payload, size)}
 	}
 	hu := hb[:headerSize+h.uidLen]
 	if _, err := f.ReadAt(hu[headerSize:], off+headerSize); err != nil {
@@ -137,10 +137,16 @@ func readRecord(f io.ReaderAt, off, size int64, buf []byte) (header, string, err
 		return header{}, "", fmt.Errorf("read payload: %w", err)
 	}
 	if got != h.crc {
-		return header{}, "", fmt.Errorf("checksum %08x, header says %08x", got, h.crc)
+		return header{}, "", badRecord{fmt.Sprintf("checksum %08x, header says %08x", got, h.crc)}
 	}
 	return h, string(hu[headerSize:]), nil
 }
+
+// badRecord is a record that fails its checks, as opposed to a read
+// that failed: only the first may be cut off as a torn tail.
+type badRecord struct{ why string }
+
+func (b badRecord) Error() string { return b.why }
 
 // crcOf reads r to its end and returns the CRC-32C c continued over it.
 func crcOf(c uint32, r io.Reader, buf []byte) (uint32, error) {
