@@ -6,7 +6,7 @@
 // The data flow, one direction:
 //
 //	files --(audit/header: identity)--> grouped by study
-//	      --(audit/dwi: ExtractFile)--> frames with pixels
+//	      --(audit/header: ExtractFile)--> frames with pixels
 //	      --(audit/dwi: AssembleStudy)--> volumes on a slice grid, facts
 //	      --(audit/analysis: Analyze)--> traces, ADC, eADC, masks, measures
 //	      --(rules: every enabled Rule)--> findings

@@ -57,9 +57,9 @@ type Engine struct {
 	Analysis analysis.AnalyzeConfig
 	// Tolerances tune volume assembly (dwi.AssembleStudy).
 	Tolerances dwi.Tolerances
-	// Extract tunes file reading (dwi.ExtractFile) in AuditFiles:
+	// Extract tunes file reading (header.ExtractFile) in AuditFiles:
 	// private b-value sources, scanner labels. Pixels are always loaded.
-	Extract dwi.ExtractOptions
+	Extract header.ExtractOptions
 	// Logger gets a line per rule that panics and per study that could
 	// not be assembled; UIDs and rule IDs only, never patient data. Nil
 	// discards.
@@ -162,8 +162,11 @@ type SeriesReport struct {
 	Scanner string
 	// Protocol names the matched protocol or phantom profile ("" when
 	// none matched).
-	Protocol      string
-	BValues       []float64 // nominal b-values present, s/mm², ascending
+	Protocol string
+	BValues  []float64 // nominal b-values present, s/mm², ascending
+	// Volumes is the series' gradient table (dwi.Series.GradientTable):
+	// one row per acquired volume, repeats counted in its images.
+	Volumes       []dwi.TableRow
 	Measures      analysis.Measures
 	CannotCompute string
 	// PhantomADC is the central-region ADC of a phantom series
@@ -188,12 +191,37 @@ type Report struct {
 	// Files is how many files AuditFiles looked at; NotDICOM how many of
 	// them were not DICOM Part 10 files and were skipped.
 	Files, NotDICOM int
+	// Derived lists the series of derived maps the audit does not use
+	// (FA, colour FA, tensor b0; dwi.Study.Derived): known, not audited,
+	// no finding. Ordered like Series.
+	Derived []DerivedReport
+	// Ignored lists the DICOM files that hold no image the audit reads
+	// (another SOP Class, e.g. a maker's private non-image object): a
+	// note each, no finding.
+	Ignored []IgnoredFile
+}
+
+// DerivedReport is a series of derived maps, listed with its kind.
+type DerivedReport struct {
+	StudyUID, SeriesUID string
+	SeriesNumber        int
+	SeriesDescription   string
+	Kind                string // dwi.MapKind's name: "FA map", "colour FA map", "tensor b0", ...
+	Images              int
+}
+
+// IgnoredFile is a DICOM file left out of the audit, and why.
+type IgnoredFile struct {
+	Path                string
+	StudyUID, SeriesUID string
+	SOPClassUID         string
+	Reason              string
 }
 
 // AuditFrames audits images already read (what the pipeline calls for a
 // settled series' study): the frames are grouped by study, each study
 // assembled, every diffusion series computed, and the rules run. The
-// frames must carry their pixels (dwi.ExtractOptions.LoadPixels). The
+// frames must carry their pixels (header.ExtractOptions.LoadPixels). The
 // report keeps the studies.
 func (e *Engine) AuditFrames(ctx context.Context, frames []dwi.Frame) (*Report, error) {
 	if err := e.ready(); err != nil {
@@ -261,6 +289,11 @@ func (e *Engine) AuditFiles(ctx context.Context, paths []string) (*Report, error
 			rep.NotDICOM++
 		case err != nil:
 			rep.Findings = append(rep.Findings, e.fileFailed(files[i], err)...)
+		case dwi.Classify(dwi.ClassifyInput{SOPClassUID: ids[i].SOPClassUID}) == dwi.KindNonImage:
+			// Not an image (a private non-image object, a report): a
+			// note, not a failure of its series.
+			rep.Ignored = append(rep.Ignored, IgnoredFile{Path: files[i], StudyUID: ids[i].StudyInstanceUID, SeriesUID: ids[i].SeriesInstanceUID,
+				SOPClassUID: ids[i].SOPClassUID, Reason: "SOP Class " + ids[i].SOPClassUID + " is not an image the audit reads"})
 		default:
 			uid := ids[i].StudyInstanceUID
 			byStudy[uid] = append(byStudy[uid], i)
@@ -274,7 +307,7 @@ func (e *Engine) AuditFiles(ctx context.Context, paths []string) (*Report, error
 		perFile := make([][]dwi.Frame, len(idx))
 		errs := make([]error, len(idx))
 		if err := e.parallel(ctx, len(idx), func(k int) {
-			perFile[k], errs[k] = dwi.ExtractFile(files[idx[k]], opt)
+			perFile[k], errs[k] = header.ExtractFile(files[idx[k]], opt)
 		}); err != nil {
 			return nil, err
 		}
@@ -396,12 +429,14 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 		uid := fe.id.SeriesInstanceUID
 		failedFiles[uid] = append(failedFiles[uid], fe)
 	}
+	// A series with unreadable files is audited on the images that
+	// could be read; the files that could not get their own finding.
 	for _, s := range asm.Series {
-		var ferr error
-		if fe := failedFiles[s.SeriesInstanceUID]; len(fe) > 0 {
-			ferr = filesError(fe)
-		}
-		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, s, nil, ferr))
+		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, s, nil, nil))
+	}
+	for _, d := range asm.Derived {
+		rep.Derived = append(rep.Derived, DerivedReport{StudyUID: in.uid, SeriesUID: d.SeriesInstanceUID, SeriesNumber: d.SeriesNumber,
+			SeriesDescription: d.SeriesDescription, Kind: d.Kind.String(), Images: d.Images})
 	}
 	_ = e.parallel(ctx, len(st.Series), func(i int) {
 		sa := st.Series[i]
@@ -421,6 +456,9 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 		se := *se
 		se.Err = fmt.Errorf("cannot be assembled: %w", se.Err)
 		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, nil, nil, &se))
+	}
+	for _, d := range asm.Derived {
+		placed[d.SeriesInstanceUID] = true
 	}
 	for _, uid := range sortedKeys(failedFiles) {
 		if !placed[uid] {
@@ -450,6 +488,15 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 	}
 	var failed []rules.Finding
 	for _, sa := range st.Series {
+		if s := sa.Series; s != nil && sa.Err == nil {
+			if fe := failedFiles[s.SeriesInstanceUID]; len(fe) > 0 {
+				failed = append(failed, rules.ImagesUnreadable(sa, filesError(fe).Error()))
+			}
+			if ng := s.Facts.NoGeometry; len(ng) > 0 {
+				failed = append(failed, rules.ImagesUnreadable(sa, fmt.Sprintf(
+					"%d image(s) have no usable Image Position and Orientation (Patient) and cannot be placed on the slice grid (the first: %s)", len(ng), ng[0])))
+			}
+		}
 		switch {
 		case sa.Err != nil:
 			failed = append(failed, rules.AuditFailed(sa, sa.Err.Error()))
@@ -568,6 +615,7 @@ func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.I
 	if s := sa.Series; s != nil {
 		r.SeriesUID, r.SeriesNumber, r.SeriesDescription = s.SeriesInstanceUID, s.SeriesNumber, s.SeriesDescription
 		r.Scanner, r.BValues = scannerOf(s.Scanner), slices.Clone(s.Facts.BValues)
+		r.Volumes = s.GradientTable()
 	} else {
 		var se *dwi.SeriesError
 		if errors.As(sa.Err, &se) {
@@ -616,6 +664,9 @@ func scannerOf(s dwi.Scanner) string {
 // sort orders the report (see Report).
 func (r *Report) sort() {
 	slices.SortStableFunc(r.Series, func(a, b SeriesReport) int {
+		return cmp.Or(strings.Compare(a.StudyUID, b.StudyUID), cmp.Compare(a.SeriesNumber, b.SeriesNumber), strings.Compare(a.SeriesUID, b.SeriesUID))
+	})
+	slices.SortStableFunc(r.Derived, func(a, b DerivedReport) int {
 		return cmp.Or(strings.Compare(a.StudyUID, b.StudyUID), cmp.Compare(a.SeriesNumber, b.SeriesNumber), strings.Compare(a.SeriesUID, b.SeriesUID))
 	})
 	slices.SortStableFunc(r.Findings, func(a, b rules.Finding) int {

@@ -13,6 +13,7 @@ import (
 	"sync"
 	"time"
 
+	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 	"dwiaudit/store"
@@ -363,6 +364,10 @@ func (p *Pipeline) save(st store.Study, rep *Report, seen map[string]time.Time) 
 			labels[se.SeriesInstanceUID] = se.ScannerLabel
 		}
 	}
+	var derived []record.Derived
+	for _, d := range rep.Derived {
+		derived = append(derived, record.Derived{SeriesUID: d.SeriesUID, SeriesNumber: d.SeriesNumber, Kind: d.Kind, Images: d.Images})
+	}
 	ok := true
 	for _, uid := range order {
 		fs := append(slices.Clone(bySeries[uid]), studyWide...)
@@ -384,7 +389,7 @@ func (p *Pipeline) save(st store.Study, rep *Report, seen map[string]time.Time) 
 		}
 		if r := reports[uid]; r != nil {
 			rec.Scanner = r.Scanner
-			rec.Measures = measuresJSON(r)
+			rec.Measures = measuresJSON(r, derived)
 		} else if len(fs) > 0 {
 			rec.Scanner = fs[0].Scanner
 		}
@@ -505,7 +510,7 @@ func findingsJSON(fs []rules.Finding) json.RawMessage {
 	return b
 }
 
-func measuresJSON(r *SeriesReport) json.RawMessage {
+func measuresJSON(r *SeriesReport, derived []record.Derived) json.RawMessage {
 	fin := record.Finite
 	m := r.Measures
 	b, err := json.Marshal(record.Measures{
@@ -522,9 +527,28 @@ func measuresJSON(r *SeriesReport) json.RawMessage {
 		CannotCompute:          r.CannotCompute,
 		PhantomADC:             fin(r.PhantomADC),
 		PhantomExpectedADC:     fin(r.PhantomExpectedADC),
+		Volumes:                VolumeRecords(r.Volumes),
+		Derived:                derived,
 	})
 	if err != nil {
 		return nil
 	}
 	return b
+}
+
+// VolumeRecords is a gradient table as it is stored and printed
+// (record.Volume); nil for none.
+func VolumeRecords(rows []dwi.TableRow) []record.Volume {
+	if len(rows) == 0 {
+		return nil
+	}
+	out := make([]record.Volume, len(rows))
+	for i, r := range rows {
+		out[i] = record.Volume{BValue: r.BValue, BValueMeasured: r.BValueMeasured, Kind: r.Weighting.String(), Images: r.Images, Slices: r.Slices}
+		if r.Direction != nil {
+			d := [3]float64(*r.Direction)
+			out[i].Direction = &d
+		}
+	}
+	return out
 }

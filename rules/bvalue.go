@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"dwiaudit/audit/dwi"
 )
 
 // bvalueMismatch is rule bvalue-mismatch: the diffusion weighting the
@@ -145,10 +147,17 @@ func inconsistentB(sa *SeriesAudit, e expectation) []Finding {
 	trImages := 0
 	for _, v := range acquired(s) {
 		off := false
-		for _, fr := range v.Slices {
-			if fr == nil {
-				continue
-			}
+		// Every image, repeats included; against the volume's measured
+		// mean (its nominal value is rounded).
+		ref := v.BValue
+		if v.BValueMeasured != 0 {
+			ref = v.BValueMeasured
+		}
+		var images []*dwi.Frame
+		for z := range v.Slices {
+			images = append(images, v.ImagesAt(z)...)
+		}
+		for _, fr := range images {
 			b := 0.0
 			if fr.HasBValue {
 				b = fr.BValue
@@ -163,7 +172,7 @@ func inconsistentB(sa *SeriesAudit, e expectation) []Finding {
 					trTrace = appendDistinct(trTrace, math.Round(tr))
 				}
 			}
-			if math.Abs(b-v.BValue) > e.tol(v.BValue) || (listed[fr.ID()] && !traceOff) {
+			if math.Abs(b-ref) > e.tol(ref) || (listed[fr.ID()] && !traceOff) {
 				volImages++
 				volB = appendDistinct(volB, b)
 				off = true

@@ -15,7 +15,7 @@
 //   - expect.go: what a series is held to, its protocol's values or, when
 //     no protocol matches, defaults from physics alone;
 //   - one file per rule: missingb0.go (missing-b0), bvalue.go
-//     (bvalue-mismatch), incomplete.go (incomplete-series), geometry.go
+//     (bvalue-mismatch), directions.go (unknown-directions), incomplete.go (incomplete-series), geometry.go
 //     (geometry-mismatch), adcrange.go (adc-out-of-range), hotspot.go
 //     (b0-only-hotspot), lowsnr.go (low-snr), scanneradc.go
 //     (scanner-adc-disagrees), phantomadc.go (phantom-adc-bias); all.go

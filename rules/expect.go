@@ -98,7 +98,9 @@ func fmtADC(v float64) string { return fmt.Sprintf("%.2fe-3 mm²/s", v*1e3) }
 func fmtB(bs ...float64) string {
 	parts := make([]string, len(bs))
 	for i, b := range bs {
-		parts[i] = strconv.FormatFloat(b, 'f', -1, 64)
+		// Nominal values are whole numbers; a measured one (an image's
+		// own b-value) reads to a tenth, never 999.9979999999283.
+		parts[i] = strconv.FormatFloat(math.Round(b*10)/10, 'f', -1, 64)
 	}
 	return strings.Join(parts, ", ") + " s/mm²"
 }

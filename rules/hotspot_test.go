@@ -11,6 +11,7 @@ import (
 	"dwiaudit/audit/adc"
 	"dwiaudit/audit/analysis"
 	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/audit/phantom"
 )
 
@@ -29,7 +30,7 @@ func hotspotBuildStudy(dir string, opt phantom.Options) (*Study, *phantom.Study,
 	}
 	var frames []dwi.Frame
 	for _, path := range st.Files {
-		f, err := dwi.ExtractFile(path, dwi.ExtractOptions{LoadPixels: true})
+		f, err := header.ExtractFile(path, header.ExtractOptions{LoadPixels: true})
 		if err != nil {
 			return nil, nil, fmt.Errorf("ExtractFile(%s): %w", path, err)
 		}

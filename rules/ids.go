@@ -12,6 +12,7 @@ const (
 	IDLowSNR              = "low-snr"
 	IDScannerADCDisagrees = "scanner-adc-disagrees"
 	IDPhantomADCBias      = "phantom-adc-bias"
+	IDUnknownDirections   = "unknown-directions"
 	// IDAuditFailed is not a Rule: the pipeline (and Run, for a rule
 	// that panics) emits it for a series it could not audit.
 	IDAuditFailed = "audit-failed"

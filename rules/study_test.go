@@ -8,6 +8,7 @@ import (
 
 	"dwiaudit/audit/analysis"
 	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/audit/phantom"
 	"dwiaudit/rules"
 )
@@ -26,7 +27,7 @@ func loadPhantomStudy(t testing.TB, opt phantom.Options, cfg *rules.Config) (*ru
 	}
 	var frames []dwi.Frame
 	for _, path := range ps.Files {
-		f, err := dwi.ExtractFile(path, dwi.ExtractOptions{LoadPixels: true})
+		f, err := header.ExtractFile(path, header.ExtractOptions{LoadPixels: true})
 		if err != nil {
 			t.Fatalf("ExtractFile(%s): %v", path, err)
 		}

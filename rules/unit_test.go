@@ -1,6 +1,7 @@
 package rules_test
 
 import (
+	"fmt"
 	"math"
 	"slices"
 	"strings"
@@ -465,7 +466,7 @@ func TestAuditFailedNamesTheSeriesEvenWithoutAnAssembly(t *testing.T) {
 }
 
 func TestAllHoldsEveryRuleOnce(t *testing.T) {
-	want := []string{rules.IDMissingB0, rules.IDBValueMismatch, rules.IDIncompleteSeries, rules.IDGeometryMismatch, rules.IDADCOutOfRange,
+	want := []string{rules.IDMissingB0, rules.IDBValueMismatch, rules.IDUnknownDirections, rules.IDIncompleteSeries, rules.IDGeometryMismatch, rules.IDADCOutOfRange,
 		rules.HotspotID, rules.IDLowSNR, rules.IDScannerADCDisagrees, rules.IDPhantomADCBias} // issue 5's rule list, audit-failed aside
 	var got []string
 	for _, r := range rules.All() {
@@ -473,5 +474,75 @@ func TestAllHoldsEveryRuleOnce(t *testing.T) {
 	}
 	if !slices.Equal(got, want) {
 		t.Errorf("All() = %v, want %v", got, want)
+	}
+}
+
+// frameAt is a hand-built image at slice position z with b-value b and,
+// when dir is not zero, a gradient direction; pixels all v.
+func frameAt(uid string, z, b float64, dir dwi.Direction, v float32) dwi.Frame {
+	f := dwi.Frame{SOPInstanceUID: uid, StudyInstanceUID: "1.2.3", SeriesInstanceUID: "1.2.3.4", SeriesNumber: 7, SeriesDescription: "DWI",
+		BValue: b, HasBValue: true, Geometry: unitGeometry(z), Pixels: make([]float32, unitPixels*unitPixels)}
+	if b == 0 {
+		f.Directionality = dwi.DirectionalityNone
+	}
+	if dir != (dwi.Direction{}) {
+		f.Directionality, f.Gradient, f.HasGradient = dwi.DirectionalityDirectional, dir, true
+	}
+	for i := range f.Pixels {
+		f.Pixels[i] = v
+	}
+	return f
+}
+
+func TestUnknownDirectionsOnAssembledSeries(t *testing.T) {
+	g := grid(3)
+	build := func(dirs []dwi.Direction) []dwi.Frame {
+		var fs []dwi.Frame
+		for z, p := range g {
+			fs = append(fs, frameAt(fmt.Sprintf("1.2.3.4.%d.0", z), p, 0, dwi.Direction{}, 1000))
+			for k, d := range dirs {
+				fs = append(fs, frameAt(fmt.Sprintf("1.2.3.4.%d.%d", z, k+1), p, 999.9979999999283, d, 400+float32(k)))
+			}
+		}
+		return fs
+	}
+	cases := []struct {
+		name  string
+		dirs  []dwi.Direction
+		want  int // findings
+		words []string
+	}{
+		// PS3.3 C.8.13.5.9: a DIRECTIONAL image gives its Diffusion
+		// Gradient Orientation; these give none, and no ISOTROPIC label.
+		{"three weighted images per slice without direction are a warning", make([]dwi.Direction, 3), 1,
+			[]string{"b = 1000 s/mm²: 9 images, up to 3 on one slice", "geometric mean", "ADC may be wrong"}},
+		{"one weighted image per slice without direction is the trace, with nothing to say", make([]dwi.Direction, 1), 0, nil},
+		{"three directions given are silent", []dwi.Direction{dirX, dirY, dirZ}, 0, nil},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			s, err := dwi.AssembleSeries(build(c.dirs), dwi.DefaultTolerances())
+			if err != nil {
+				t.Fatal(err)
+			}
+			cfg := rules.DefaultConfig()
+			fs := run(t, rules.NewUnknownDirections(), unitStudy(cfg, s), cfg)
+			if len(fs) != c.want {
+				t.Fatalf("%d findings, want %d: %s", len(fs), c.want, describe(fs))
+			}
+			for _, f := range fs {
+				if f.Rule != rules.IDUnknownDirections || f.Severity != rules.SeverityWarning || f.Measured != 9.0 {
+					t.Errorf("finding %+v", f)
+				}
+				for _, w := range c.words {
+					if !strings.Contains(f.Message, w) {
+						t.Errorf("message %q lacks %q", f.Message, w)
+					}
+				}
+				if strings.Contains(f.Message, "999.99") {
+					t.Errorf("message %q shows a measured b-value, not the nominal one", f.Message)
+				}
+			}
+		})
 	}
 }

@@ -53,11 +53,41 @@ func isStorageSOPClass(uid string) bool {
 	return strings.HasPrefix(uid, storageSOPClassRoot) && len(uid) > len(storageSOPClassRoot)
 }
 
+// Encapsulated transfer syntaxes whose pixel data the audit decodes
+// (package audit/codec; PS3.6 Table A-1 UIDs). The network layer does not
+// import the audit, so the list is kept here; a test in audit/codec checks
+// that it names exactly the syntaxes that package decodes.
+var decodableEncapsulated = map[string]bool{
+	"1.2.840.10008.1.2.5":    true,  // RLE Lossless
+	"1.2.840.10008.1.2.4.57": true,  // JPEG Lossless, Process 14
+	"1.2.840.10008.1.2.4.70": true,  // JPEG Lossless, Process 14, Selection Value 1
+	"1.2.840.10008.1.2.4.80": true,  // JPEG-LS Lossless
+	"1.2.840.10008.1.2.4.81": false, // JPEG-LS Near-Lossless: decoded, lossy (ranked after the lossless ones)
+	"1.2.840.10008.1.2.4.50": false, // JPEG Baseline: decoded, lossy
+	"1.2.840.10008.1.2.4.51": false, // JPEG Extended: decoded, lossy
+}
+
+// Decodable reports whether the audit can read the pixel data of a data
+// set in transfer syntax ts: the native syntaxes, and the encapsulated
+// ones package audit/codec decodes.
+func Decodable(ts string) bool {
+	switch ts {
+	case ExplicitVRLittleEndian, ImplicitVRLittleEndian, deflatedExplicitVRLittleEndian, explicitVRBigEndian:
+		return true
+	}
+	_, ok := decodableEncapsulated[ts]
+	return ok
+}
+
 // transferSyntaxRank orders the transfer syntaxes the acceptor prefers;
 // lower is better. The uncompressed little-endian syntaxes come first
 // because the audit can read them without decoding; deflated and big
-// endian follow; encapsulated syntaxes known to the data-set library are
-// taken last and stored as received. Zero means "not acceptable".
+// endian follow; then the encapsulated syntaxes the audit decodes,
+// lossless before lossy; other encapsulated syntaxes known to the
+// data-set library are taken last, stored as received, and reported by
+// the audit as not decodable. So the acceptor never picks a syntax the
+// audit cannot decode when the peer proposes one it can. Zero means "not
+// acceptable".
 func transferSyntaxRank(ts string) int {
 	switch ts {
 	case ExplicitVRLittleEndian:
@@ -69,10 +99,16 @@ func transferSyntaxRank(ts string) int {
 	case explicitVRBigEndian:
 		return 4
 	}
-	if knownTransferSyntax(ts) {
+	lossless, decodable := decodableEncapsulated[ts]
+	switch {
+	case !knownTransferSyntax(ts):
+		return 0
+	case decodable && lossless:
 		return 5
+	case decodable:
+		return 6
 	}
-	return 0
+	return 7
 }
 
 // knownTransferSyntax reports whether the data-set library

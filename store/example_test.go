@@ -9,24 +9,10 @@ import (
 	"path/filepath"
 	"time"
 
-	"dwiaudit/audit/header"
 	"dwiaudit/audit/synth"
 	"dwiaudit/scp/part10"
 	"dwiaudit/store"
 )
-
-// describe is a Describe over the audit's header reader, as the node
-// wires it: the store keeps what it returns in its index.
-func describe(path string) (store.Attributes, error) {
-	id, err := header.ReadFile(path)
-	if err != nil {
-		return store.Attributes{}, err
-	}
-	return store.Attributes{
-		StudyInstanceUID: id.StudyInstanceUID, SeriesInstanceUID: id.SeriesInstanceUID,
-		Modality: id.Modality, SeriesNumber: id.SeriesNumber, InstanceNumber: id.InstanceNumber,
-	}, nil
-}
 
 // A data set arrives as a C-STORE would hand it over (no file meta), is
 // stored durably, and is found again by SOP instance UID and by series.
@@ -58,6 +44,12 @@ func Example() {
 		return
 	}
 
+	// Describe reads a received file's header for the index; the node
+	// wires the audit's header reader here. This example knows its one
+	// image already.
+	describe := func(path string) (store.Attributes, error) {
+		return store.Attributes{StudyInstanceUID: "2.25.4242", SeriesInstanceUID: "2.25.4242.1", Modality: "MR", SeriesNumber: 1}, nil
+	}
 	s, err := store.Open(store.Options{Dir: filepath.Join(tmp, "data"), Location: time.UTC, Describe: describe})
 	if err != nil {
 		fmt.Println(err)

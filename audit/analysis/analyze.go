@@ -353,12 +353,28 @@ func groupByB(vols []*dwi.Volume) []bGroup {
 	return groups
 }
 
+// undecodedReason says why a series with compressed pixel data the audit
+// does not decode cannot be computed: the header reader's reason, which
+// names the transfer syntax (dwi.Frame.Undecoded).
+func undecodedReason(groups []bGroup) string {
+	for _, g := range groups {
+		for _, v := range append(slices.Clip(g.isotropic), g.directional...) {
+			for _, f := range v.Slices {
+				if f != nil && f.Encapsulated && f.Undecoded != "" {
+					return f.Undecoded
+				}
+			}
+		}
+	}
+	return "compressed (encapsulated) pixel data in a transfer syntax the audit does not decode"
+}
+
 // shape finds the size of the series' volumes, or why they cannot be
 // computed: compressed pixel data, pixels not loaded, images of
 // different sizes.
 func shape(s *dwi.Series, groups []bGroup) (rows, cols, nslices int, reason string) {
 	if s.Facts.Encapsulated {
-		return 0, 0, 0, "compressed (encapsulated) pixel data: the audit does not decode it"
+		return 0, 0, 0, undecodedReason(groups)
 	}
 	rows, cols = s.Reference.Rows, s.Reference.Columns
 	nslices = len(s.Grid)
@@ -371,7 +387,7 @@ func shape(s *dwi.Series, groups []bGroup) (rows, cols, nslices int, reason stri
 				}
 				switch {
 				case f.Encapsulated:
-					return 0, 0, 0, "compressed (encapsulated) pixel data: the audit does not decode it"
+					return 0, 0, 0, undecodedReason(groups)
 				case rows == 0 && cols == 0:
 					rows, cols = f.Geometry.Rows, f.Geometry.Columns
 				}

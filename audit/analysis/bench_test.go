@@ -19,7 +19,7 @@ import (
 //     leaves it;
 //   - assemble+analyze: dwi.AssembleSeries of the 300 frames already read
 //     from a phantom study, then Analyze;
-//   - read+assemble+analyze: dwi.ExtractFile of the 300 files, assembly
+//   - read+assemble+analyze: header.ExtractFile of the 300 files, assembly
 //     and Analyze.
 //
 // Metrics: ADC-voxels/s (voxels of the ADC map per second of the scope),

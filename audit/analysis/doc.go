@@ -4,8 +4,8 @@
 // shares of tissue above the free-water ceiling and below zero, b0 and
 // high-b SNR).
 //
-// The parts fit like this: package audit/dwi reads the headers and
-// pixels and assembles volumes on a common slice grid; Analyze (this
+// The parts fit like this: package audit/header reads the headers and
+// pixels, package audit/dwi assembles volumes on a common slice grid; Analyze (this
 // package) picks the reference and high-b volumes, builds the traces and
 // calls package audit/adc, which holds the arithmetic on plain slices;
 // the rules read Result.Measures and the maps. Physics and check values

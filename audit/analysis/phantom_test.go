@@ -7,6 +7,7 @@ import (
 
 	"dwiaudit/audit/adc"
 	"dwiaudit/audit/dwi"
+	"dwiaudit/audit/header"
 	"dwiaudit/audit/phantom"
 )
 
@@ -43,7 +44,7 @@ func readFrames(t testing.TB, files []string) []dwi.Frame {
 	t.Helper()
 	var frames []dwi.Frame
 	for _, path := range files {
-		f, err := dwi.ExtractFile(path, dwi.ExtractOptions{LoadPixels: true})
+		f, err := header.ExtractFile(path, header.ExtractOptions{LoadPixels: true})
 		if err != nil {
 			t.Fatalf("ExtractFile(%s): %v", path, err)
 		}

@@ -6,6 +6,8 @@ import (
 	"math"
 	"slices"
 	"strings"
+
+	"dwiaudit/audit/adc"
 )
 
 // Geometry sanity and grid inference.
@@ -29,12 +31,14 @@ const (
 // (Patient) projected on the normal of the row and column direction
 // cosines (PS3.3 C.7.6.2.1.1), positions within tol.SlicePosition being
 // one slice. A gradient g and its opposite -g are two directions: they
-// are two acquisitions, even though they weight diffusion alike. Scanner ADC and eADC maps go to Series.Maps, other derived
-// images (FA) are left out. The Series points into frames, which must not
+// are two acquisitions, even though they weight diffusion alike. Scanner
+// ADC and eADC maps go to Series.Maps; other derived images (FA, colour
+// FA, tensor b0: MapKind.Audited false) are left out, and AssembleStudy
+// lists a series made only of them in Study.Derived. The Series points into frames, which must not
 // change while it is in use.
 //
-// Errors: ErrNoImages when no image can be placed, ErrMixedSeries,
-// ErrMissingGeometry naming the first image without geometry,
+// Errors: ErrNoImages when no image can be placed, ErrMissingGeometry
+// (naming the first) when no image has usable geometry, ErrMixedSeries,
 // ErrInvalidOptions for bad tolerances. Everything else that is wrong
 // with the series is reported in Series.Facts.
 func AssembleSeries(frames []Frame, tol Tolerances) (*Series, error) {
@@ -59,7 +63,7 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 		}
 	}
 	// A fixed order, whatever order the images arrived in: the first of
-	// two duplicates is the one kept.
+	// two repeats gives the combined slice its header.
 	sorted := slices.Clone(frames)
 	slices.SortStableFunc(sorted, func(a, b *Frame) int {
 		return cmp.Or(cmp.Compare(a.InstanceNumber, b.InstanceNumber),
@@ -69,24 +73,38 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 
 	s := &Series{SeriesInstanceUID: seriesUID}
 	var placed []*Frame
+	var geomErr error // the first image without usable geometry
 	for _, f := range sorted {
+		if !f.Kind.Audited() {
+			continue // a derived map the audit does not use (FA, ...): listed, not placed
+		}
 		if f.Encapsulated {
 			s.Facts.Encapsulated = true
 		}
-		if f.Kind == KindOtherDerived {
+		// An image that cannot be placed is left out and named; only a
+		// series none of whose images can be placed fails.
+		if !f.Geometry.Known {
+			s.Facts.NoGeometry = append(s.Facts.NoGeometry, f.ID())
+			if geomErr == nil {
+				geomErr = fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())
+			}
 			continue
 		}
-		if !f.Geometry.Known {
-			return nil, fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())
-		}
 		if _, ok := normalOf(f.Geometry.Orientation); !ok {
-			return nil, fmt.Errorf("%w: image %s: Image Orientation (Patient) %v is not two orthogonal unit vectors", ErrMissingGeometry, f.ID(), f.Geometry.Orientation)
+			s.Facts.NoGeometry = append(s.Facts.NoGeometry, f.ID())
+			if geomErr == nil {
+				geomErr = fmt.Errorf("%w: image %s: Image Orientation (Patient) %v is not two orthogonal unit vectors", ErrMissingGeometry, f.ID(), f.Geometry.Orientation)
+			}
+			continue
 		}
 		if f.Kind == KindAcquired && !f.HasBValue && f.Directionality != DirectionalityNone {
 			s.Facts.NoBValue = append(s.Facts.NoBValue, f.ID())
 			continue
 		}
 		placed = append(placed, f)
+	}
+	if len(placed) == 0 && geomErr != nil {
+		return nil, geomErr
 	}
 	if len(placed) == 0 {
 		return nil, fmt.Errorf("%w: none of the %d images of series %s has a b-value or is a diffusion map", ErrNoImages, len(frames), seriesUID)
@@ -136,20 +154,20 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 	s.Volumes = volumes
 
 	// Images whose b-value disagrees with their volume's or with their
-	// b-matrix trace (XX + YY + ZZ = b, PS3.3 C.8.13.5.9).
+	// b-matrix trace (XX + YY + ZZ = b, PS3.3 C.8.13.5.9). The measured
+	// mean is the reference: the nominal value is rounded.
 	for _, v := range s.Volumes {
-		for _, f := range v.Slices {
-			if f == nil {
-				continue
-			}
-			b := bOf(f)
-			off := math.Abs(b-v.BValue) > tol.bTolerance(v.BValue)
-			if f.HasBMatrix {
-				tr := f.BMatrix[0] + f.BMatrix[3] + f.BMatrix[5]
-				off = off || math.Abs(tr-b) > tol.bTolerance(b)
-			}
-			if off {
-				s.Facts.InconsistentB = append(s.Facts.InconsistentB, f.ID())
+		for z := range v.Slices {
+			for _, f := range v.ImagesAt(z) {
+				b := bOf(f)
+				off := math.Abs(b-v.BValueMeasured) > tol.bTolerance(v.BValueMeasured)
+				if f.HasBMatrix {
+					tr := f.BMatrix[0] + f.BMatrix[3] + f.BMatrix[5]
+					off = off || math.Abs(tr-b) > tol.bTolerance(b)
+				}
+				if off {
+					s.Facts.InconsistentB = append(s.Facts.InconsistentB, f.ID())
+				}
 			}
 		}
 	}
@@ -158,21 +176,28 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 }
 
 // group makes the volumes of the images idx of placed: by b-value
-// cluster, then (acquired images only) by gradient direction.
+// cluster, then (acquired images only) by gradient direction. Images of
+// one volume on one slice are combined (combine).
 func (s *Series) group(placed []*Frame, idx []int, slot []int, tol Tolerances, maps bool) []*Volume {
 	if len(idx) == 0 {
 		return nil
 	}
+	// Direction keys of images without a direction.
+	const (
+		dirNone       = -1 // b0, or the scanner's trace
+		dirUnlabelled = -2 // weighted, no direction, no isotropic label
+	)
 	type key struct {
 		kind MapKind
 		b    int // b-value cluster
-		dir  int // direction cluster, -1 isotropic
+		dir  int // direction cluster, or dirNone / dirUnlabelled
 	}
 	bs := make([]float64, len(idx))
 	for i, j := range idx {
 		bs[i] = bOf(placed[j])
 	}
-	bslot, nominal := cluster1D(bs, tol.bTolerance)
+	bslot, measured := cluster1D(bs, tol.bTolerance)
+	nominal := nominalValues(bs, bslot, measured, tol)
 	cosMax := math.Cos(tol.Direction * math.Pi / 180)
 
 	dirs := map[int][]Direction{} // per b cluster
@@ -180,9 +205,10 @@ func (s *Series) group(placed []*Frame, idx []int, slot []int, tol Tolerances, m
 	var out []*Volume
 	for i, j := range idx {
 		f := placed[j]
-		k := key{kind: f.Kind, b: bslot[i], dir: -1}
+		k := key{kind: f.Kind, b: bslot[i], dir: dirNone}
+		b := nominal[k.b]
 		var d Direction
-		if !maps && nominal[k.b] > tol.BValue {
+		if !maps && measured[k.b] > tol.BValue {
 			if dd, ok := directionOf(f); ok {
 				d = dd
 				k.dir = -1
@@ -198,29 +224,156 @@ func (s *Series) group(placed []*Frame, idx []int, slot []int, tol Tolerances, m
 				}
 			}
 		}
+		w := WeightingB0
+		switch {
+		case maps || b <= tol.B0Max:
+		case k.dir >= 0:
+			w = WeightingDirection
+		case labelledTrace(f):
+			w = WeightingTrace
+		default:
+			w, k.dir = WeightingIsotropic, dirUnlabelled
+		}
 		v := byKey[k]
 		if v == nil {
 			v = &Volume{
-				BValue: nominal[k.b], Direction: d, Isotropic: k.dir < 0, Kind: f.Kind,
-				SeriesUID: s.SeriesInstanceUID, Slices: make([]*Frame, len(s.Grid)),
+				BValue: b, BValueMeasured: measured[k.b], Direction: d, Isotropic: k.dir < 0, Weighting: w, Kind: f.Kind,
+				SeriesUID: s.SeriesInstanceUID, Slices: make([]*Frame, len(s.Grid)), Images: make([][]*Frame, len(s.Grid)),
 			}
 			byKey[k] = v
 			out = append(out, v)
 		}
-		if v.Slices[slot[j]] != nil {
+		z := slot[j]
+		if slices.ContainsFunc(v.Images[z], func(g *Frame) bool { return g.ID() == f.ID() }) {
 			s.Facts.Duplicates = append(s.Facts.Duplicates, f.ID())
 			continue
 		}
-		v.Slices[slot[j]] = f
+		v.Images[z] = append(v.Images[z], f)
 	}
 	slices.SortStableFunc(out, func(a, b *Volume) int {
 		return cmp.Or(cmp.Compare(a.Kind, b.Kind), cmp.Compare(a.BValue, b.BValue),
-			-cmpBool(a.Isotropic, b.Isotropic),
+			-cmpBool(a.Isotropic, b.Isotropic), cmp.Compare(a.Weighting, b.Weighting),
 			cmp.Compare(a.Direction[0], b.Direction[0]), cmp.Compare(a.Direction[1], b.Direction[1]),
 			cmp.Compare(a.Direction[2], b.Direction[2]))
 	})
 	for _, v := range out {
+		s.combine(v, tol)
 		v.Geometry = firstGeometry(v)
+	}
+	return out
+}
+
+// combine makes each slice of v from its images: the one image as it
+// is; repeats of a b-value, direction and slice averaged (their
+// arithmetic mean, CombinedMean); images without a direction above B0Max
+// combined as a trace (their geometric mean, CombinedGeometricMean) and
+// reported in Facts.UnknownDirections. A repeat whose geometry differs
+// from the first image's is not combined: it is named in
+// Facts.GeometryMismatch.
+func (s *Series) combine(v *Volume, tol Tolerances) {
+	geometric := v.Weighting == WeightingIsotropic
+	images, perSlice := 0, 0
+	for z, imgs := range v.Images {
+		images += len(imgs)
+		perSlice = max(perSlice, len(imgs))
+		if len(imgs) == 0 {
+			continue
+		}
+		first := imgs[0]
+		use := []*Frame{first}
+		for _, f := range imgs[1:] {
+			if why := geometryDiff(f.Geometry, first.Geometry, tol); why != "" {
+				s.Facts.GeometryMismatch = append(s.Facts.GeometryMismatch, fmt.Sprintf("%v: repeat %s of image %s: %s", v, f.ID(), first.ID(), why))
+				continue
+			}
+			use = append(use, f)
+		}
+		if len(use) == 1 {
+			v.Slices[z] = first
+			continue
+		}
+		if !geometric {
+			for _, f := range use[1:] {
+				s.Facts.Repeats = append(s.Facts.Repeats, f.ID())
+			}
+			v.Combined = CombinedMean
+		} else {
+			v.Combined = CombinedGeometricMean
+		}
+		c := *first
+		c.Pixels = combinePixels(use, geometric)
+		v.Slices[z] = &c
+	}
+	if geometric && perSlice > 1 {
+		s.Facts.UnknownDirections = append(s.Facts.UnknownDirections, UnknownDirections{BValue: v.BValue, Images: images, PerSlice: perSlice})
+	}
+}
+
+// combinePixels is the pixel-wise arithmetic (or geometric) mean of the
+// images' pixels; nil when some image has none or they differ in length
+// (the analysis then says the pixels are missing).
+func combinePixels(fs []*Frame, geometric bool) []float32 {
+	n := len(fs[0].Pixels)
+	for _, f := range fs {
+		if f.Pixels == nil || len(f.Pixels) != n {
+			return nil
+		}
+	}
+	out := make([]float32, n)
+	if geometric {
+		in := make([][]float32, len(fs))
+		for i, f := range fs {
+			in[i] = f.Pixels
+		}
+		adc.GeometricMean(out, in...)
+		return out
+	}
+	for i := range out {
+		sum := 0.0
+		for _, f := range fs {
+			sum += float64(f.Pixels[i])
+		}
+		out[i] = float32(sum / float64(len(fs)))
+	}
+	return out
+}
+
+// labelledTrace says whether an image says it is the scanner's trace:
+// Diffusion Directionality ISOTROPIC (PS3.3 C.8.13.5.9), or Image Type
+// value TRACEW (common practice).
+func labelledTrace(f *Frame) bool {
+	if f.Directionality == DirectionalityIsotropic {
+		return true
+	}
+	return slices.ContainsFunc(f.ImageType, func(v string) bool { return strings.EqualFold(v, "TRACEW") })
+}
+
+// nominalValues are the nominal b-values of the clusters: 0 for a
+// cluster whose mean is within tol.BValue of 0; else the whole number
+// more than half of its values round to, when there is one; else its
+// mean rounded to a whole number. So 999.998 reads 1000, and a cluster
+// of 995, 1000, 1000 reads 1000.
+func nominalValues(bs []float64, slot []int, means []float64, tol Tolerances) []float64 {
+	out := make([]float64, len(means))
+	counts := make([]map[float64]int, len(means))
+	sizes := make([]int, len(means))
+	for i, b := range bs {
+		if counts[slot[i]] == nil {
+			counts[slot[i]] = map[float64]int{}
+		}
+		counts[slot[i]][math.Round(b)]++
+		sizes[slot[i]]++
+	}
+	for k, mean := range means {
+		if mean <= tol.BValue {
+			continue
+		}
+		out[k] = math.Round(mean)
+		for v, n := range counts[k] {
+			if 2*n > sizes[k] {
+				out[k] = v
+			}
+		}
 	}
 	return out
 }
@@ -294,7 +447,10 @@ func (v *Volume) String() string {
 	case KindOtherDerived:
 		return fmt.Sprintf("derived map b=%g", v.BValue)
 	}
-	if v.Isotropic {
+	switch {
+	case v.Weighting == WeightingIsotropic:
+		return fmt.Sprintf("b=%g without direction", v.BValue)
+	case v.Isotropic:
 		return fmt.Sprintf("b=%g isotropic", v.BValue)
 	}
 	return fmt.Sprintf("b=%g (%.3f,%.3f,%.3f)", v.BValue, v.Direction[0], v.Direction[1], v.Direction[2])

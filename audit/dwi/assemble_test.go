@@ -70,11 +70,11 @@ func TestClassicAndMultiframeGiveTheSameVolumes(t *testing.T) {
 	s.slope, s.intercept = 0.5, 3
 	for _, ts := range allSyntaxes {
 		t.Run("classic and Enhanced MR in "+ts+" give the same b-values, directions, grid and pixels", func(t *testing.T) {
-			classic, err := AssembleSeries(extractAll(t, s.classic(t, ts), ExtractOptions{LoadPixels: true}), DefaultTolerances())
+			classic, err := AssembleSeries(extractAll(t, s.classic(t, ts)), DefaultTolerances())
 			if err != nil {
 				t.Fatal(err)
 			}
-			multi, err := AssembleSeries(extractAll(t, [][]byte{s.enhanced(t, ts)}, ExtractOptions{LoadPixels: true}), DefaultTolerances())
+			multi, err := AssembleSeries(extractAll(t, [][]byte{s.enhanced(t, ts)}), DefaultTolerances())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -99,7 +99,7 @@ func TestClassicAndMultiframeGiveTheSameVolumes(t *testing.T) {
 // frames builds a series' frames from its classic files.
 func framesOf(t *testing.T, s testSeries) []Frame {
 	t.Helper()
-	return extractAll(t, s.classic(t, tsExplicitLE), ExtractOptions{LoadPixels: true})
+	return extractAll(t, s.classic(t, tsExplicitLE))
 }
 
 func TestBValuesWithinToleranceFormOneVolume(t *testing.T) {
@@ -116,7 +116,9 @@ func TestBValuesWithinToleranceFormOneVolume(t *testing.T) {
 		{"895 and 905 only", []img{{b: 895, dir: x, slice: 0}, {b: 905, dir: x, slice: 1}}, []float64{900}, []int{2}, 0},
 		// IVIM protocols step by 10 s/mm^2 at the low end (common practice).
 		{"IVIM b-values 0, 10, 20", []img{{b: 0}, {b: 10, dir: x}, {b: 20, dir: x}}, []float64{0, 10, 20}, []int{1, 1, 1}, 0},
-		{"a b0 written as 0 and as 4", []img{{b: 0, slice: 0}, {b: 4, directionality: "NONE", slice: 1}}, []float64{2}, []int{2}, 0},
+		// Within the b-value tolerance of 0, a b0 reads 0 (DefaultTolerances).
+		{"a b0 written as 0 and as 4", []img{{b: 0, slice: 0}, {b: 4, directionality: "NONE", slice: 1}}, []float64{0}, []int{2}, 0},
+		{"a b0 written as 0.002 and b 999.998", []img{{b: 0.0020000000717118383, directionality: "NONE"}, {b: 999.9979999999283, dir: x}}, []float64{0, 1000}, []int{1, 1}, 0},
 		{"800 and 1000", []img{{b: 800, dir: x}, {b: 1000, dir: x}}, []float64{800, 1000}, []int{1, 1}, 0},
 		{"a b-matrix whose trace is not the b-value", []img{{b: 1000, directionality: "BMATRIX", bmatrix: &[6]float64{700, 0, 0, 0, 0, 0}}}, []float64{1000}, []int{1}, 1},
 	}
@@ -212,12 +214,20 @@ func TestAssemblyReportsWhatIsWrongAsFacts(t *testing.T) {
 					t.Errorf("missing %+v, want one per volume", f.MissingSlices)
 				}
 			}},
-		{"an image sent twice", append(slices.Clone(four), img{b: 1000, dir: x, slice: 1}), nil,
+		{"a second image of one b-value, direction and slice", append(slices.Clone(four), img{b: 1000, dir: x, slice: 1}), nil,
 			func(t *testing.T, f Facts, s *Series) {
-				if len(f.Duplicates) != 1 || !strings.HasSuffix(f.Duplicates[0], ".17") {
-					t.Errorf("duplicates %v, want the later image (.17)", f.Duplicates)
+				if len(f.Repeats) != 1 || !strings.HasSuffix(f.Repeats[0], ".17") || f.Duplicates != nil {
+					t.Errorf("repeats %v, duplicates %v; want the later image (.17) as a repeat", f.Repeats, f.Duplicates)
 				}
 			}},
+		{"an image met twice", four, func(fs []Frame) {
+			// The same file read twice: the same SOP Instance UID.
+			fs[len(fs)-1] = fs[0]
+		}, func(t *testing.T, f Facts, s *Series) {
+			if len(f.Duplicates) != 1 || f.Repeats != nil {
+				t.Errorf("duplicates %v, repeats %v; want one duplicate and no repeat", f.Duplicates, f.Repeats)
+			}
+		}},
 		{"an image whose b-value is far from its volume's", four, func(fs []Frame) {
 			// Chained 1000 -> 1015 -> 1030 -> 1045 keeps one cluster of
 			// mean 1022.5; 1000 and 1045 are beyond 2% of it.
@@ -265,6 +275,13 @@ func TestAssemblyReportsWhatIsWrongAsFacts(t *testing.T) {
 		}, func(t *testing.T, f Facts, s *Series) {
 			if len(f.GeometryMismatch) != 1 || !strings.Contains(f.GeometryMismatch[0], "orientation") {
 				t.Errorf("geometry mismatch %v", f.GeometryMismatch)
+			}
+		}},
+		{"an image without geometry", four, func(fs []Frame) {
+			fs[1].Geometry.Known = false // no Image Position (Patient), PS3.3 C.7.6.2
+		}, func(t *testing.T, f Facts, s *Series) {
+			if len(f.NoGeometry) != 1 || len(s.Volumes) != 4 || len(f.MissingSlices) != 1 {
+				t.Errorf("no geometry %v, %d volumes, missing %+v; want the image left out and its slice missing", f.NoGeometry, len(s.Volumes), f.MissingSlices)
 			}
 		}},
 		{"images without a b-value", append(slices.Clone(four), img{noB: true, directionality: "DIRECTIONAL", dir: x, slice: 0}), nil,
@@ -430,6 +447,34 @@ func TestAssembleStudyLinksSeries(t *testing.T) {
 		}
 		if len(attached) != 1 || attached[0].Kind != KindADC || attached[0].SeriesUID != adcMap().series || slices.Contains(attached[0].Slices, nil) {
 			t.Errorf("maps %v", attached)
+		}
+	})
+	t.Run("FA and tensor b0 series are listed with their kind, not failed, and the scanner ADC stays attached", func(t *testing.T) {
+		// Image Type value 4 DIFFUSION_ANISO (PS3.3 C.8.13.1.1.1) and
+		// TENSOR_B0 (common practice, from memory).
+		fa := newSeries("fa", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}, slice: 0},
+			img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}, slice: 1})
+		fa.number = 7
+		tb0 := newSeries("tb0", img{b: 0, imageType: []string{"DERIVED", "PRIMARY", "TENSOR_B0"}, slice: 0})
+		tb0.number = 8
+		st, err := AssembleStudy(collect(b0(0), dwi(), adcMap(), fa, tb0), DefaultTolerances())
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := []DerivedSeries{
+			{SeriesInstanceUID: fa.series, SeriesNumber: 7, SeriesDescription: "DWI test", Kind: KindFA, Images: 2},
+			{SeriesInstanceUID: tb0.series, SeriesNumber: 8, SeriesDescription: "DWI test", Kind: KindTensorB0, Images: 1},
+		}
+		slices.SortFunc(st.Derived, func(a, b DerivedSeries) int { return a.SeriesNumber - b.SeriesNumber })
+		if !slices.Equal(st.Derived, want) || st.Failed != nil || len(st.Series) != 2 {
+			t.Errorf("derived %+v, failed %v, %d series; want %+v, none failed, b0 and DWI", st.Derived, st.Failed, len(st.Series), want)
+		}
+		var attached int
+		for _, s := range st.Series {
+			attached += len(s.Maps)
+		}
+		if attached != 1 {
+			t.Errorf("%d maps attached, want the scanner ADC", attached)
 		}
 	})
 	t.Run("a map series matching nothing stays a series of its own", func(t *testing.T) {

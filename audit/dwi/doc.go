@@ -1,35 +1,39 @@
-// Package dwi turns the stored instances of a diffusion-weighted MR study
-// into the model the audit computes on and the rules judge: images with
-// their diffusion header (Frame), grouped into volumes of one b-value and
-// one gradient direction on a common slice grid (Series), with what
-// assembly found wrong kept as data (Facts).
+// Package dwi is the model of a diffusion-weighted MR study that the audit
+// computes on and the rules judge: images with their diffusion header
+// (Frame), grouped into volumes of one b-value and one gradient direction
+// on a common slice grid (Series), with what assembly found wrong kept as
+// data (Facts).
 //
 // Its parts:
 //
-//   - model.go: the types, shared with audit/adc and the rules; no I/O.
-//   - extract.go, attrs.go, pixels.go: ExtractFile and Extract read one
-//     Part 10 file, classic MR Image Storage (one image) or Enhanced MR
-//     multi-frame (one Frame per frame, attributes from the Per-frame and
-//     Shared Functional Groups, PS3.3 C.7.6.16), with the b-value from
-//     Diffusion b-value (0018,9087) or, failing that, from configured
-//     private sources (PrivateSource). Pixel values are decoded here,
-//     rescaled, into float32.
+//   - model.go: the types, shared with audit/header (which fills Frames
+//     from DICOM files), audit/adc and the rules; no I/O.
 //   - assemble.go: AssembleSeries groups one series' frames into volumes
 //     and maps; study.go: AssembleStudy does every series of a study and
 //     links a series without b0 to a b0 in a sibling series, and map-only
-//     series to the series they were derived from.
-//   - options.go: ExtractOptions, PrivateSource, Tolerances and their
-//     defaults, with the reasons for the values.
+//     series to the series they were derived from, and lists series of
+//     derived maps it does not use (Study.Derived).
+//   - b-values: values within the b-value tolerance are one b-value; a
+//     volume's BValue is its nominal value (0 within the tolerance of 0,
+//     else the whole number most of its images carry) and BValueMeasured
+//     the mean the images carry. b up to Tolerances.B0Max (50 s/mm²,
+//     common practice) is the reference weighting.
+//   - repeats: images of one b-value, direction and slice are repeats
+//     (averages): kept in Volume.Images and averaged into the slice the
+//     ADC uses (Volume.Combined). Weighted images that give no direction
+//     and no isotropic label, several per slice, are combined as a trace
+//     (their geometric mean) and reported (Facts.UnknownDirections; rule
+//     unknown-directions). Nothing acquired is dropped silently.
+//   - classify.go: Classify, what an image is (acquired, scanner ADC or
+//     eADC, FA, colour FA, tensor b0, not an image), from SOP Class,
+//     Samples per Pixel, Image Type and Real World Value Mapping; the
+//     readers call it.
+//   - table.go: Series.GradientTable, one row per acquired volume, for
+//     `check --format json` and the study page.
+//   - options.go: Tolerances and their defaults, with the reasons for the
+//     values.
 //
-// Safety of the reader: the data-set parser (github.com/suyashkumar/dicom)
-// panics on transfer syntaxes it does not know and allocates a value's
-// declared length before checking the file holds it. So extraction
-// checks the transfer syntax named in the file meta first, then walks
-// every element length with audit/header's bounds walker
-// (header.FindPixelData), which also says where the pixel data lies; the
-// parser is then given only the header region before the pixel data,
-// under recover, and the pixel values are read here, after their length
-// has been checked against Rows x Columns x Number of Frames. Compressed
-// (encapsulated) pixel data is flagged and never decoded: the audit says
-// "cannot compute" rather than guess.
+// The package reads no DICOM: it imports no DICOM library and nothing of
+// dwiaudit/scp, so the rules that import it do not either
+// (rules/deps_test.go). Reading files is package audit/header's.
 package dwi

@@ -1,6 +1,7 @@
 package dwi
 
-// A small DICOM encoder for the tests: it writes exactly the data sets
+// A small DICOM encoder for the tests (audit/header has the same one for
+// its own tests; a test helper cannot be imported): it writes exactly the data sets
 // the tests describe, including broken ones no writer would produce, in
 // any of the four native transfer syntaxes (PS3.5 7.1, A.1-A.3, A.5).
 
@@ -26,10 +27,12 @@ const (
 	tsExplicitLE = "1.2.840.10008.1.2.1"
 	tsDeflated   = "1.2.840.10008.1.2.1.99"
 	tsExplicitBE = "1.2.840.10008.1.2.2"
-	tsJPEGBase   = "1.2.840.10008.1.2.4.50"
 	mrImage      = "1.2.840.10008.5.1.4.1.1.4"
 	enhancedMR   = "1.2.840.10008.5.1.4.1.1.4.1"
 )
+
+// allSyntaxes are the native transfer syntaxes the encoder writes.
+var allSyntaxes = []string{tsExplicitLE, tsImplicitLE, tsExplicitBE, tsDeflated}
 
 // el is one element to encode.
 type el struct {
@@ -232,7 +235,6 @@ const (
 	tCodeValue       = 0x00080100
 	tPatientName     = 0x00100010
 	tSliceThickness  = 0x00180050
-	tSpacingSlices   = 0x00180088
 	tSerial          = 0x00181000
 	tProtocol        = 0x00181030
 	tDirectionality  = 0x00189075
@@ -278,8 +280,12 @@ const (
 	tSharedFG        = 0x52009229
 	tPerFrameFG      = 0x52009230
 	tPixelData       = 0x7FE00010
-	tFloatPixelData  = 0x7FE00008
 )
+
+// omitDirectionality as img.directionality writes neither Diffusion
+// Directionality nor a gradient: a weighted image that says nothing of
+// its direction.
+const omitDirectionality = "-"
 
 // img is one image of a test series.
 type img struct {
@@ -396,6 +402,9 @@ func diffusion(m img) []el {
 			dir = "DIRECTIONAL"
 		}
 	}
+	if dir == omitDirectionality {
+		return out
+	}
 	out = append(out, txt(tDirectionality, "CS", dir))
 	if dir == "DIRECTIONAL" {
 		out = append(out, sq(tGradientSeq, []el{fd(tGradient, m.dir[:]...)}))
@@ -500,12 +509,13 @@ func (s testSeries) enhanced(t testing.TB, ts string) []byte {
 	return part10File(t, ts, enhancedMR, uid, els)
 }
 
-// extractAll extracts every file, failing the test on an error.
-func extractAll(t testing.TB, files [][]byte, opt ExtractOptions) []Frame {
+// extractAll extracts every file, pixels included, failing the test on
+// an error.
+func extractAll(t testing.TB, files [][]byte) []Frame {
 	t.Helper()
 	var out []Frame
 	for i, b := range files {
-		fs, err := Extract(b, opt)
+		fs, err := ExtractForTest(b)
 		if err != nil {
 			t.Fatalf("file %d: %v", i, err)
 		}

@@ -19,7 +19,7 @@ func phantomStudy(t *testing.T, opt phantom.Options) (*phantom.Study, *Study) {
 	}
 	var frames []Frame
 	for _, p := range ps.Files {
-		fs, err := ExtractFile(p, ExtractOptions{LoadPixels: true})
+		fs, err := ExtractFileForTest(p)
 		if err != nil {
 			t.Fatalf("%s: %v", p, err)
 		}

@@ -47,6 +47,8 @@ func isDiffusion(f *Frame) bool {
 //     the same geometry (Facts.B0FromSeries); series with a b0 that does
 //     not fit are listed in Facts.B0Unmatched. A series holding only b0
 //     is preferred as the donor, then the lowest series number.
+//   - a series made only of maps the audit does not use (FA, colour FA,
+//     tensor b0) is listed in Study.Derived with its kind;
 //   - a series holding only scanner maps is attached to the diffusion
 //     series whose frame of reference and grid its every slice matches
 //     (Series.Maps), and is kept as a series of its own when none does.
@@ -85,6 +87,10 @@ func AssembleStudy(frames []Frame, tol Tolerances) (*Study, error) {
 		if !slices.ContainsFunc(fs, isDiffusion) {
 			continue
 		}
+		if !slices.ContainsFunc(fs, func(f *Frame) bool { return f.Kind.Audited() }) {
+			st.Derived = append(st.Derived, derivedSeries(fs))
+			continue
+		}
 		s, err := assembleSeries(fs, tol)
 		if err != nil {
 			st.Failed = append(st.Failed, &SeriesError{SeriesInstanceUID: uid, SeriesNumber: fs[0].SeriesNumber, Err: err})
@@ -107,6 +113,23 @@ func AssembleStudy(frames []Frame, tol Tolerances) (*Study, error) {
 		return cmp.Or(cmp.Compare(a.SeriesNumber, b.SeriesNumber), strings.Compare(a.SeriesInstanceUID, b.SeriesInstanceUID))
 	})
 	return st, nil
+}
+
+// derivedSeries describes a series of derived maps by the kind most of
+// its images are (the lower kind of a tie).
+func derivedSeries(fs []*Frame) DerivedSeries {
+	count := map[MapKind]int{}
+	for _, f := range fs {
+		count[f.Kind]++
+	}
+	kind, n := KindOtherDerived, 0
+	for k, c := range count {
+		if c > n || c == n && k < kind {
+			kind, n = k, c
+		}
+	}
+	return DerivedSeries{SeriesInstanceUID: fs[0].SeriesInstanceUID, SeriesNumber: fs[0].SeriesNumber,
+		SeriesDescription: fs[0].SeriesDescription, Kind: kind, Images: len(fs)}
 }
 
 // b0Of is a series' own b0 volume, nil when it has none.

@@ -158,8 +158,10 @@ func identify(r io.Reader, limit int64, ts string) (Identity, error) {
 	return id, nil
 }
 
-// parse runs the data-set library over the first limit bytes of r,
-// turning its panics into ErrMalformed.
+// parse runs the data-set library over the first limit bytes of r (a
+// header region whose every length the bounds walker has checked),
+// turning its panics into ErrMalformed. It is the one place the library
+// parses: ReadFile and extraction both go through it.
 func parse(r io.Reader, limit int64) (ds dicom.Dataset, err error) {
 	defer func() {
 		if p := recover(); p != nil {
@@ -167,7 +169,7 @@ func parse(r io.Reader, limit int64) (ds dicom.Dataset, err error) {
 		}
 	}()
 	ds, err = dicom.Parse(r, limit, nil,
-		dicom.SkipPixelData(),
+		dicom.SkipPixelData(), // nested pixel data (icons); the top-level one is outside the region
 		// What the store keeps is what the peer sent; read what is
 		// there rather than refuse a missing group length or an
 		// unknown character set (those only change how names decode).

@@ -23,20 +23,20 @@ const (
 	mrStorage  = "1.2.840.10008.5.1.4.1.1.4"
 )
 
-// enc builds data sets by hand, for cases no writer would produce.
-type enc struct {
+// handEnc builds data sets by hand, for cases no writer would produce.
+type handEnc struct {
 	bo       binary.AppendByteOrder
 	implicit bool
 	b        bytes.Buffer
 }
 
 // el appends one element (PS3.5 7.1.2 explicit, 7.1.3 implicit).
-func (e *enc) el(group, elem uint16, vr string, value []byte) *enc {
+func (e *handEnc) el(group, elem uint16, vr string, value []byte) *handEnc {
 	return e.elLen(group, elem, vr, uint32(len(value)), value)
 }
 
 // elLen appends an element whose declared length may lie.
-func (e *enc) elLen(group, elem uint16, vr string, vl uint32, value []byte) *enc {
+func (e *handEnc) elLen(group, elem uint16, vr string, vl uint32, value []byte) *handEnc {
 	e.b.Write(e.bo.AppendUint16(nil, group))
 	e.b.Write(e.bo.AppendUint16(nil, elem))
 	switch {
@@ -64,7 +64,7 @@ func str(s string, pad byte) []byte {
 }
 
 // identityElements appends the attributes Identity reads, in tag order.
-func (e *enc) identityElements() *enc {
+func (e *handEnc) identityElements() *handEnc {
 	return e.
 		el(0x0008, 0x0016, "UI", str(mrStorage, 0)).
 		el(0x0008, 0x0018, "UI", str("2.25.1001", 0)).
@@ -171,15 +171,15 @@ func TestReadFileReadsSynthSeries(t *testing.T) {
 }
 
 func TestReadFileReadsEveryByteOrderAndDeflate(t *testing.T) {
-	le := (&enc{bo: binary.LittleEndian}).identityElements().b.Bytes()
+	le := (&handEnc{bo: binary.LittleEndian}).identityElements().b.Bytes()
 	tests := []struct {
 		name    string
 		ts      string
 		dataSet []byte
 	}{
 		{"explicit VR little endian", explicitLE, le},
-		{"implicit VR little endian", implicitLE, (&enc{bo: binary.LittleEndian, implicit: true}).identityElements().b.Bytes()},
-		{"explicit VR big endian", explicitBE, (&enc{bo: binary.BigEndian}).identityElements().b.Bytes()},
+		{"implicit VR little endian", implicitLE, (&handEnc{bo: binary.LittleEndian, implicit: true}).identityElements().b.Bytes()},
+		{"explicit VR big endian", explicitBE, (&handEnc{bo: binary.BigEndian}).identityElements().b.Bytes()},
 		// PS3.5 A.5: the data set of Deflated Explicit VR Little Endian
 		// is raw deflate (RFC 1951) of its explicit LE encoding.
 		{"deflated explicit VR little endian", deflatedLE, deflate(t, le)},
@@ -203,7 +203,7 @@ func TestReadFileStopsBeforePixelData(t *testing.T) {
 	// After group 0020 comes a pixel data element claiming 1 GiB that is
 	// not there: the region the parser reads ends before it, so the
 	// file still identifies.
-	e := (&enc{bo: binary.LittleEndian}).identityElements()
+	e := (&handEnc{bo: binary.LittleEndian}).identityElements()
 	e.elLen(0x7FE0, 0x0010, "OW", 1<<30, make([]byte, 64))
 	id, err := ReadFile(writePart10(t, explicitLE, e.b.Bytes()))
 	if err != nil {
@@ -215,7 +215,7 @@ func TestReadFileStopsBeforePixelData(t *testing.T) {
 }
 
 func TestReadFileRefusesBadFiles(t *testing.T) {
-	le := func() *enc { return &enc{bo: binary.LittleEndian} }
+	le := func() *handEnc { return &handEnc{bo: binary.LittleEndian} }
 	deep := le().el(0x0008, 0x0016, "UI", str(mrStorage, 0))
 	// 40 nested undefined-length sequences (PS3.5 7.5.2), deeper than maxDepth.
 	for range 40 {
@@ -235,7 +235,7 @@ func TestReadFileRefusesBadFiles(t *testing.T) {
 			dataSet: le().el(0x0008, 0x0016, "UI", str(mrStorage, 0)).elLen(0x0009, 0x1010, "OB", 0xFFFFFFF0, []byte{1, 2}).b.Bytes(),
 			want:    ErrMalformed},
 		{name: "an implicit VR string claiming 3 GiB", ts: implicitLE,
-			dataSet: (&enc{bo: binary.LittleEndian, implicit: true}).el(0x0008, 0x0016, "UI", str(mrStorage, 0)).elLen(0x0008, 0x103E, "LO", 3<<30, []byte("x")).b.Bytes(),
+			dataSet: (&handEnc{bo: binary.LittleEndian, implicit: true}).el(0x0008, 0x0016, "UI", str(mrStorage, 0)).elLen(0x0008, 0x103E, "LO", 3<<30, []byte("x")).b.Bytes(),
 			want:    ErrMalformed},
 		{name: "a file cut inside an element", ts: explicitLE, dataSet: le().identityElements().b.Bytes()[:100], want: ErrMalformed},
 		{name: "sequences nested 40 deep", ts: explicitLE, dataSet: deep.b.Bytes(), want: ErrMalformed},
@@ -270,9 +270,9 @@ func TestReadFileRefusesBadFiles(t *testing.T) {
 // FuzzReadFile checks that no input makes ReadFile panic. Seeds: the
 // hand-made data sets of the tests, in each transfer syntax.
 func FuzzReadFile(f *testing.F) {
-	f.Add(explicitLE, (&enc{bo: binary.LittleEndian}).identityElements().b.Bytes())
-	f.Add(implicitLE, (&enc{bo: binary.LittleEndian, implicit: true}).identityElements().b.Bytes())
-	f.Add(explicitBE, (&enc{bo: binary.BigEndian}).identityElements().b.Bytes())
+	f.Add(explicitLE, (&handEnc{bo: binary.LittleEndian}).identityElements().b.Bytes())
+	f.Add(implicitLE, (&handEnc{bo: binary.LittleEndian, implicit: true}).identityElements().b.Bytes())
+	f.Add(explicitBE, (&handEnc{bo: binary.BigEndian}).identityElements().b.Bytes())
 	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, ts string, dataSet []byte) {
 		var b bytes.Buffer

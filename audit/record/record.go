@@ -24,6 +24,39 @@ type Measures struct {
 	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
 	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
 	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
+	// Volumes is the series' gradient table; absent in audits stored
+	// before it was kept.
+	Volumes []Volume `json:"volumes,omitempty"`
+	// Derived lists the study's series of derived maps the audit does
+	// not use (FA, colour FA, tensor b0), kept with every audited series
+	// of the study so that the study page can name them.
+	Derived []Derived `json:"derived,omitempty"`
+}
+
+// Derived is a series of derived maps, listed and not audited.
+type Derived struct {
+	SeriesUID    string `json:"series_uid"`
+	SeriesNumber int    `json:"series_number"`
+	Kind         string `json:"kind"` // "FA map", "colour FA map", "tensor b0", ...
+	Images       int    `json:"images"`
+}
+
+// Volume is one row of a series' gradient table, as `dwiaudit check
+// --format json` prints it and the study page shows it.
+type Volume struct {
+	// BValue is the nominal b-value (0, 1000), BValueMeasured the mean of
+	// what the images carry, s/mm².
+	BValue         float64 `json:"bvalue"`
+	BValueMeasured float64 `json:"bvalue_measured"`
+	// Kind is "b0", "direction", "trace" or "isotropic" (dwi.Weighting).
+	Kind string `json:"kind"`
+	// Direction is the unit gradient direction in patient axes; null
+	// for a kind without one.
+	Direction *[3]float64 `json:"direction"`
+	// Images counts the images, repeats included; Slices the slice
+	// positions they cover.
+	Images int `json:"images"`
+	Slices int `json:"slices"`
 }
 
 // Finite returns a pointer to v, or nil when v is NaN or infinite (JSON

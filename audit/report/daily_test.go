@@ -134,7 +134,10 @@ func TestMeasuredAndExpectedValuesReadWithTheirUnits(t *testing.T) {
 		{"fraction of voxels as a percentage", "adc-out-of-range", 0.031, 0.02, "3.1%", "2.0%"},
 		{"phantom ADC", "phantom-adc-bias", 0.00117, 0.0011, "1.17e-3 mm²/s", "1.10e-3 mm²/s"},
 		{"b-value sets", "bvalue-mismatch", []float64{0, 900}, []float64{0, 1000}, "0, 900 s/mm²", "0, 1000 s/mm²"},
+		// A measured b-value read raw from an image reads to a tenth.
+		{"measured b-values near 0 and 1000", "bvalue-mismatch", []float64{0.0020000000717118383, 999.9979999999283}, []float64{0, 1000}, "0, 1000 s/mm²", "0, 1000 s/mm²"},
 		{"a count of images stays a number", "bvalue-mismatch", 3.0, 0.0, "3", "0"},
+		{"a count of images without direction", "unknown-directions", 9.0, 0.0, "9", "0"},
 		{"slices covered", "incomplete-series", 18.0, 20.0, "18", "20"},
 		{"text stays text", "audit-failed", "pixel data compressed", "a series the audit can read and compute", "pixel data compressed", "a series the audit can read and compute"},
 		{"geometry differences joined", "geometry-mismatch", []string{"volume 2: spacing", "volume 3: matrix"}, "the reference volume", "volume 2: spacing; volume 3: matrix", "the reference volume"},

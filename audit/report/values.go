@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"math"
 	"strconv"
 	"strings"
 )
@@ -212,6 +213,10 @@ func formatNumbers(nums []float64, u unit, isRange bool) string {
 			parts[i] = strconv.FormatFloat(100*f, 'f', 1, 64) + "%"
 		case unitMM:
 			parts[i] = strconv.FormatFloat(f, 'f', 1, 64)
+		case unitBValue:
+			// Nominal b-values are whole numbers; a measured one reads to
+			// a tenth (never 999.9979999999283).
+			parts[i] = strconv.FormatFloat(math.Round(f*10)/10, 'f', -1, 64)
 		default:
 			parts[i] = strconv.FormatFloat(f, 'g', 6, 64)
 		}

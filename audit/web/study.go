@@ -32,6 +32,12 @@ type measureView struct {
 	Name, Value string
 }
 
+// volumeView is one row of a series' gradient table.
+type volumeView struct {
+	BValue, Measured, Kind, Direction string
+	Images, Slices                    int
+}
+
 // findingView is one finding on the study page.
 type findingView struct {
 	Rule, Severity, Message, Measured, Expected string
@@ -53,11 +59,13 @@ type seriesView struct {
 	Audits      int // how many audits the series has had
 	Test        bool
 	Measures    []measureView
+	Volumes     []volumeView // the gradient table
 	Findings    []findingView
 	Worst       string // the highest severity among the findings, "" for none
 	Preview     string // the preview's URL, "" when there is none to show
 	PreviewNote string // why there is no preview, or what the preview shows
 	NotComputed string // the reason the series could not be computed
+	Derived     string // for a series of derived maps, its kind ("FA map"): listed, not audited
 	ScannerLink string
 }
 
@@ -86,6 +94,7 @@ func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
 		Accession: st.AccessionNumber,
 		PatientID: maskPatientID(st.PatientID),
 	}
+	var measures []record.Measures
 	for _, se := range st.Series {
 		sv := seriesView{
 			UID:         se.SeriesInstanceUID,
@@ -111,9 +120,25 @@ func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
 				h.storeFailed(w, "study", err)
 				return
 			}
+			if m, ok, err := record.DecodeMeasures(cur.Measures); err == nil && ok {
+				measures = append(measures, m) // read once already by fillSeries
+			}
 			v.Findings += len(sv.Findings)
 		}
 		v.Series = append(v.Series, sv)
+	}
+	// Series of derived maps have no audit of their own: the audits of
+	// their study's diffusion series name them.
+	derived := map[string]string{}
+	for _, m := range measures {
+		for _, d := range m.Derived {
+			derived[d.SeriesUID] = d.Kind
+		}
+	}
+	for i := range v.Series {
+		if k := derived[v.Series[i].UID]; k != "" && !v.Series[i].Audited {
+			v.Series[i].Derived = k
+		}
 	}
 	h.render(w, http.StatusOK, "study", "Study of "+v.StudyDate, "", v)
 }
@@ -163,6 +188,16 @@ func (h *Handler) fillSeries(sv *seriesView, findingsJSON, measuresJSON json.Raw
 			bs[i] = strconv.FormatFloat(b, 'f', -1, 64)
 		}
 		sv.BValues = strings.Join(bs, ", ") + " s/mm²"
+	}
+	for _, v := range m.Volumes {
+		vv := volumeView{
+			BValue: strconv.FormatFloat(v.BValue, 'f', -1, 64), Kind: v.Kind, Direction: "—",
+			Measured: strconv.FormatFloat(v.BValueMeasured, 'f', 3, 64), Images: v.Images, Slices: v.Slices,
+		}
+		if d := v.Direction; d != nil {
+			vv.Direction = fmt.Sprintf("(%.3f, %.3f, %.3f)", d[0], d[1], d[2])
+		}
+		sv.Volumes = append(sv.Volumes, vv)
 	}
 	sv.Measures = []measureView{
 		{"Parenchyma median ADC", formatADC(m.TissueADCMedian)},

@@ -100,7 +100,10 @@ func TestStudyPage(t *testing.T) {
 		[]map[string]any{{"rule": "b0-only-hotspot", "severity": "error", "message": "b0 alone brighter", "measured": 0.00108, "expected": 0.0007,
 			"region": map[string]any{"slices": []int{1}, "box_pixels": []int{4, 4, 6, 6}}}},
 		map[string]any{"series_number": 2, "protocol": "brain", "bvalues": []float64{0, 1000}, "tissue_adc_median": 0.00079, "csf_adc": 0.00301,
-			"b0_snr": 41.26, "high_b_tissue_snr": 12.0})
+			"b0_snr": 41.26, "high_b_tissue_snr": 12.0, "volumes": []map[string]any{
+				{"bvalue": 0, "bvalue_measured": 0.0020000000717118383, "kind": "b0", "direction": nil, "images": 24, "slices": 12},
+				{"bvalue": 1000, "bvalue_measured": 999.9979999999283, "kind": "direction", "direction": []float64{0, 0.6, 0.8}, "images": 12, "slices": 12},
+			}})
 	// Audited twice: the newer audit stands.
 	saveAudit(t, st, store.AuditRecord{AuditTime: at.Add(-time.Hour), StudyInstanceUID: ph.StudyUID, SeriesUID: b0}, nil, nil)
 	saveAudit(t, st, store.AuditRecord{AuditTime: at, StudyInstanceUID: ph.StudyUID, SeriesUID: b0}, nil,
@@ -121,6 +124,9 @@ func TestStudyPage(t *testing.T) {
 		"*******303",
 		"The maps could not be computed: no diffusion-weighted image",
 		"2 audits, the newest stands",
+		// The gradient table: nominal b-values, the measured one beside.
+		"Gradient table", `<tr class="kind-b0"><td class="num">0</td><td>b0</td><td class="num">—</td><td class="num">24</td><td class="num">12</td><td class="num">0.002</td></tr>`,
+		`<tr class="kind-direction"><td class="num">1000</td><td>direction</td><td class="num">(0.000, 0.600, 0.800)</td><td class="num">12</td><td class="num">12</td><td class="num">999.998</td></tr>`,
 	} {
 		if !strings.Contains(body, want) {
 			t.Errorf("the study page lacks %q", want)
@@ -137,6 +143,33 @@ func TestStudyPage(t *testing.T) {
 		}
 		noIdentifiers(t, "the 404 page", body)
 	})
+}
+
+func TestStudyPageNamesTheKindOfADerivedSeries(t *testing.T) {
+	st := newTestStore(t)
+	ph := putPhantom(t, st, phantom.Options{Case: phantom.CaseClean, Seed: 4, PatientID: "QOH-SYN-0404", B0Series: true}, "qoh-mr1-1.5t")
+	dwi := dwiSeries(t, ph)
+	var other string
+	for _, s := range ph.Series {
+		if s.UID != dwi {
+			other = s.UID
+		}
+	}
+	// The other series stands for a series of FA maps: the DWI series'
+	// audit names it (record.Measures.Derived), and it has no audit.
+	saveAudit(t, st, store.AuditRecord{AuditTime: time.Date(2025, 3, 20, 9, 0, 0, 0, qoh), StudyInstanceUID: ph.StudyUID, SeriesUID: dwi}, nil,
+		map[string]any{"series_number": 2, "bvalues": []float64{0, 1000},
+			"derived": []map[string]any{{"series_uid": other, "series_number": 1, "kind": "FA map", "images": 12}}})
+	code, body := getPage(t, newPages(t, st, nil), "/studies/"+ph.StudyUID)
+	if code != http.StatusOK {
+		t.Fatalf("GET study: %d\n%s", code, body)
+	}
+	if !strings.Contains(body, `not audited: <span class="kind">FA map</span>, a map derived by the scanner`) {
+		t.Errorf("the study page does not name the derived series' kind:\n%s", body)
+	}
+	if strings.Count(body, "not audited") != 1 {
+		t.Errorf("%d series not audited, want the derived one only", strings.Count(body, "not audited"))
+	}
 }
 
 func TestScannerPages(t *testing.T) {

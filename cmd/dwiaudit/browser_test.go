@@ -232,7 +232,15 @@ func TestBrowserShowsTheListTheStudyAndTheScannerTrends(t *testing.T) {
 		if len(widths) == 0 || slices.Contains(widths, 0) {
 			t.Errorf("preview widths %v: want at least one, each loaded (naturalWidth > 0)", widths)
 		}
-		for _, want := range []string{rules.HotspotID, "Parenchyma median ADC", "×10⁻³ mm²/s", "b0 SNR", "qoh-mr1-1.5t"} {
+		// The gradient table of the DWI series as check --format json
+		// gives it: b0, the scanner's trace and three directions at 1000
+		// (audit/phantom writes them), 12 slices each.
+		kinds := browserEval[[]string](t, bctx, fmt.Sprintf(`Array.from(document.getElementById(%q).querySelectorAll("table.gradients tbody tr")).map(r => r.cells[0].textContent + " " + r.cells[1].textContent + " " + r.cells[4].textContent)`, "series-"+series))
+		slices.Sort(kinds)
+		if want := []string{"0 b0 12", "1000 direction 12", "1000 direction 12", "1000 direction 12", "1000 trace 12"}; !slices.Equal(kinds, want) {
+			t.Errorf("gradient table rows %q, want %q", kinds, want)
+		}
+		for _, want := range []string{rules.HotspotID, "Parenchyma median ADC", "×10⁻³ mm²/s", "b0 SNR", "qoh-mr1-1.5t", "Gradient table"} {
 			if !strings.Contains(body, want) {
 				t.Errorf("the study page lacks %q", want)
 			}

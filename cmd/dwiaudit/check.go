@@ -17,6 +17,7 @@ import (
 	"text/tabwriter"
 
 	"dwiaudit/audit"
+	"dwiaudit/audit/record"
 	"dwiaudit/rules"
 )
 
@@ -113,8 +114,12 @@ type CheckSeries struct {
 	SeriesDescription string        `json:"series_description"`
 	Scanner           string        `json:"scanner"`
 	Protocol          string        `json:"protocol"` // matched protocol or phantom profile; "" when none
-	BValues           []float64     `json:"bvalues"`  // s/mm², ascending; [] when none
+	BValues           []float64     `json:"bvalues"`  // nominal, s/mm², ascending; [] when none
 	Measures          CheckMeasures `json:"measures"`
+	// Volumes is the gradient table: one entry per acquired volume
+	// (nominal and measured b-value, kind, direction or null, images
+	// and slices); [] when none.
+	Volumes []record.Volume `json:"volumes"`
 }
 
 // CheckMeasures are a series' measures; null where undefined (not
@@ -150,6 +155,7 @@ func checkBody(rep *audit.Report) CheckResponse {
 			StudyUID: s.StudyUID, SeriesUID: s.SeriesUID, SeriesNumber: s.SeriesNumber,
 			SeriesDescription: s.SeriesDescription, Scanner: s.Scanner, Protocol: s.Protocol,
 			BValues: bv,
+			Volumes: volumesOrEmpty(audit.VolumeRecords(s.Volumes)),
 			Measures: CheckMeasures{
 				TissueADCMedian: finite(s.Measures.ParenchymaMedianADC),
 				CSFADC:          finite(s.Measures.CSFADC),
@@ -164,6 +170,13 @@ func checkBody(rep *audit.Report) CheckResponse {
 		})
 	}
 	return out
+}
+
+func volumesOrEmpty(v []record.Volume) []record.Volume {
+	if v == nil {
+		return []record.Volume{}
+	}
+	return v
 }
 
 // finite is v, or nil (JSON null) for NaN and infinities, which JSON
@@ -240,6 +253,18 @@ func printCheck(w io.Writer, rep *audit.Report) {
 	}
 	if len(rep.Series) > 0 {
 		fmt.Fprintln(w, "\nADC in 1e-3 mm²/s (tissue: median over parenchyma; CSF: high percentile inside the head).")
+	}
+	// Derived maps and non-image objects: listed, not audited.
+	for _, d := range rep.Derived {
+		fmt.Fprintf(w, "series %d %s of study %s: %s, %s, not audited\n", d.SeriesNumber, orDash(d.SeriesDescription), d.StudyUID,
+			d.Kind, plural(d.Images, "image", "images"))
+	}
+	if n := len(rep.Ignored); n > 0 {
+		fmt.Fprintf(w, "%s ignored, not images the audit reads (SOP Class %s", plural(n, "DICOM file", "DICOM files"), rep.Ignored[0].SOPClassUID)
+		if n > 1 {
+			fmt.Fprint(w, ", ...")
+		}
+		fmt.Fprintln(w, ")")
 	}
 
 	// Findings, grouped by study the same way.

@@ -12,6 +12,7 @@ import (
 
 	"dwiaudit/audit"
 	"dwiaudit/audit/analysis"
+	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/phantom"
 	"dwiaudit/internal/testtool"
 	"dwiaudit/rules"
@@ -134,8 +135,9 @@ func TestCheckTextShowsSeriesFindingsAndTheCaution(t *testing.T) {
 // stable interface, exactly these names.
 var (
 	checkTopKeys     = []string{"findings", "series"}
-	checkSeriesKeys  = []string{"bvalues", "measures", "protocol", "scanner", "series_description", "series_number", "series_uid", "study_uid"}
+	checkSeriesKeys  = []string{"bvalues", "measures", "protocol", "scanner", "series_description", "series_number", "series_uid", "study_uid", "volumes"}
 	checkMeasureKeys = []string{"b0_snr", "csf_adc", "tissue_adc_median"}
+	checkVolumeKeys  = []string{"bvalue", "bvalue_measured", "direction", "images", "kind", "slices"}
 	checkFindingKeys = []string{"expected", "measured", "message", "rule", "series_uid", "severity", "study_uid"}
 )
 
@@ -169,6 +171,19 @@ func TestCheckJSONIsStable(t *testing.T) {
 		wantType[float64](t, "series.series_number", m["series_number"])
 		for _, b := range wantType[[]any](t, "series.bvalues", m["bvalues"]) {
 			wantType[float64](t, "series.bvalues[]", b)
+		}
+		for _, v := range wantType[[]any](t, "series.volumes", m["volumes"]) {
+			vol := wantType[map[string]any](t, "series.volumes[]", v)
+			wantKeys(t, "series.volumes[]", vol, checkVolumeKeys)
+			for _, k := range []string{"bvalue", "bvalue_measured", "images", "slices"} {
+				wantType[float64](t, "series.volumes[]."+k, vol[k])
+			}
+			wantType[string](t, "series.volumes[].kind", vol["kind"])
+			if d := vol["direction"]; d != nil {
+				if xyz := wantType[[]any](t, "series.volumes[].direction", d); len(xyz) != 3 {
+					t.Errorf("direction %v, want [x, y, z]", xyz)
+				}
+			}
 		}
 		meas := wantType[map[string]any](t, "series.measures", m["measures"])
 		wantKeys(t, "series.measures", meas, checkMeasureKeys)
@@ -235,6 +250,11 @@ func TestCheckJSONGolden(t *testing.T) {
 				StudyUID: "2.25.1", SeriesUID: "2.25.1.2", SeriesNumber: 2, SeriesDescription: "DWI b0 b1000 3dir",
 				Scanner: "QOH-MR1", Protocol: "brain", BValues: []float64{0, 1000},
 				Measures: analysis.Measures{ParenchymaMedianADC: 0.00079, CSFADC: 0.00301, B0SNR: 58.25},
+				Volumes: []dwi.TableRow{
+					{BValue: 0, BValueMeasured: 0.0020000000717118383, Weighting: dwi.WeightingB0, Images: 40, Slices: 20, Combined: dwi.CombinedMean},
+					{BValue: 1000, BValueMeasured: 999.9979999999283, Weighting: dwi.WeightingTrace, Images: 20, Slices: 20},
+					{BValue: 1000, BValueMeasured: 1000, Weighting: dwi.WeightingDirection, Direction: &dwi.Direction{0, 0, 1}, Images: 20, Slices: 20},
+				},
 			},
 			{
 				StudyUID: "2.25.1", SeriesUID: "2.25.1.3", SeriesNumber: 3, SeriesDescription: "DWI b1000",
@@ -259,5 +279,101 @@ func TestCheckJSONGolden(t *testing.T) {
 	testtool.Golden(t, filepath.Join("testdata", "check.golden.json"), buf.Bytes())
 	if t.Failed() {
 		t.Logf("the JSON written:\n%s", buf.String())
+	}
+}
+
+// TestCheckJSONGivesTheGradientTable runs check on a clean phantom (b0,
+// three orthogonal directions and the scanner's trace at b 1000, 8
+// slices; audit/phantom) and reads its gradient table back.
+func TestCheckJSONGivesTheGradientTable(t *testing.T) {
+	r := runCLI(t, "check", "--format", "json", checkStudy(t, phantom.CaseClean))
+	var body CheckResponse
+	if err := json.Unmarshal([]byte(r.stdout), &body); err != nil {
+		t.Fatalf("not JSON: %v\n%s", err, r.stdout)
+	}
+	if len(body.Series) != 1 {
+		t.Fatalf("%d series, want 1", len(body.Series))
+	}
+	kinds := map[string]int{}
+	dirs := 0
+	for _, v := range body.Series[0].Volumes {
+		kinds[v.Kind]++
+		// Nominal b-values only, the measured one beside it.
+		if v.BValue != 0 && v.BValue != 1000 || math.Abs(v.BValueMeasured-v.BValue) > 5 {
+			t.Errorf("volume %+v: want nominal 0 or 1000 with the measured value within tolerance", v)
+		}
+		if v.Images != 8 || v.Slices != 8 {
+			t.Errorf("volume %+v: want 8 images on 8 slices", v)
+		}
+		switch {
+		case v.Kind == "direction" && v.Direction != nil:
+			dirs++
+			// A unit vector (PS3.3 C.8.13.5.9: direction cosines).
+			if n := math.Sqrt(v.Direction[0]*v.Direction[0] + v.Direction[1]*v.Direction[1] + v.Direction[2]*v.Direction[2]); math.Abs(n-1) > 1e-9 {
+				t.Errorf("direction %v has length %v", *v.Direction, n)
+			}
+		case v.Kind != "direction" && v.Direction != nil:
+			t.Errorf("volume %+v: a %s volume has no direction", v, v.Kind)
+		}
+	}
+	if kinds["b0"] != 1 || kinds["trace"] != 1 || kinds["direction"] != 3 || dirs != 3 || len(kinds) != 3 {
+		t.Errorf("kinds %v with %d directions; want one b0, one trace, three directions", kinds, dirs)
+	}
+}
+
+// TestCheckTextListsDerivedSeriesAndIgnoredObjects adds to a clean
+// phantom an FA series (Image Type value 4 FA, common practice) and a
+// private non-image object (MR Image Storage, PS3.4 B.5, replaced by a
+// private SOP Class of the same length), both patched copies of its
+// files: they are listed, and nothing fails.
+func TestCheckTextListsDerivedSeriesAndIgnoredObjects(t *testing.T) {
+	dir := checkStudy(t, phantom.CaseClean)
+	var files []string
+	filepath.WalkDir(dir, func(p string, d os.DirEntry, err error) error {
+		if err == nil && d.Type().IsRegular() && strings.Contains(p, "dwi") {
+			files = append(files, p)
+		}
+		return nil
+	})
+	slices.Sort(files)
+	if len(files) < 2 {
+		t.Fatalf("DWI files %v", files)
+	}
+	patch := func(src, name string, pairs ...string) {
+		b, err := os.ReadFile(src)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := 0; i < len(pairs); i += 2 {
+			if !bytes.Contains(b, []byte(pairs[i])) || len(pairs[i]) != len(pairs[i+1]) {
+				t.Fatalf("cannot patch %q in %s", pairs[i], src)
+			}
+			b = bytes.ReplaceAll(b, []byte(pairs[i]), []byte(pairs[i+1]))
+		}
+		if err := os.WriteFile(filepath.Join(dir, name), b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	series := func(path string) string {
+		r := runCLI(t, "check", "--format", "json", path)
+		var body CheckResponse
+		if err := json.Unmarshal([]byte(r.stdout), &body); err != nil || len(body.Series) != 1 {
+			t.Fatalf("check of %s: %v\n%s", path, err, r.stdout)
+		}
+		return body.Series[0].SeriesUID
+	}
+	uid := series(dir)
+	faUID := uid[:len(uid)-1] + string("12"[(uid[len(uid)-1]-'0')%2])
+	patch(files[0], "fa.dcm", `ORIGINAL\PRIMARY\DIFFUSION\NONE `, `DERIVED\PRIMARY\DIFFUSION\FA    `, uid, faUID)
+	patch(files[1], "csa.dcm", "1.2.840.10008.5.1.4.1.1.4\x00", "1.3.12.2.1107.5.9.1.0.0.1\x00")
+
+	r := runCLI(t, "check", dir)
+	if r.code != exitOK {
+		t.Errorf("exit %d, want 0:\n%s", r.code, r.stdout)
+	}
+	for _, want := range []string{"FA map, 1 image, not audited", "1 DICOM file ignored, not images the audit reads (SOP Class 1.3.12.2.1107.5.9.1.0.0.1)", "No findings."} {
+		if !strings.Contains(r.stdout, want) {
+			t.Errorf("text output lacks %q:\n%s", want, r.stdout)
+		}
 	}
 }

@@ -10,5 +10,10 @@
 // data set begins so that the data set can be streamed onto an association
 // without being parsed.
 //
-// The package never interprets the data set itself.
+// The package never interprets the data set itself. It is the one Part 10
+// codec of the module: the requestor reads files with ReadMetaFile, the store
+// writes every received instance with AppendHeader, and the header readers
+// take LongLengthVR, the one table of VRs with a 32-bit length, from here.
+// So that the store can use it without depending on the network layer, it
+// imports only the standard library (deps_test.go).
 package part10

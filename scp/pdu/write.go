@@ -32,20 +32,20 @@ func write(w io.Writer, p PDU) error {
 	return nil
 }
 
-// Writer writes PDUs to a stream like Write, one Write call each, but
+// writer writes PDUs to a stream like write, one Write call each, but
 // encodes into a buffer it keeps, so that a steady stream of P-DATA-TF
 // costs no allocation. It is not safe for concurrent use.
-type Writer struct {
+type writer struct {
 	w   io.Writer
 	buf []byte
 }
 
 // newWriter returns a Writer on w.
-func newWriter(w io.Writer) *Writer { return &Writer{w: w} }
+func newWriter(w io.Writer) *writer { return &writer{w: w} }
 
 // write encodes p into the Writer's buffer and writes it with one Write
 // call.
-func (w *Writer) Write(p PDU) error {
+func (w *writer) Write(p PDU) error {
 	b, err := appendPDU(w.buf[:0], p)
 	if err != nil {
 		return err

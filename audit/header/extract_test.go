@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"encoding/binary"
@@ -14,6 +14,8 @@ import (
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 
+	"dwiaudit/audit/codec"
+	"dwiaudit/audit/dwi"
 	"dwiaudit/audit/synth"
 )
 
@@ -30,17 +32,17 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 	s.slope, s.intercept = 2, -10
 	want := []struct {
 		b              float64
-		directionality Directionality
+		directionality dwi.Directionality
 		gradient       [3]float64
 		hasGradient    bool
 		hasBMatrix     bool
 	}{
-		{0, DirectionalityNone, [3]float64{}, false, false},
-		{1000, DirectionalityDirectional, [3]float64{0, 0.6, 0.8}, true, false},
-		{1000, DirectionalityBMatrix, [3]float64{}, false, true},
-		{1000, DirectionalityIsotropic, [3]float64{}, false, false},
+		{0, dwi.DirectionalityNone, [3]float64{}, false, false},
+		{1000, dwi.DirectionalityDirectional, [3]float64{0, 0.6, 0.8}, true, false},
+		{1000, dwi.DirectionalityBMatrix, [3]float64{}, false, true},
+		{1000, dwi.DirectionalityIsotropic, [3]float64{}, false, false},
 	}
-	label := func(sc Scanner) string { return sc.StationName + "@" + sc.CallingAETitle }
+	label := func(sc dwi.Scanner) string { return sc.StationName + "@" + sc.CallingAETitle }
 	opt := ExtractOptions{LoadPixels: true, CallingAETitle: "MRI2", ScannerLabel: label}
 	for _, ts := range allSyntaxes {
 		for _, layout := range []string{"classic", "enhanced"} {
@@ -70,7 +72,7 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 						t.Errorf("frame %d: b-matrix %v, want %v", i, f.BMatrix, bm)
 					}
 					p := s.position(s.images[i])
-					g := Geometry{Rows: 8, Columns: 8, PixelSpacing: [2]float64{1.5, 1.5}, Position: p,
+					g := dwi.Geometry{Rows: 8, Columns: 8, PixelSpacing: [2]float64{1.5, 1.5}, Position: p,
 						Orientation: s.orientation, SliceThickness: 4, Known: true}
 					if f.Geometry != g {
 						t.Errorf("frame %d: geometry %+v, want %+v", i, f.Geometry, g)
@@ -82,10 +84,10 @@ func TestExtractReadsTheDiffusionHeader(t *testing.T) {
 					if got, want := f.Pixels[3*8+5], float32(2*float64(s.pixel(i, 3, 5))-10); got != want {
 						t.Errorf("frame %d: pixel (3,5) = %v, want %v", i, got, want)
 					}
-					if f.Kind != KindAcquired || f.Encapsulated || f.TransferSyntaxUID != ts {
+					if f.Kind != dwi.KindAcquired || f.Encapsulated || f.TransferSyntaxUID != ts {
 						t.Errorf("frame %d: kind %v encapsulated %v syntax %s", i, f.Kind, f.Encapsulated, f.TransferSyntaxUID)
 					}
-					wantScanner := Scanner{StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Quellvander Ostmire",
+					wantScanner := dwi.Scanner{StationName: "QOH-MR2", DeviceSerialNumber: "SN-0042", InstitutionName: "Quellvander Ostmire",
 						Manufacturer: "Synthetic", ModelName: "Test model", CallingAETitle: "MRI2", Label: "QOH-MR2@MRI2"}
 					if f.Scanner != wantScanner {
 						t.Errorf("frame %d: scanner %+v, want %+v", i, f.Scanner, wantScanner)
@@ -254,9 +256,9 @@ func TestExtractRefusesBrokenFilesWithAClearError(t *testing.T) {
 		opt  ExtractOptions
 		want error
 	}{
-		{"a file without the DICM prefix", make([]byte, 300), ExtractOptions{}, ErrNotDICOM},
-		{"an empty file", nil, ExtractOptions{}, ErrNotDICOM},
-		{"a transfer syntax the parser does not know", part10File(t, "1.2.826.0.1.3680043.99.1", mrImage, "2.25.7", classicEls()), ExtractOptions{}, ErrUnsupportedTransferSyntax},
+		{"a file without the DICM prefix", make([]byte, 300), ExtractOptions{}, ErrNotPart10},
+		{"an empty file", nil, ExtractOptions{}, ErrNotPart10},
+		{"a transfer syntax the parser does not know", part10File(t, "1.2.826.0.1.3680043.99.1", mrImage, "2.25.7", classicEls()), ExtractOptions{}, ErrUnknownTransferSyntax},
 		{"rows and columns that do not match the pixel data", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(slices.DeleteFunc(classicEls(), func(e el) bool { return e.tag == tRows }), us(tRows, 9), raw(tPixelData, "OW", pix))), ExtractOptions{LoadPixels: true}, ErrPixelData},
 		{"rows and columns that do not match, header only", part10File(t, tsExplicitLE, mrImage, "2.25.7",
@@ -280,8 +282,6 @@ func TestExtractRefusesBrokenFilesWithAClearError(t *testing.T) {
 		{"no pixel data when pixels are wanted", part10File(t, tsExplicitLE, mrImage, "2.25.7", classicEls()), ExtractOptions{LoadPixels: true}, ErrPixelData},
 		{"undefined-length pixel data in a native syntax", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(classicEls(), el{tag: tPixelData, vr: "OB", raw: frag, undefined: true})), ExtractOptions{}, ErrPixelData},
-		{"three samples per pixel", part10File(t, tsExplicitLE, mrImage, "2.25.7",
-			with(slices.DeleteFunc(classicEls(), func(e el) bool { return e.tag == tSamples }), us(tSamples, 3), raw(tPixelData, "OW", pix))), ExtractOptions{}, ErrPixelData},
 		{"a header string claiming 3 GiB", part10File(t, tsExplicitLE, mrImage, "2.25.7",
 			with(classicEls(), el{tag: tProtocol + 2, vr: "UT", strs: []string{"x"}, lie: ptr(uint32(3 << 30))})), ExtractOptions{}, ErrMalformed},
 		{"a per-frame functional group count that is not the frame count", bytesReplace(t, good, "\x08\x00IS\x02\x002 ", "\x08\x00IS\x02\x001 "), ExtractOptions{}, ErrMalformed},
@@ -332,9 +332,9 @@ func TestMissingGeometryFailsAssemblyNotExtraction(t *testing.T) {
 					t.Errorf("frame %s: geometry known", f.ID())
 				}
 			}
-			_, err := AssembleSeries(frames, DefaultTolerances())
-			if !errors.Is(err, ErrMissingGeometry) || !strings.Contains(err.Error(), frames[0].SOPInstanceUID) {
-				t.Errorf("error %v, want ErrMissingGeometry naming the image", err)
+			_, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances())
+			if !errors.Is(err, dwi.ErrMissingGeometry) || !strings.Contains(err.Error(), frames[0].SOPInstanceUID) {
+				t.Errorf("error %v, want dwi.ErrMissingGeometry naming the image", err)
 			}
 		})
 	}
@@ -342,8 +342,8 @@ func TestMissingGeometryFailsAssemblyNotExtraction(t *testing.T) {
 		s := newSeries("badori", img{b: 0})
 		s.orientation = [6]float64{1, 0, 0, 1, 0, 0}
 		frames := extractAll(t, s.classic(t, tsExplicitLE), ExtractOptions{})
-		if _, err := AssembleSeries(frames, DefaultTolerances()); !errors.Is(err, ErrMissingGeometry) {
-			t.Errorf("error %v, want ErrMissingGeometry", err)
+		if _, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances()); !errors.Is(err, dwi.ErrMissingGeometry) {
+			t.Errorf("error %v, want dwi.ErrMissingGeometry", err)
 		}
 	})
 }
@@ -457,9 +457,24 @@ func encapsulatedElements() []el {
 		el{tag: tPixelData, vr: "OB", raw: frags, undefined: true})
 }
 
+func TestCorruptCompressedPixelDataIsAnError(t *testing.T) {
+	// The same fragments labelled JPEG Baseline, which the codecs decode:
+	// they are not a JPEG stream, so the file is unreadable, not silently
+	// pixel-less.
+	file := part10File(t, tsJPEGBase, enhancedMR, "2.25.6", encapsulatedElements())
+	_, err := Extract(file, ExtractOptions{LoadPixels: true})
+	if !errors.Is(err, ErrPixelData) || !errors.Is(err, codec.ErrCorrupt) {
+		t.Fatalf("error %v, want ErrPixelData wrapping codec.ErrCorrupt", err)
+	}
+	// Without pixels the header is still read.
+	if _, err := Extract(file, ExtractOptions{}); err != nil {
+		t.Fatalf("header only: %v", err)
+	}
+}
+
 func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	els := encapsulatedElements()
-	file := part10File(t, tsJPEGBase, enhancedMR, "2.25.6", els)
+	file := part10File(t, tsJ2K, enhancedMR, "2.25.6", els)
 
 	frames, err := Extract(file, ExtractOptions{LoadPixels: true})
 	if err != nil {
@@ -472,16 +487,19 @@ func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 		if !f.Encapsulated || f.Pixels != nil {
 			t.Errorf("frame %s: encapsulated %v, %d pixels; want flagged and none", f.ID(), f.Encapsulated, len(f.Pixels))
 		}
+		if want := "JPEG 2000 (Lossless Only) (1.2.840.10008.1.2.4.90): the audit cannot decode"; !strings.Contains(f.Undecoded, want) {
+			t.Errorf("frame %s: reason %q, want it to say %q", f.ID(), f.Undecoded, want)
+		}
 	}
 	if frames[1].BValue != 1000 {
 		t.Errorf("b %v, want 1000: the header is still read", frames[1].BValue)
 	}
-	series, err := AssembleSeries(frames, DefaultTolerances())
+	series, err := dwi.AssembleSeries(frames, dwi.DefaultTolerances())
 	if err != nil {
 		t.Fatal(err)
 	}
 	if !series.Facts.Encapsulated {
-		t.Error("Facts.Encapsulated not set")
+		t.Error("dwi.Facts.Encapsulated not set")
 	}
 
 	t.Run("more frames than the fragments can hold is refused", func(t *testing.T) {
@@ -497,18 +515,56 @@ func TestEncapsulatedPixelDataIsFlaggedNotDecoded(t *testing.T) {
 	})
 }
 
+// RGB images (Samples per Pixel 3, PS3.3 C.7.6.3.1.1) are derived maps:
+// read for their header, never decoded, never an error.
+func TestRGBMapsAreReadForTheirHeaderOnly(t *testing.T) {
+	s := newSeries("rgb", img{b: 0})
+	pix := make([]byte, 8*8*3)
+	rgb := func(imageType ...string) []el {
+		base := s.common(mrImage, "2.25.7")
+		p := s.position(s.images[0])
+		base = append(base, ds(tIPP, p[:]...), ds(tIOP, s.orientation[:]...))
+		els := slices.DeleteFunc(base, func(e el) bool {
+			return e.tag == tSamples || e.tag == tImageType || e.tag == tBitsAllocated || e.tag == tBitsStored || e.tag == tHighBit || e.tag == tPhotometric
+		})
+		return append(els, us(tSamples, 3), txt(tPhotometric, "CS", "RGB"), us(tBitsAllocated, 8), us(tBitsStored, 8), us(tHighBit, 7),
+			txt(tImageType, "CS", imageType...), raw(tPixelData, "OB", pix))
+	}
+	for _, tt := range []struct {
+		name string
+		els  []el
+		want dwi.MapKind
+	}{
+		{"a colour FA map", rgb("DERIVED", "PRIMARY", "DIFFUSION", "FA"), dwi.KindColourFA},
+		{"another RGB image", rgb("DERIVED", "SECONDARY", "OTHER"), dwi.KindOtherDerived},
+	} {
+		t.Run(tt.name+" is a "+tt.want.String(), func(t *testing.T) {
+			frames, err := Extract(part10File(t, tsExplicitLE, mrImage, "2.25.7", tt.els), ExtractOptions{LoadPixels: true})
+			if err != nil || len(frames) != 1 {
+				t.Fatalf("%d frames, error %v; want one and no error", len(frames), err)
+			}
+			if f := frames[0]; f.Kind != tt.want || f.Pixels != nil || f.Kind.Audited() {
+				t.Errorf("kind %v, %d pixels; want %v, not decoded, not audited", f.Kind, len(f.Pixels), tt.want)
+			}
+		})
+	}
+}
+
 func TestDerivedMapsAreRecognised(t *testing.T) {
 	tests := []struct {
 		name string
 		m    img
-		want MapKind
+		want dwi.MapKind
 	}{
-		{"Image Type value 4 ADC (PS3.17 DERIVED\\PRIMARY\\DIFFUSION\\ADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}}, KindADC},
-		{"Image Type value 4 DIFFUSION_ATTNTD (eADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ATTNTD"}}, KindEADC},
-		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, KindOtherDerived},
-		{"Real World Value Mapping in um2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY"}, rwvUnits: "um2/s"}, KindADC},
-		{"Real World Value Mapping in 10-6.mm2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "OTHER"}, rwvUnits: "10-6.mm2/s"}, KindADC},
-		{"an acquired trace", img{b: 1000, iso: true}, KindAcquired},
+		{"Image Type value 4 ADC (PS3.17 DERIVED\\PRIMARY\\DIFFUSION\\ADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}}, dwi.KindADC},
+		{"Image Type value 4 DIFFUSION_ATTNTD (eADC)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ATTNTD"}}, dwi.KindEADC},
+		{"Image Type value 4 DIFFUSION_ANISO (FA)", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "DIFFUSION_ANISO"}}, dwi.KindFA},
+		// Common practice (from memory): classic FA and tensor b0 maps say so in Image Type.
+		{"Image Type FA", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "FA", "DIS2D"}}, dwi.KindFA},
+		{"Image Type TENSOR_B0", img{b: 0, imageType: []string{"DERIVED", "PRIMARY", "TENSOR_B0", "DIS2D"}}, dwi.KindTensorB0},
+		{"Real World Value Mapping in um2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY"}, rwvUnits: "um2/s"}, dwi.KindADC},
+		{"Real World Value Mapping in 10-6.mm2/s", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "OTHER"}, rwvUnits: "10-6.mm2/s"}, dwi.KindADC},
+		{"an acquired trace", img{b: 1000, iso: true}, dwi.KindAcquired},
 	}
 	for _, tt := range tests {
 		for _, layout := range []string{"classic", "enhanced"} {
@@ -522,7 +578,7 @@ func TestDerivedMapsAreRecognised(t *testing.T) {
 				if f.Kind != tt.want {
 					t.Errorf("kind %v, want %v", f.Kind, tt.want)
 				}
-				if tt.m.rwvUnits != "" && (len(f.RealWorld) != 1 || f.RealWorld[0] != RealWorldValue{Slope: 1, Units: tt.m.rwvUnits}) {
+				if tt.m.rwvUnits != "" && (len(f.RealWorld) != 1 || f.RealWorld[0] != dwi.RealWorldValue{Slope: 1, Units: tt.m.rwvUnits}) {
 					t.Errorf("real world values %+v", f.RealWorld)
 				}
 			})

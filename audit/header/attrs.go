@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"encoding/binary"

@@ -1,12 +1,14 @@
-package dwi
+package header
 
 import (
 	"errors"
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"testing"
 
+	"dwiaudit/audit/dwi"
 	"dwiaudit/internal/testtool"
 )
 
@@ -26,17 +28,19 @@ type testdataFile struct {
 	make    func(t testing.TB) []byte
 	frames  int
 	bvalues []float64
-	kind    MapKind
+	kind    dwi.MapKind
 	encaps  bool
 }
 
 func testdataFiles() []testdataFile {
 	x, y, z := [3]float64{1, 0, 0}, [3]float64{0, 1, 0}, [3]float64{0, 0, 1}
-	dwi := newSeries("td", img{b: 0}, img{b: 1000, dir: x}, img{b: 1000, dir: y},
+	diffusionSeries := newSeries("td", img{b: 0}, img{b: 1000, dir: x}, img{b: 1000, dir: y},
 		img{b: 1000, directionality: "BMATRIX", bmatrix: &[6]float64{0, 0, 0, 0, 0, 1000}, dir: z})
 	private := newSeries("tdpriv", img{noB: true, directionality: "DIRECTIONAL", dir: x, extra: []el{
 		txt(0x00190010, "LO", "ACME DIFFUSION 1"), txt(0x0019100C, "IS", "1000")}})
 	adc := newSeries("tdadc", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}, rwvUnits: "10-6.mm2/s"})
+	ge := geSeries("tdge", geImage([]string{"0", "8", "0", "0"}, [3]float64{}, 0, nil))
+	philips := philipsSeries("tdphilips", philipsImage(1000, "O", [3]float32{0, 0.6, 0.8}, 0))
 	classic := func(s testSeries, ts string, k int) func(testing.TB) []byte {
 		return func(t testing.TB) []byte { return s.classic(t, ts)[k] }
 	}
@@ -44,16 +48,18 @@ func testdataFiles() []testdataFile {
 		return func(t testing.TB) []byte { return s.enhanced(t, ts) }
 	}
 	return []testdataFile{
-		{"classic-explicit-le.dcm", classic(dwi, tsExplicitLE, 1), 1, []float64{1000}, KindAcquired, false},
-		{"classic-implicit-le.dcm", classic(dwi, tsImplicitLE, 0), 1, []float64{0}, KindAcquired, false},
-		{"classic-explicit-be.dcm", classic(dwi, tsExplicitBE, 3), 1, []float64{1000}, KindAcquired, false},
-		{"classic-private-b-implicit.dcm", classic(private, tsImplicitLE, 0), 1, []float64{1000}, KindAcquired, false},
-		{"classic-adc-map.dcm", classic(adc, tsExplicitLE, 0), 1, []float64{1000}, KindADC, false},
-		{"enhanced-explicit-le.dcm", enhanced(dwi, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, KindAcquired, false},
-		{"enhanced-deflated.dcm", enhanced(dwi, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, KindAcquired, false},
+		{"classic-explicit-le.dcm", classic(diffusionSeries, tsExplicitLE, 1), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-implicit-le.dcm", classic(diffusionSeries, tsImplicitLE, 0), 1, []float64{0}, dwi.KindAcquired, false},
+		{"classic-explicit-be.dcm", classic(diffusionSeries, tsExplicitBE, 3), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-private-b-implicit.dcm", classic(private, tsImplicitLE, 0), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"classic-adc-map.dcm", classic(adc, tsExplicitLE, 0), 1, []float64{1000}, dwi.KindADC, false},
+		{"classic-ge-private-b0-implicit.dcm", classic(ge, tsImplicitLE, 0), 1, []float64{0}, dwi.KindAcquired, false},
+		{"classic-philips-private-implicit.dcm", classic(philips, tsImplicitLE, 0), 1, []float64{1000}, dwi.KindAcquired, false},
+		{"enhanced-explicit-le.dcm", enhanced(diffusionSeries, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
+		{"enhanced-deflated.dcm", enhanced(diffusionSeries, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-jpeg-encapsulated.dcm", func(t testing.TB) []byte {
-			return part10File(t, tsJPEGBase, enhancedMR, "2.25.6", encapsulatedElements())
-		}, 2, []float64{0, 1000}, KindAcquired, true},
+			return part10File(t, tsJ2K, enhancedMR, "2.25.6", encapsulatedElements())
+		}, 2, []float64{0, 1000}, dwi.KindAcquired, true},
 	}
 }
 
@@ -102,6 +108,14 @@ func FuzzExtract(f *testing.F) {
 		}
 		f.Add(b)
 	}
+	// Synthetic Siemens mosaics (siemens_extract_test.go), so that the
+	// CSA reader and the mosaic split are fuzzed through extraction too.
+	for i, ts := range []string{tsExplicitLE, tsImplicitLE} {
+		m := siemensMosaic(siemensCSA("1000", "4", []string{"0.6", "-0.8", "0"}, []string{"0", "0", "1"}))
+		f.Add(newSeries("fuzz-siemens", m).classic(f, ts)[0])
+		b0 := siemensMosaic(siemensCSA("0", strconv.Itoa(3+i), nil, []string{"0", "0", "-1"}))
+		f.Add(newSeries("fuzz-siemens-b0", b0).classic(f, ts)[0])
+	}
 	opt := testdataOptions()
 	f.Fuzz(func(t *testing.T, data []byte) {
 		frames, err := Extract(data, opt)
@@ -109,7 +123,7 @@ func FuzzExtract(f *testing.F) {
 			if frames != nil {
 				t.Errorf("frames with error %v", err)
 			}
-			for _, sentinel := range []error{ErrNotDICOM, ErrUnsupportedTransferSyntax, ErrMalformed, ErrPixelData, ErrPrivateSource} {
+			for _, sentinel := range []error{ErrNotPart10, ErrUnknownTransferSyntax, ErrMalformed, ErrPixelData, ErrPrivateSource} {
 				if errors.Is(err, sentinel) {
 					return
 				}
@@ -124,8 +138,8 @@ func FuzzExtract(f *testing.F) {
 			}
 		}
 		if len(frames) > 0 {
-			AssembleSeries(frames, DefaultTolerances()) // must return, whatever it returns
-			AssembleStudy(frames, DefaultTolerances())
+			dwi.AssembleSeries(frames, dwi.DefaultTolerances()) // must return, whatever it returns
+			dwi.AssembleStudy(frames, dwi.DefaultTolerances())
 		}
 	})
 }

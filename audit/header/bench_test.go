@@ -1,10 +1,12 @@
-package dwi
+package header
 
 import (
 	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
+
+	"dwiaudit/audit/dwi"
 )
 
 // benchSeries is a clinical-size brain DWI: 256 x 256, 60 slices, a b0,
@@ -58,7 +60,7 @@ func BenchmarkExtractFile(b *testing.B) {
 // volumes (assembly alone, frames in memory).
 func BenchmarkAssemble(b *testing.B) {
 	s := benchSeries()
-	var frames []Frame
+	var frames []dwi.Frame
 	for _, p := range writeBenchFiles(b, s) {
 		fs, err := ExtractFile(p, ExtractOptions{LoadPixels: true})
 		if err != nil {
@@ -66,10 +68,10 @@ func BenchmarkAssemble(b *testing.B) {
 		}
 		frames = append(frames, fs...)
 	}
-	tol := DefaultTolerances()
+	tol := dwi.DefaultTolerances()
 	b.ReportAllocs()
 	for b.Loop() {
-		series, err := AssembleSeries(frames, tol)
+		series, err := dwi.AssembleSeries(frames, tol)
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -84,10 +86,10 @@ func BenchmarkAssemble(b *testing.B) {
 // and assemble them. The ADC step (audit/adc) comes on top.
 func BenchmarkExtractAndAssembleSeries(b *testing.B) {
 	paths := writeBenchFiles(b, benchSeries())
-	opt, tol := ExtractOptions{LoadPixels: true}, DefaultTolerances()
+	opt, tol := ExtractOptions{LoadPixels: true}, dwi.DefaultTolerances()
 	b.ReportAllocs()
 	for b.Loop() {
-		frames := make([]Frame, 0, len(paths))
+		frames := make([]dwi.Frame, 0, len(paths))
 		for _, p := range paths {
 			fs, err := ExtractFile(p, opt)
 			if err != nil {
@@ -95,7 +97,7 @@ func BenchmarkExtractAndAssembleSeries(b *testing.B) {
 			}
 			frames = append(frames, fs...)
 		}
-		if _, err := AssembleSeries(frames, tol); err != nil {
+		if _, err := dwi.AssembleSeries(frames, tol); err != nil {
 			b.Fatal(err)
 		}
 	}
@@ -109,14 +111,14 @@ func BenchmarkExtractEnhancedSeries(b *testing.B) {
 	if err := os.WriteFile(path, data, 0o644); err != nil {
 		b.Fatal(err)
 	}
-	opt, tol := ExtractOptions{LoadPixels: true}, DefaultTolerances()
+	opt, tol := ExtractOptions{LoadPixels: true}, dwi.DefaultTolerances()
 	b.ReportAllocs()
 	for b.Loop() {
 		frames, err := ExtractFile(path, opt)
 		if err != nil {
 			b.Fatal(err)
 		}
-		if _, err := AssembleSeries(frames, tol); err != nil {
+		if _, err := dwi.AssembleSeries(frames, tol); err != nil {
 			b.Fatal(err)
 		}
 	}

@@ -1,4 +1,4 @@
-package dwi
+package header
 
 import (
 	"fmt"
@@ -7,7 +7,8 @@ import (
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 
-	"dwiaudit/audit/header"
+	"dwiaudit/audit/codec"
+	"dwiaudit/audit/dwi"
 )
 
 // pixelFormat is how native pixel values are stored (PS3.3 C.7.6.3,
@@ -19,6 +20,11 @@ type pixelFormat struct {
 	signed     bool // Pixel Representation 1: two's complement
 	frameBytes int64
 	offset     int64 // of the first frame's value
+
+	// encapsulated is set for compressed pixel data that package
+	// audit/codec decodes; image is what it is decoded against.
+	encapsulated bool
+	image        codec.Image
 }
 
 // minFragmentBytes is the least an encapsulated frame takes: one item
@@ -47,7 +53,9 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 		if span := l.End - l.ValueOffset; int64(n) > span/minFragmentBytes {
 			return nil, fmt.Errorf("%w: %d frames in %d bytes of encapsulated pixel data", ErrPixelData, n, span)
 		}
-		return nil, nil // encapsulated: reported, never decoded
+		if !x.decodes() {
+			return nil, nil // reported by Frame.Encapsulated, not decoded
+		}
 	}
 	top, bo := x.top, x.bo
 	if spp, ok := top.integer(tag.SamplesPerPixel, ValueUS, bo); ok && spp != 1 {
@@ -61,9 +69,9 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 	pf := &pixelFormat{offset: l.ValueOffset}
 	allocated, _ := top.integer(tag.BitsAllocated, ValueUS, bo)
 	switch l.Tag {
-	case header.TagFloatPixelData:
+	case TagFloatPixelData:
 		pf.bytes, pf.float = 4, true
-	case header.TagDoubleFloatPixelData:
+	case TagDoubleFloatPixelData:
 		pf.bytes, pf.float = 8, true
 	default:
 		switch allocated {
@@ -80,6 +88,15 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 		pf.signed = rep == 1
 	}
 	pf.frameBytes = int64(rows) * int64(cols) * int64(pf.bytes)
+	if l.Length < 0 {
+		if pf.float || pf.bytes > 2 {
+			return nil, fmt.Errorf("%w: Bits Allocated %d in compressed pixel data (the codecs decode 8 or 16)", ErrPixelData, allocated)
+		}
+		pf.encapsulated = true
+		pf.image = codec.Image{Rows: rows, Columns: cols, SamplesPerPixel: 1, BitsAllocated: allocated,
+			BitsStored: pf.bitsStored, Signed: pf.signed, Photometric: top.str(tag.PhotometricInterpretation)}
+		return pf, nil
+	}
 	want := pf.frameBytes * int64(n)
 	if l.Length != want && !(want%2 == 1 && l.Length == want+1) {
 		return nil, fmt.Errorf("%w: pixel data holds %d bytes; %d rows x %d columns x %d frames x %d bytes need %d",
@@ -92,8 +109,37 @@ func (x *extraction) checkPixelData(rows, cols, n int) (*pixelFormat, error) {
 // frame's float32 pixels, large enough that a frame takes a few reads.
 const readChunk = 64 << 10
 
+// decodes reports whether the audit decodes this instance's pixel data:
+// native, or compressed in a syntax package audit/codec decodes, with
+// one sample per pixel (MR images; PS3.3 C.8.3.1.1.4).
+func (x *extraction) decodes() bool { return x.undecoded() == "" }
+
+// undecoded says why the pixel data is not decoded, naming the transfer
+// syntax; "" when it is (or when there is none).
+func (x *extraction) undecoded() string {
+	l := x.layout
+	switch {
+	case l.Tag == 0 || (x.native && l.Length >= 0):
+		return ""
+	case x.native:
+		return "" // undefined length in a native syntax: checkPixelData reports it
+	case l.Length >= 0:
+		// PS3.5 A.4: encapsulated pixel data has undefined length.
+		return fmt.Sprintf("pixel data of defined length in %s, a compressed transfer syntax: not decoded", codec.Name(x.ts))
+	case !codec.CanDecode(x.ts):
+		return fmt.Sprintf("compressed pixel data in %s: the audit cannot decode this transfer syntax", codec.Name(x.ts))
+	}
+	if spp, ok := x.top.integer(tag.SamplesPerPixel, ValueUS, x.bo); ok && spp != 1 {
+		return fmt.Sprintf("compressed pixel data in %s with %d samples per pixel: the audit decodes single-sample (MR) images", codec.Name(x.ts), spp)
+	}
+	return ""
+}
+
 // loadPixels decodes every frame into one slab of float32, rescaled.
-func (x *extraction) loadPixels(frames []Frame, pf *pixelFormat) error {
+func (x *extraction) loadPixels(frames []dwi.Frame, pf *pixelFormat) error {
+	if pf.encapsulated {
+		return x.loadEncapsulated(frames, pf)
+	}
 	npix := int(pf.frameBytes) / pf.bytes
 	slab := make([]float32, npix*len(frames))
 	chunk := min(int(pf.frameBytes), readChunk/pf.bytes*pf.bytes)
@@ -173,4 +219,31 @@ func (x *extraction) decode(dst []float32, src []byte, pf *pixelFormat, slope, i
 			out(i, value(uint64(bo.Uint32(src[4*i:]))))
 		}
 	}
+}
+
+// loadEncapsulated decodes every compressed frame (PS3.5 A.4: the items
+// of the Pixel Data value, split into frames by codec.Frames) into one
+// slab of float32, rescaled as native frames are.
+func (x *extraction) loadEncapsulated(frames []dwi.Frame, pf *pixelFormat) error {
+	l := x.layout
+	value := make([]byte, l.End-l.ValueOffset) // within the file: FindPixelData checked End against its size
+	if _, err := x.ra.ReadAt(value, l.ValueOffset); err != nil && err != io.EOF {
+		return err
+	}
+	coded, err := codec.Frames(value, len(frames), x.ts)
+	if err != nil {
+		return fmt.Errorf("%w: %w", ErrPixelData, err)
+	}
+	npix := int(pf.frameBytes) / pf.bytes
+	slab := make([]float32, npix*len(frames))
+	for i := range frames {
+		f := &frames[i]
+		native, err := codec.Decode(x.ts, pf.image, coded[i])
+		if err != nil {
+			return fmt.Errorf("%w: frame %d: %w", ErrPixelData, i+1, err)
+		}
+		f.Pixels = slab[i*npix : (i+1)*npix : (i+1)*npix]
+		x.decode(f.Pixels, native, pf, f.RescaleSlope, f.RescaleIntercept)
+	}
+	return nil
 }

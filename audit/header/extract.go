@@ -1,7 +1,8 @@
-package dwi
+package header
 
 import (
 	"bytes"
+	"cmp"
 	"compress/flate"
 	"encoding/binary"
 	"errors"
@@ -11,11 +12,10 @@ import (
 	"os"
 	"strings"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 	"github.com/suyashkumar/dicom/pkg/uid"
 
-	"dwiaudit/audit/header"
+	"dwiaudit/audit/dwi"
 	"dwiaudit/scp/part10"
 )
 
@@ -24,7 +24,7 @@ const (
 	// maxFrames caps Number of Frames (0028,0008). A large multi-frame
 	// diffusion acquisition holds a few tens of thousands of frames (80
 	// slices x 256 directions is 20480, common practice); a bigger count
-	// is a broken or hostile header, and each frame costs a Frame value
+	// is a broken or hostile header, and each frame costs a dwi.Frame value
 	// before any pixel is read.
 	maxFrames = 1 << 16
 
@@ -37,7 +37,7 @@ const (
 	maxInflatedDataSet = 512 << 20
 )
 
-// Frame.BValueSource values for the standard attribute.
+// dwi.Frame.BValueSource values for the standard attribute.
 const (
 	sourceStandard = "standard"  // (0018,9087) at the top level, or in a top-level MR Diffusion Sequence
 	sourcePerFrame = "per-frame" // MR Diffusion Sequence in the Per-frame Functional Groups
@@ -56,16 +56,17 @@ func nativeSyntax(ts string) bool {
 }
 
 // ExtractFile reads the diffusion header model of every image in the
-// Part 10 file at path: one Frame for a classic image, one per frame of a
+// Part 10 file at path: one dwi.Frame for a classic image, one per frame of a
 // multi-frame instance, none for an instance without images. It never
 // panics and never lets the data-set parser allocate from a length the
-// file does not hold. Errors wrap ErrNotDICOM,
-// ErrUnsupportedTransferSyntax, ErrMalformed, ErrPixelData,
+// file does not hold. Errors wrap ErrNotPart10,
+// ErrUnknownTransferSyntax, ErrMalformed, ErrPixelData,
 // ErrPrivateSource or ErrInvalidOptions, or are I/O errors. Missing
-// geometry is not an error here (Geometry.Known is false); assembly needs
-// geometry and says so. Encapsulated (compressed) pixel data gives frames
-// with Encapsulated set and no pixels.
-func ExtractFile(path string, opt ExtractOptions) ([]Frame, error) {
+// geometry is not an error here (dwi.Geometry.Known is false); assembly needs
+// geometry and says so. Compressed pixel data is decoded (package
+// audit/codec) when its transfer syntax is one the codecs know; any other
+// gives frames with Encapsulated set and no pixels.
+func ExtractFile(path string, opt ExtractOptions) ([]dwi.Frame, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, err
@@ -79,23 +80,23 @@ func ExtractFile(path string, opt ExtractOptions) ([]Frame, error) {
 }
 
 // Extract is ExtractFile over the bytes of a Part 10 file.
-func Extract(data []byte, opt ExtractOptions) ([]Frame, error) {
+func Extract(data []byte, opt ExtractOptions) ([]dwi.Frame, error) {
 	return extract(bytes.NewReader(data), int64(len(data)), opt)
 }
 
-func extract(ra io.ReaderAt, size int64, opt ExtractOptions) ([]Frame, error) {
+func extract(ra io.ReaderAt, size int64, opt ExtractOptions) ([]dwi.Frame, error) {
 	if err := opt.validate(); err != nil {
 		return nil, err
 	}
 	meta, off, err := part10.ReadMeta(io.NewSectionReader(ra, 0, size))
 	if err != nil {
-		return nil, fmt.Errorf("%w: %w", ErrNotDICOM, err)
+		return nil, fmt.Errorf("%w: %w", ErrNotPart10, err)
 	}
 	ts := meta.TransferSyntaxUID
 	bo, implicit, err := uid.ParseTransferSyntaxUID(ts)
 	if err != nil {
 		// The parser would go on with a nil byte order and panic.
-		return nil, fmt.Errorf("%w: %q", ErrUnsupportedTransferSyntax, ts)
+		return nil, fmt.Errorf("%w: %q", ErrUnknownTransferSyntax, ts)
 	}
 	if ts == uid.DeflatedExplicitVRLittleEndian {
 		// PS3.5 A.5: after the file meta the data set is raw deflate;
@@ -108,11 +109,8 @@ func extract(ra io.ReaderAt, size int64, opt ExtractOptions) ([]Frame, error) {
 		ra, size, off = bytes.NewReader(data), int64(len(data)), n
 	}
 
-	layout, err := header.FindPixelData(io.NewSectionReader(ra, off, size-off), bo, implicit, off, size)
+	layout, err := FindPixelData(io.NewSectionReader(ra, off, size-off), bo, implicit, off, size)
 	if err != nil {
-		if errors.Is(err, header.ErrMalformed) {
-			return nil, fmt.Errorf("%w: %w", ErrMalformed, err)
-		}
 		return nil, err
 	}
 	regionEnd := size
@@ -124,7 +122,7 @@ func extract(ra io.ReaderAt, size int64, opt ExtractOptions) ([]Frame, error) {
 		return nil, err
 	}
 	x := &extraction{
-		top: level(ds.Elements), bo: bo, ts: ts, opt: opt,
+		top: level(ds.Elements), bo: bo, ts: ts, opt: opt, makers: opt.makers(),
 		native: nativeSyntax(ts), layout: layout, ra: ra, size: size,
 	}
 	return x.frames()
@@ -136,7 +134,7 @@ func inflate(r io.Reader, meta part10.Meta) ([]byte, int64, error) {
 	meta.TransferSyntaxUID = uid.ExplicitVRLittleEndian
 	var b bytes.Buffer
 	if err := part10.WriteHeader(&b, meta); err != nil {
-		return nil, 0, fmt.Errorf("%w: %w", ErrNotDICOM, err)
+		return nil, 0, fmt.Errorf("%w: %w", ErrNotPart10, err)
 	}
 	n := int64(b.Len())
 	m, err := b.ReadFrom(io.LimitReader(flate.NewReader(r), maxInflatedDataSet+1))
@@ -152,39 +150,21 @@ func inflate(r io.Reader, meta part10.Meta) ([]byte, int64, error) {
 	return b.Bytes(), n, nil
 }
 
-// parse runs the data-set parser over the header region (everything up
-// to the top-level pixel data, whose lengths FindPixelData has checked),
-// turning its panics into ErrMalformed.
-func parse(r io.Reader, n int64) (ds dicom.Dataset, err error) {
-	defer func() {
-		if p := recover(); p != nil {
-			err = fmt.Errorf("%w: parser panic: %v", ErrMalformed, p)
-		}
-	}()
-	ds, err = dicom.Parse(r, n, nil,
-		dicom.SkipPixelData(), // nested pixel data (icons); the top-level one is outside the region
-		dicom.AllowMissingMetaElementGroupLength(),
-		dicom.AllowUnknownSpecificCharacterSet(),
-	)
-	if err != nil {
-		return ds, fmt.Errorf("%w: %w", ErrMalformed, err)
-	}
-	return ds, nil
-}
-
 // extraction is the state of reading one file's frames.
 type extraction struct {
 	top    level
 	bo     binary.ByteOrder
 	ts     string
 	opt    ExtractOptions
+	makers []MakerReader
 	native bool
-	layout header.PixelDataLayout
+	layout PixelDataLayout
 	ra     io.ReaderAt
 	size   int64
+	kind   dwi.MapKind // of the instance (dwi.Classify); a map not audited is read for its header only
 }
 
-func (x *extraction) frames() ([]Frame, error) {
+func (x *extraction) frames() ([]dwi.Frame, error) {
 	top := x.top
 	rows, _ := top.integer(tag.Rows, ValueUS, x.bo)
 	cols, _ := top.integer(tag.Columns, ValueUS, x.bo)
@@ -215,14 +195,23 @@ func (x *extraction) frames() ([]Frame, error) {
 			return nil, fmt.Errorf("%w: Number of Frames %d and no pixel data", ErrPixelData, n)
 		}
 	}
-	pf, err := x.checkPixelData(rows, cols, n)
-	if err != nil {
-		return nil, err
+	// Derived maps the audit does not use (FA, colour FA, tensor b0) are
+	// read for their header only: their pixels may be of a kind the
+	// audit does not decode (RGB), and are never computed on.
+	spp, _ := top.integer(tag.SamplesPerPixel, ValueUS, x.bo)
+	x.kind = dwi.Classify(dwi.ClassifyInput{SOPClassUID: top.str(tag.SOPClassUID), SamplesPerPixel: spp, ImageType: top.strs(tag.ImageType)})
+	var pf *pixelFormat
+	if x.kind.Audited() {
+		var err error
+		if pf, err = x.checkPixelData(rows, cols, n); err != nil {
+			return nil, err
+		}
 	}
 
 	shared := top.item(tag.SharedFunctionalGroupsSequence)
 	base := x.common()
-	frames := make([]Frame, n)
+	frames := make([]dwi.Frame, n)
+	mosaics := make([]*Mosaic, n)
 	for i := range frames {
 		var per level
 		if perFrame != nil {
@@ -233,7 +222,8 @@ func (x *extraction) frames() ([]Frame, error) {
 		if multi {
 			f.FrameNumber = i + 1
 		}
-		if err := x.frame(f, per, shared, rows, cols); err != nil {
+		var err error
+		if mosaics[i], err = x.frame(f, per, shared, rows, cols); err != nil {
 			return nil, err
 		}
 	}
@@ -242,13 +232,13 @@ func (x *extraction) frames() ([]Frame, error) {
 			return nil, err
 		}
 	}
-	return frames, nil
+	return splitMosaics(frames, mosaics), nil
 }
 
 // common reads what every frame of the instance shares.
-func (x *extraction) common() Frame {
+func (x *extraction) common() dwi.Frame {
 	t := x.top
-	s := Scanner{
+	s := dwi.Scanner{
 		StationName:        t.str(tag.StationName),
 		DeviceSerialNumber: t.str(tag.DeviceSerialNumber),
 		InstitutionName:    t.str(tag.InstitutionName),
@@ -261,7 +251,7 @@ func (x *extraction) common() Frame {
 	}
 	series, _ := t.integer(tag.SeriesNumber, ValueIS, x.bo)
 	instance, _ := t.integer(tag.InstanceNumber, ValueIS, x.bo)
-	return Frame{
+	return dwi.Frame{
 		SOPInstanceUID:      t.str(tag.SOPInstanceUID),
 		SOPClassUID:         t.str(tag.SOPClassUID),
 		TransferSyntaxUID:   x.ts,
@@ -278,7 +268,8 @@ func (x *extraction) common() Frame {
 		Modality:            t.str(tag.Modality),
 		AcquisitionContrast: t.str(tag.AcquisitionContrast),
 		Scanner:             s,
-		Encapsulated:        x.layout.Tag != 0 && (!x.native || x.layout.Length < 0),
+		Encapsulated:        !x.decodes(),
+		Undecoded:           x.undecoded(),
 	}
 }
 
@@ -296,14 +287,15 @@ func macro(per, shared level, t tag.Tag) (level, string) {
 	return nil, ""
 }
 
-// frame fills the per-frame attributes of f.
-func (x *extraction) frame(f *Frame, per, shared level, rows, cols int) error {
+// frame fills the per-frame attributes of f, and returns the mosaic
+// layout a maker reader gave for it (nil when it is one slice).
+func (x *extraction) frame(f *dwi.Frame, per, shared level, rows, cols int) (*Mosaic, error) {
 	top, bo := x.top, x.bo
 
 	// Geometry: PS3.3 C.7.6.2 (classic) or the Plane Position, Plane
 	// Orientation and Pixel Measures functional groups (C.7.6.16.2.3,
 	// .2.4, .2.1).
-	g := Geometry{Rows: rows, Columns: cols}
+	g := dwi.Geometry{Rows: rows, Columns: cols}
 	pick := func(seq, t tag.Tag, n int) []float64 {
 		if it, _ := macro(per, shared, seq); it != nil {
 			if v := it.floats(t, ValueDS, bo); len(v) == n {
@@ -317,9 +309,13 @@ func (x *extraction) frame(f *Frame, per, shared level, rows, cols int) error {
 	}
 	pos := pick(tag.PlanePositionSequence, tag.ImagePositionPatient, 3)
 	ori := pick(tag.PlaneOrientationSequence, tag.ImageOrientationPatient, 6)
+	if ori != nil {
+		// Kept without a position too: a mosaic's slices get theirs
+		// from a maker reader (makers.go).
+		copy(g.Orientation[:], ori)
+	}
 	if pos != nil && ori != nil {
 		copy(g.Position[:], pos)
-		copy(g.Orientation[:], ori)
 		g.Known = true
 	}
 	if v := pick(tag.PixelMeasuresSequence, tag.PixelSpacing, 2); v != nil {
@@ -362,7 +358,7 @@ func (x *extraction) frame(f *Frame, per, shared level, rows, cols int) error {
 	}
 	f.RealWorld = nil
 	for _, it := range rwv {
-		m := RealWorldValue{Slope: 1}
+		m := dwi.RealWorldValue{Slope: 1}
 		if v, ok := it.float(tag.RealWorldValueSlope, ValueFD, bo); ok {
 			m.Slope = v
 		}
@@ -372,22 +368,25 @@ func (x *extraction) frame(f *Frame, per, shared level, rows, cols int) error {
 		m.Units = it.item(tag.MeasurementUnitsCodeSequence).str(tag.CodeValue)
 		f.RealWorld = append(f.RealWorld, m)
 	}
-	f.Kind = kindOf(f.ImageType, f.RealWorld)
+	f.Kind = dwi.Classify(dwi.ClassifyInput{SOPClassUID: f.SOPClassUID, ImageType: f.ImageType, RealWorld: f.RealWorld})
+	if !x.kind.Audited() {
+		f.Kind = x.kind
+	}
 
 	x.diffusion(f, per, shared)
 	if !f.HasBValue {
 		if err := x.private(f, per, shared); err != nil {
-			return err
+			return nil, err
 		}
 	}
-	return nil
+	return x.readMakers(f, per, shared)
 }
 
 // diffusion reads the MR Diffusion Macro (PS3.3 C.8.13.5.9): from the
 // frame's functional groups, else a top-level MR Diffusion Sequence, else
 // the same attributes at the top level, where classic MR images put
 // them. Each attribute comes from the first of those places that has it.
-func (x *extraction) diffusion(f *Frame, per, shared level) {
+func (x *extraction) diffusion(f *dwi.Frame, per, shared level) {
 	bo := x.bo
 	type place struct {
 		l      level
@@ -450,61 +449,25 @@ func (x *extraction) diffusion(f *Frame, per, shared level) {
 	}
 }
 
-func parseDirectionality(s string) Directionality {
+func parseDirectionality(s string) dwi.Directionality {
 	switch strings.ToUpper(s) {
 	case "NONE":
-		return DirectionalityNone
+		return dwi.DirectionalityNone
 	case "DIRECTIONAL":
-		return DirectionalityDirectional
+		return dwi.DirectionalityDirectional
 	case "BMATRIX":
-		return DirectionalityBMatrix
+		return dwi.DirectionalityBMatrix
 	case "ISOTROPIC":
-		return DirectionalityIsotropic
+		return dwi.DirectionalityIsotropic
 	}
-	return DirectionalityUnknown
-}
-
-// Units codes (UCUM, in Measurement Units Code Sequence of a Real World
-// Value Mapping) of a diffusion coefficient: DOMAIN.md, PS3.16 CID 7181
-// (from memory).
-func adcUnits(u string) bool {
-	switch u {
-	case "mm2/s", "um2/s", "10-6.mm2/s":
-		return true
-	}
-	return false
-}
-
-// kindOf says whether an image is acquired or a scanner map. Image Type
-// or Frame Type value 4 (Derived Pixel Contrast, PS3.3 C.8.16.1 and the
-// Enhanced MR defined terms of C.8.13.1.1.1: ADC, DIFFUSION_ATTNTD,
-// DIFFUSION_ANISO; dicom3tools' EnhancedMRImageType4 list has them too),
-// else a Real World Value Mapping in units of a diffusion coefficient.
-// "FA" for an anisotropy map is common practice in classic images.
-func kindOf(imageType []string, rwv []RealWorldValue) MapKind {
-	if len(imageType) >= 4 {
-		switch strings.ToUpper(imageType[3]) {
-		case "ADC":
-			return KindADC
-		case "DIFFUSION_ATTNTD":
-			return KindEADC
-		case "DIFFUSION_ANISO", "FA":
-			return KindOtherDerived
-		}
-	}
-	for _, m := range rwv {
-		if adcUnits(m.Units) {
-			return KindADC
-		}
-	}
-	return KindAcquired
+	return dwi.DirectionalityUnknown
 }
 
 // private tries the configured private sources, in order, for a frame
 // without a standard b-value. A source applies where its private creator
 // is present; one that applies but cannot give a value is an error unless
 // a later source gives one.
-func (x *extraction) private(f *Frame, per, shared level) error {
+func (x *extraction) private(f *dwi.Frame, per, shared level) error {
 	var firstErr error
 	for _, src := range x.opt.PrivateSources {
 		for _, l := range privateLevels(per, shared, x.top) {
@@ -519,6 +482,18 @@ func (x *extraction) private(f *Frame, per, shared level) error {
 				break
 			}
 			f.BValue, f.HasBValue, f.BValueSource = b, true, sourcePrivate+src.Name
+			if src.Gradient != nil && (!f.HasGradient || f.Gradient == [3]float64{}) {
+				g, err := readGradient(l, src, f, x.bo)
+				if err != nil {
+					return err
+				}
+				if g != ([3]float64{}) {
+					f.Gradient, f.HasGradient = g, true
+					if f.Directionality == dwi.DirectionalityUnknown {
+						f.Directionality = dwi.DirectionalityDirectional
+					}
+				}
+			}
 			return nil
 		}
 	}
@@ -582,9 +557,54 @@ func readPrivate(l level, src PrivateSource, bo binary.ByteOrder) (b float64, fo
 	if scale == 0 {
 		scale = 1
 	}
-	b = v[src.Index] * scale
+	b = (v[src.Index] - src.Offset) * scale
 	if b < 0 || math.IsNaN(b) || math.IsInf(b, 0) {
 		return fail("gives b-value %v", b)
 	}
 	return b, true, nil
+}
+
+// readGradient reads the gradient source of src in level l for f: a unit
+// vector in patient axes, or an error naming the element.
+func readGradient(l level, src PrivateSource, f *dwi.Frame, bo binary.ByteOrder) ([3]float64, error) {
+	g := src.Gradient
+	creator := cmp.Or(g.Creator, src.Creator)
+	group := cmp.Or(g.Group, src.Group)
+	block := creatorBlock(l, creator, group)
+	tagText := func(elem uint8) string {
+		return fmt.Sprintf("(%04X,%02X%02X)", group, max(block, 0), elem)
+	}
+	fail := func(elem uint8, format string, args ...any) ([3]float64, error) {
+		return [3]float64{}, &PrivateSourceError{Source: src.Name, Tag: tagText(elem), Reason: fmt.Sprintf(format, args...)}
+	}
+	if block < 0 {
+		return fail(g.Element[0], "gradient: private creator %q absent", creator)
+	}
+	var v []float64
+	for _, elem := range g.Element {
+		e := l.find(tag.Tag{Group: group, Element: uint16(block)<<8 | uint16(elem)})
+		if e == nil {
+			return fail(elem, "gradient element absent")
+		}
+		n, err := numbers(e, g.Read, bo)
+		if err != nil {
+			return fail(elem, "gradient cannot be read as %s: %v", g.Read, err)
+		}
+		v = append(v, n...)
+	}
+	if len(v) != 3 {
+		return fail(g.Element[0], "gradient has %d values, want 3", len(v))
+	}
+	u, ok := unitVector([3]float64(v))
+	if !ok {
+		return [3]float64{}, nil // a zero vector: a b0 or a trace, no direction
+	}
+	if g.ImageAxes {
+		p, ok := ImageToPatient(u, f.Geometry)
+		if !ok {
+			return fail(g.Element[0], "gradient in image axes and the image has no orientation")
+		}
+		return p, nil
+	}
+	return u, nil
 }
