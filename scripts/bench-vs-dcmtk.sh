@@ -99,7 +99,11 @@ start_receiver() { # $1 = node | storescp, $2 = folder; sets receiver_pid, port
       TCP_NODELAY=1 storescp -aet STORESCP -od "$2" -pdu $PDU "$port" >"$work/storescp.out" 2>&1 &
       receiver_pid=$! called=STORESCP ;;
   esac
-  wait_port "$port"
+  if ! wait_port "$port"; then
+    echo "$1 did not start:" >&2
+    cat "$work/$1".* >&2 2>/dev/null || true
+    return 1
+  fi
 }
 
 stop_receiver() {
