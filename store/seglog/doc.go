@@ -43,12 +43,16 @@
 // again, which replays and truncates whatever was not acknowledged.
 //
 // Rolling waits until the old segment's reserved records are written and
-// flushed, so only the last segment can have a torn tail.
+// flushed, so only the last segment can have a torn tail. A replay mark
+// past every segment held (its segment deleted) starts the next records in
+// a new segment, so that replay from that mark sees them.
 //
 // # Reading
 //
-// Open(pos) verifies the record's checksum and returns its payload as an
+// Read(pos) verifies the record's checksum (reading it through once, from
+// the page cache when it was just written) and returns its payload as an
 // io.SectionReader of the segment file: no copy of the payload is kept.
+// Only acknowledged records can be read.
 //
 // # Opening and replay
 //
