@@ -8,6 +8,8 @@ import (
 	"path/filepath"
 	"slices"
 	"testing"
+
+	"dwiaudit/internal/testtool"
 )
 
 // csaTag is one tag for csaBytes to write.
@@ -236,11 +238,7 @@ func needNibabelFile(t testing.TB, name string) string {
 	t.Helper()
 	p := filepath.Join(nibabelData, name)
 	if _, err := os.Stat(p); err != nil {
-		msg := p + " is missing: install the Debian package python3-nibabel (" + err.Error() + ")"
-		if os.Getenv("CI") == "true" {
-			t.Fatal(msg)
-		}
-		t.Skip(msg)
+		testtool.Missing(t, p+" is missing ("+err.Error()+")", "python3-nibabel")
 	}
 	return p
 }

@@ -17,6 +17,7 @@ import (
 	"github.com/suyashkumar/dicom/pkg/uid"
 
 	"dwiaudit/audit/dwi"
+	"dwiaudit/internal/testtool"
 	"dwiaudit/scp/part10"
 )
 
@@ -231,24 +232,9 @@ func TestReadSiemensNibabelMosaics(t *testing.T) {
 	}
 }
 
-// nibabelPython is the interpreter with Debian's python3-nibabel.
-const nibabelPython = "/usr/bin/python3"
-
-// needNibabelPython fails the test under CI=true and skips it elsewhere
-// when the interpreter or nibabel and pydicom are missing, naming the
-// Debian packages.
-func needNibabelPython(t testing.TB) {
-	t.Helper()
-	out, err := exec.Command(nibabelPython, "-c", "import nibabel.nicom.dicomwrappers, pydicom, numpy").CombinedOutput()
-	if err == nil {
-		return
-	}
-	msg := "the nibabel reference needs " + nibabelPython + " with nibabel, pydicom and numpy: install the Debian packages python3-nibabel, python3-pydicom and python3-numpy (" + err.Error() + ": " + string(out) + ")"
-	if os.Getenv("CI") == "true" {
-		t.Fatal(msg)
-	}
-	t.Skip(msg)
-}
+// nibabelPython is the interpreter with Debian's python3-nibabel; the
+// tests that run it check it with testtool.Python first.
+const nibabelPython = testtool.SystemPython
 
 // nibabelView is what testdata/nibabel_mosaic.py prints per file.
 type nibabelView struct {
@@ -309,7 +295,7 @@ func patterned(t testing.TB, data []byte, layout PixelDataLayout, rows, cols int
 // with patterned pixels, tile by tile.
 func TestMosaicMatchesNibabelWrapper(t *testing.T) {
 	paths := []string{needNibabelFile(t, nibabelB0), needNibabelFile(t, nibabelB1000)}
-	needNibabelPython(t)
+	testtool.Python(t, "nibabel", "pydicom", "numpy")
 
 	raw := gunzipFile(t, paths[1])
 	elems, _, layout := testDataSet(t, raw)
