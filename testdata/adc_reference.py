@@ -6,8 +6,9 @@ Reads DICOM files with pydicom and computes, with numpy in float64,
 
     ADC = ln(S0 / Sb) / (b - b0)   (mm2/s; DOMAIN.md, Physics)
 
-from the lowest-b images (the b0) and the isotropic (trace) images of the
-high b-value, after Rescale Slope and Intercept (or the per-frame Pixel
+from the lowest-b images (the b0, or the trace of the lowest b-value when
+that is above 0, as in a b50/b800 body protocol) and the isotropic (trace)
+images of the high b-value, after Rescale Slope and Intercept (or the per-frame Pixel
 Value Transformation). Voxels where S0 or Sb is not positive are NaN.
 Classic MR Image Storage (one image per file) and Enhanced MR multi-frame
 (per-frame and shared functional groups) are both read. Derived maps
@@ -124,7 +125,12 @@ def main(argv):
                 by_pos.setdefault(key, (ipp, px))  # a repeat keeps the first
         return by_pos
 
-    s0 = stack(lambda bv, d: bv == b0)
+    # A lower b-value above 0 (b50 of a body protocol) is acquired, like
+    # the high b, along gradient directions and combined into the
+    # scanner's trace: use that trace as S0 when it is there, so both
+    # signals are traces. At b = 0 every image is the b0.
+    b0_trace = any(bv == b0 and d == "ISOTROPIC" for bv, d, _, _, _ in imgs)
+    s0 = stack(lambda bv, d: bv == b0 and (d == "ISOTROPIC" or not b0_trace))
     sb = stack(lambda bv, d: abs(bv - b) <= max(5.0, 0.02 * b) and d == "ISOTROPIC")
     keys = sorted(set(s0) & set(sb))
     if not keys:

@@ -50,13 +50,25 @@ type referenceOutput struct {
 // ADC of free water: far inside the bound.
 func TestADCMatchesPythonReference(t *testing.T) {
 	needReferencePython(t)
-	for _, mf := range []bool{false, true} {
-		name := "classic MR images agree with the Python reference"
-		if mf {
-			name = "Enhanced MR multi-frame images agree with the Python reference"
-		}
-		t.Run(name, func(t *testing.T) {
-			st, s := phantomCase(t, phantom.Options{Case: phantom.CaseClean, Matrix: 64, Slices: 8, Seed: 3, MultiFrame: mf})
+	// The cases with a lower b-value above 0 (b50/b800, a body protocol,
+	// and b100/b1000) are the ones that tell ln(S0/Sb)/(b_high - b_low)
+	// from ln(S0/Sb)/b_high: with b_low = 50 and b_high = 800 the two
+	// differ by 50/800 = 6.25 %, with b_low = 100 and b_high = 1000 by
+	// 10 %, far outside the 1e-7 mm²/s bound.
+	cases := []struct {
+		name       string
+		multiFrame bool
+		b          []float64
+	}{
+		{"classic MR images, b 0 and 1000", false, []float64{0, 1000}},
+		{"Enhanced MR multi-frame images, b 0 and 1000", true, []float64{0, 1000}},
+		{"classic MR images, b 50 and 800", false, []float64{50, 800}},
+		{"Enhanced MR multi-frame images, b 100 and 1000", true, []float64{100, 1000}},
+	}
+	for _, c := range cases {
+		t.Run(c.name+" agree with the Python reference", func(t *testing.T) {
+			mf := c.multiFrame
+			st, s := phantomCase(t, phantom.Options{Case: phantom.CaseClean, Matrix: 64, Slices: 8, Seed: 3, MultiFrame: mf, BValues: c.b})
 			res, err := Analyze(s, DefaultAnalyzeConfig())
 			if err != nil || res.CannotCompute != "" {
 				t.Fatalf("Analyze: %v, cannot compute %q", err, res.CannotCompute)
@@ -85,8 +97,11 @@ func TestADCMatchesPythonReference(t *testing.T) {
 				t.Fatalf("reference is %d×%d×%d (%d bytes), Go map %d×%d×%d",
 					ref.Rows, ref.Cols, ref.Slices, len(data), res.ADC.Rows, res.ADC.Cols, res.ADC.Slices)
 			}
-			if ref.B != 1000 || ref.B0 != 0 {
-				t.Errorf("reference used b %g and b0 %g, want 1000 and 0", ref.B, ref.B0)
+			if ref.B != c.b[1] || ref.B0 != c.b[0] {
+				t.Errorf("reference used b %g and b0 %g, want %g and %g", ref.B, ref.B0, c.b[1], c.b[0])
+			}
+			if res.B0Value != c.b[0] || res.HighB[len(res.HighB)-1].B != c.b[1] {
+				t.Errorf("Go used b %g against the reference b %g, want %g and %g", res.HighB[len(res.HighB)-1].B, res.B0Value, c.b[1], c.b[0])
 			}
 
 			matched, both, maxDiff := 0, 0, 0.0
