@@ -191,6 +191,31 @@ type Report struct {
 	// Files is how many files AuditFiles looked at; NotDICOM how many of
 	// them were not DICOM Part 10 files and were skipped.
 	Files, NotDICOM int
+	// Derived lists the series of derived maps the audit does not use
+	// (FA, colour FA, tensor b0; dwi.Study.Derived): known, not audited,
+	// no finding. Ordered like Series.
+	Derived []DerivedReport
+	// Ignored lists the DICOM files that hold no image the audit reads
+	// (another SOP Class, e.g. a maker's private non-image object): a
+	// note each, no finding.
+	Ignored []IgnoredFile
+}
+
+// DerivedReport is a series of derived maps, listed with its kind.
+type DerivedReport struct {
+	StudyUID, SeriesUID string
+	SeriesNumber        int
+	SeriesDescription   string
+	Kind                string // dwi.MapKind's name: "FA map", "colour FA map", "tensor b0", ...
+	Images              int
+}
+
+// IgnoredFile is a DICOM file left out of the audit, and why.
+type IgnoredFile struct {
+	Path                string
+	StudyUID, SeriesUID string
+	SOPClassUID         string
+	Reason              string
 }
 
 // AuditFrames audits images already read (what the pipeline calls for a
@@ -264,6 +289,11 @@ func (e *Engine) AuditFiles(ctx context.Context, paths []string) (*Report, error
 			rep.NotDICOM++
 		case err != nil:
 			rep.Findings = append(rep.Findings, e.fileFailed(files[i], err)...)
+		case dwi.Classify(dwi.ClassifyInput{SOPClassUID: ids[i].SOPClassUID}) == dwi.KindNonImage:
+			// Not an image (a private non-image object, a report): a
+			// note, not a failure of its series.
+			rep.Ignored = append(rep.Ignored, IgnoredFile{Path: files[i], StudyUID: ids[i].StudyInstanceUID, SeriesUID: ids[i].SeriesInstanceUID,
+				SOPClassUID: ids[i].SOPClassUID, Reason: "SOP Class " + ids[i].SOPClassUID + " is not an image the audit reads"})
 		default:
 			uid := ids[i].StudyInstanceUID
 			byStudy[uid] = append(byStudy[uid], i)
@@ -399,12 +429,14 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 		uid := fe.id.SeriesInstanceUID
 		failedFiles[uid] = append(failedFiles[uid], fe)
 	}
+	// A series with unreadable files is audited on the images that
+	// could be read; the files that could not get their own finding.
 	for _, s := range asm.Series {
-		var ferr error
-		if fe := failedFiles[s.SeriesInstanceUID]; len(fe) > 0 {
-			ferr = filesError(fe)
-		}
-		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, s, nil, ferr))
+		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, s, nil, nil))
+	}
+	for _, d := range asm.Derived {
+		rep.Derived = append(rep.Derived, DerivedReport{StudyUID: in.uid, SeriesUID: d.SeriesInstanceUID, SeriesNumber: d.SeriesNumber,
+			SeriesDescription: d.SeriesDescription, Kind: d.Kind.String(), Images: d.Images})
 	}
 	_ = e.parallel(ctx, len(st.Series), func(i int) {
 		sa := st.Series[i]
@@ -424,6 +456,9 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 		se := *se
 		se.Err = fmt.Errorf("cannot be assembled: %w", se.Err)
 		st.Series = append(st.Series, rules.NewSeriesAudit(cfg, nil, nil, &se))
+	}
+	for _, d := range asm.Derived {
+		placed[d.SeriesInstanceUID] = true
 	}
 	for _, uid := range sortedKeys(failedFiles) {
 		if !placed[uid] {
@@ -453,6 +488,11 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 	}
 	var failed []rules.Finding
 	for _, sa := range st.Series {
+		if s := sa.Series; s != nil && sa.Err == nil {
+			if fe := failedFiles[s.SeriesInstanceUID]; len(fe) > 0 {
+				failed = append(failed, rules.ImagesUnreadable(sa, filesError(fe).Error()))
+			}
+		}
 		switch {
 		case sa.Err != nil:
 			failed = append(failed, rules.AuditFailed(sa, sa.Err.Error()))
@@ -620,6 +660,9 @@ func scannerOf(s dwi.Scanner) string {
 // sort orders the report (see Report).
 func (r *Report) sort() {
 	slices.SortStableFunc(r.Series, func(a, b SeriesReport) int {
+		return cmp.Or(strings.Compare(a.StudyUID, b.StudyUID), cmp.Compare(a.SeriesNumber, b.SeriesNumber), strings.Compare(a.SeriesUID, b.SeriesUID))
+	})
+	slices.SortStableFunc(r.Derived, func(a, b DerivedReport) int {
 		return cmp.Or(strings.Compare(a.StudyUID, b.StudyUID), cmp.Compare(a.SeriesNumber, b.SeriesNumber), strings.Compare(a.SeriesUID, b.SeriesUID))
 	})
 	slices.SortStableFunc(r.Findings, func(a, b rules.Finding) int {

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"io/fs"
 	"log/slog"
 	"math"
@@ -458,4 +459,211 @@ func TestPhantomSeriesReportTheirCentralADC(t *testing.T) {
 			t.Errorf("phantom ADC %v expected %v, want NaN for a brain series", s.PhantomADC, s.PhantomExpectedADC)
 		}
 	})
+}
+
+// copyPatched copies src into dir with every old byte string replaced by
+// its new one of the same length (the element lengths stay right).
+// The name of the copy says how many strings were replaced.
+func copyPatched(t *testing.T, src, dir string, pairs ...string) string {
+	t.Helper()
+	b, err := os.ReadFile(src)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := 0; i < len(pairs); i += 2 {
+		if len(pairs[i]) != len(pairs[i+1]) || !bytes.Contains(b, []byte(pairs[i])) {
+			t.Fatalf("cannot patch %q into %q in %s", pairs[i], pairs[i+1], src)
+		}
+		b = bytes.ReplaceAll(b, []byte(pairs[i]), []byte(pairs[i+1]))
+	}
+	dst := filepath.Join(dir, fmt.Sprintf("patched-%d-%s", len(pairs), filepath.Base(src)))
+	if err := os.WriteFile(dst, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return dst
+}
+
+func TestDerivedSeriesAndNonImageObjectsAreListedNeverFailed(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	// An FA series beside the DWI: Image Type value 4 FA (common
+	// practice; dwi.Classify), another Series Instance UID of the same
+	// length.
+	faUID := dwiInfo.UID[:len(dwiInfo.UID)-1] + string("12"[(dwiInfo.UID[len(dwiInfo.UID)-1]-'0')%2])
+	for _, p := range dwiInfo.Files[:3] {
+		copyPatched(t, p, st.Dir, `ORIGINAL\PRIMARY\DIFFUSION\NONE `, `DERIVED\PRIMARY\DIFFUSION\FA    `, dwiInfo.UID, faUID)
+	}
+	// A private non-image object in the DWI series: MR Image Storage
+	// (PS3.4 B.5) replaced by a private SOP Class of the same length.
+	copyPatched(t, dwiInfo.Files[0], st.Dir, "1.2.840.10008.5.1.4.1.1.4\x00", "1.3.12.2.1107.5.9.1.0.0.1\x00")
+
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Derived) != 1 || rep.Derived[0].SeriesUID != faUID || rep.Derived[0].Kind != "FA map" || rep.Derived[0].Images != 3 {
+		t.Errorf("derived %+v, want the FA series with its 3 images", rep.Derived)
+	}
+	if len(rep.Ignored) != 1 || rep.Ignored[0].SOPClassUID != "1.3.12.2.1107.5.9.1.0.0.1" || rep.Ignored[0].SeriesUID != dwiInfo.UID {
+		t.Errorf("ignored %+v, want the non-image object", rep.Ignored)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].SeriesUID != dwiInfo.UID || rep.Series[0].CannotCompute != "" {
+		t.Errorf("series %+v, want the DWI series computed", rep.Series)
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("%s %s on series %s: %s", f.Severity, f.Rule, f.SeriesUID, f.Message)
+		}
+	}
+}
+
+func TestAnUnreadableImageFailsOnlyItself(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	var dwiInfo phantom.SeriesInfo
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			dwiInfo = si
+		}
+	}
+	p := dwiInfo.Files[len(dwiInfo.Files)/3]
+	info, err := os.Stat(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Truncate(p, info.Size()-10); err != nil {
+		t.Fatal(err)
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].CannotCompute != "" || math.IsNaN(rep.Series[0].Measures.ParenchymaMedianADC) {
+		t.Fatalf("series %+v, want the DWI series computed from the images that read", rep.Series)
+	}
+	var failed, incomplete int
+	for _, f := range rep.Findings {
+		switch f.Rule {
+		case rules.IDAuditFailed:
+			failed++
+			if !strings.Contains(f.Message, filepath.Base(p)) || !strings.Contains(f.Message, "left out") {
+				t.Errorf("audit-failed %q does not name the unreadable file as left out", f.Message)
+			}
+		case rules.IDIncompleteSeries:
+			incomplete++
+		}
+	}
+	if failed != 1 || incomplete != 1 {
+		t.Errorf("%d audit-failed and %d incomplete-series findings, want one each: %+v", failed, incomplete, rep.Findings)
+	}
+}
+
+// dwiSeriesOf is the phantom's DWI series.
+func dwiSeriesOf(t *testing.T, st *phantom.Study) phantom.SeriesInfo {
+	t.Helper()
+	for _, si := range st.Series {
+		if si.Role == phantom.RoleDWI {
+			return si
+		}
+	}
+	t.Fatal("the phantom has no DWI series")
+	return phantom.SeriesInfo{}
+}
+
+func TestRepeatedImagesAreAveragedIntoTheADCNeverDropped(t *testing.T) {
+	dir := t.TempDir()
+	st := writeStudy(t, filepath.Join(dir, "study"), phantom.Options{})
+	single, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// A second average of every image: the same b-value, direction and
+	// slice under another SOP Instance UID (of the same length).
+	dwiInfo := dwiSeriesOf(t, st)
+	for _, p := range dwiInfo.Files {
+		id, err := header.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		uid := id.SOPInstanceUID
+		other := uid[:len(uid)-1] + string("12"[(uid[len(uid)-1]-'0')%2])
+		copyPatched(t, p, st.Dir, uid, other)
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || len(single.Series) != 1 {
+		t.Fatalf("%d and %d series, want the DWI series", len(rep.Series), len(single.Series))
+	}
+	got, want := rep.Series[0], single.Series[0]
+	if len(got.Volumes) != len(want.Volumes) || len(got.Volumes) == 0 {
+		t.Fatalf("gradient table %+v, want the rows of %+v", got.Volumes, want.Volumes)
+	}
+	for i, v := range got.Volumes {
+		if v.Images != 2*want.Volumes[i].Images || v.Slices != want.Volumes[i].Slices {
+			t.Errorf("row %d: %d images on %d slices, want %d on %d (every repeat counted)", i, v.Images, v.Slices, 2*want.Volumes[i].Images, want.Volumes[i].Slices)
+		}
+	}
+	// Identical repeats average to the same images: the same ADC.
+	if a, b := got.Measures.ParenchymaMedianADC, want.Measures.ParenchymaMedianADC; math.IsNaN(a) || math.Abs(a-b) > 1e-12 {
+		t.Errorf("tissue ADC %v with repeats, %v without", a, b)
+	}
+	for _, f := range rep.Findings {
+		if f.Severity >= rules.SeverityWarning {
+			t.Errorf("%s %s: %s", f.Severity, f.Rule, f.Message)
+		}
+	}
+}
+
+func TestImagesThatLostTheirDirectionGetUnknownDirections(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	// Diffusion Gradient Orientation (0018,9089), PS3.3 C.8.13.5.9,
+	// moved to group 0019 (Explicit VR Little Endian tag bytes): the
+	// images keep their b-value and DIRECTIONAL but give no direction.
+	dwiInfo := dwiSeriesOf(t, st)
+	moved := 0
+	for _, p := range dwiInfo.Files {
+		b, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Contains(b, []byte("\x18\x00\x89\x90FD")) {
+			continue
+		}
+		if err := os.WriteFile(p, bytes.ReplaceAll(b, []byte("\x18\x00\x89\x90FD"), []byte("\x19\x00\x89\x90FD")), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		moved++
+	}
+	if moved == 0 {
+		t.Fatal("no image of the phantom carries a Diffusion Gradient Orientation to remove")
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var found []rules.Finding
+	for _, f := range rep.Findings {
+		if f.Rule == rules.IDUnknownDirections {
+			found = append(found, f)
+		}
+	}
+	if len(found) != 1 || found[0].Measured != float64(moved) || !strings.Contains(found[0].Message, "b = 1000 s/mm²") {
+		t.Errorf("unknown-directions findings %+v, want one counting the %d images", found, moved)
+	}
+	if len(rep.Series) != 1 {
+		t.Fatalf("%d series", len(rep.Series))
+	}
+	kinds := map[string]int{}
+	for _, v := range rep.Series[0].Volumes {
+		kinds[v.Weighting.String()] += v.Images
+	}
+	if kinds["isotropic"] != moved {
+		t.Errorf("gradient table %+v: want the %d images without direction kept in one isotropic volume", rep.Series[0].Volumes, moved)
+	}
 }

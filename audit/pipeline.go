@@ -364,6 +364,10 @@ func (p *Pipeline) save(st store.Study, rep *Report, seen map[string]time.Time) 
 			labels[se.SeriesInstanceUID] = se.ScannerLabel
 		}
 	}
+	var derived []record.Derived
+	for _, d := range rep.Derived {
+		derived = append(derived, record.Derived{SeriesUID: d.SeriesUID, SeriesNumber: d.SeriesNumber, Kind: d.Kind, Images: d.Images})
+	}
 	ok := true
 	for _, uid := range order {
 		fs := append(slices.Clone(bySeries[uid]), studyWide...)
@@ -385,7 +389,7 @@ func (p *Pipeline) save(st store.Study, rep *Report, seen map[string]time.Time) 
 		}
 		if r := reports[uid]; r != nil {
 			rec.Scanner = r.Scanner
-			rec.Measures = measuresJSON(r)
+			rec.Measures = measuresJSON(r, derived)
 		} else if len(fs) > 0 {
 			rec.Scanner = fs[0].Scanner
 		}
@@ -506,7 +510,7 @@ func findingsJSON(fs []rules.Finding) json.RawMessage {
 	return b
 }
 
-func measuresJSON(r *SeriesReport) json.RawMessage {
+func measuresJSON(r *SeriesReport, derived []record.Derived) json.RawMessage {
 	fin := record.Finite
 	m := r.Measures
 	b, err := json.Marshal(record.Measures{
@@ -524,6 +528,7 @@ func measuresJSON(r *SeriesReport) json.RawMessage {
 		PhantomADC:             fin(r.PhantomADC),
 		PhantomExpectedADC:     fin(r.PhantomExpectedADC),
 		Volumes:                VolumeRecords(r.Volumes),
+		Derived:                derived,
 	})
 	if err != nil {
 		return nil

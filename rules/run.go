@@ -81,6 +81,18 @@ func AuditFailed(sa *SeriesAudit, reason string) Finding {
 	return f
 }
 
+// ImagesUnreadable is the audit-failed finding of files of a series that
+// could not be read while the rest of it was audited: the series was
+// judged without them.
+func ImagesUnreadable(sa *SeriesAudit, reason string) Finding {
+	f := NewFinding(sa, IDAuditFailed, SeverityWarning)
+	f.Message = "images of this series could not be read and were left out: " + reason +
+		". The rest of the series was audited without them; what they held was not checked."
+	f.Measured = reason
+	f.Expected = "every image of the series readable"
+	return f
+}
+
 // Run runs the rules the configuration enables on one study and returns
 // their findings, severity overrides applied (Apply). A rule that panics
 // does not stop the others: each series of the study gets an

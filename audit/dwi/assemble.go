@@ -63,7 +63,7 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 		}
 	}
 	// A fixed order, whatever order the images arrived in: the first of
-	// two duplicates is the one kept.
+	// two repeats gives the combined slice its header.
 	sorted := slices.Clone(frames)
 	slices.SortStableFunc(sorted, func(a, b *Frame) int {
 		return cmp.Or(cmp.Compare(a.InstanceNumber, b.InstanceNumber),

@@ -18,6 +18,14 @@
 //   - makers.go: the maker-reader hook, the list of built-in readers of
 //     makers' private diffusion encodings, each matched by Manufacturer
 //     and private creator.
+//   - siemens.go, csa.go, mosaic.go: the Siemens reader (SiemensReader,
+//     built in): the CSA image header (0029,xx10) of private creator
+//     "SIEMENS CSA HEADER" in both of its layouts (ParseCSA; the series
+//     header (0029,xx20) is read the same way), else the "SIEMENS MR
+//     HEADER" elements (0019,xx0C/0D/0E), for b-value, direction and
+//     directionality; MOSAIC images laid out as their
+//     NumberOfImagesInMosaic slices, each with its own Image Position
+//     (MosaicLayout), which extraction cuts into one Frame per slice.
 //   - options.go: ExtractOptions, PrivateSource, ValueKind.
 //   - bounds.go, layout.go: the bounds walker and FindPixelData.
 //

@@ -42,6 +42,16 @@ var (
 	ErrInvalidOptions = errors.New("header: invalid options")
 )
 
+// ErrCSA: a Siemens CSA header (the private "CSA Image Header Info" or
+// "CSA Series Header Info") breaks its own layout: a length past its
+// end, a count past its cap, a wrong check word (csa.go).
+var ErrCSA = errors.New("header: malformed Siemens CSA header")
+
+// ErrMosaic: a mosaic image cannot hold the slices its header says it
+// holds: the tile grid does not divide the image, or the count is out of
+// range (mosaic.go).
+var ErrMosaic = errors.New("header: mosaic does not match its image")
+
 // PrivateSourceError says why a private source that applies to an image
 // gave no value.
 type PrivateSourceError struct {

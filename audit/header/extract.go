@@ -2,6 +2,7 @@ package header
 
 import (
 	"bytes"
+	"cmp"
 	"compress/flate"
 	"encoding/binary"
 	"errors"
@@ -306,9 +307,13 @@ func (x *extraction) frame(f *dwi.Frame, per, shared level, rows, cols int) (*Mo
 	}
 	pos := pick(tag.PlanePositionSequence, tag.ImagePositionPatient, 3)
 	ori := pick(tag.PlaneOrientationSequence, tag.ImageOrientationPatient, 6)
+	if ori != nil {
+		// Kept without a position too: a mosaic's slices get theirs
+		// from a maker reader (makers.go).
+		copy(g.Orientation[:], ori)
+	}
 	if pos != nil && ori != nil {
 		copy(g.Position[:], pos)
-		copy(g.Orientation[:], ori)
 		g.Known = true
 	}
 	if v := pick(tag.PixelMeasuresSequence, tag.PixelSpacing, 2); v != nil {
@@ -475,6 +480,18 @@ func (x *extraction) private(f *dwi.Frame, per, shared level) error {
 				break
 			}
 			f.BValue, f.HasBValue, f.BValueSource = b, true, sourcePrivate+src.Name
+			if src.Gradient != nil && (!f.HasGradient || f.Gradient == [3]float64{}) {
+				g, err := readGradient(l, src, f, x.bo)
+				if err != nil {
+					return err
+				}
+				if g != ([3]float64{}) {
+					f.Gradient, f.HasGradient = g, true
+					if f.Directionality == dwi.DirectionalityUnknown {
+						f.Directionality = dwi.DirectionalityDirectional
+					}
+				}
+			}
 			return nil
 		}
 	}
@@ -538,9 +555,54 @@ func readPrivate(l level, src PrivateSource, bo binary.ByteOrder) (b float64, fo
 	if scale == 0 {
 		scale = 1
 	}
-	b = v[src.Index] * scale
+	b = (v[src.Index] - src.Offset) * scale
 	if b < 0 || math.IsNaN(b) || math.IsInf(b, 0) {
 		return fail("gives b-value %v", b)
 	}
 	return b, true, nil
+}
+
+// readGradient reads the gradient source of src in level l for f: a unit
+// vector in patient axes, or an error naming the element.
+func readGradient(l level, src PrivateSource, f *dwi.Frame, bo binary.ByteOrder) ([3]float64, error) {
+	g := src.Gradient
+	creator := cmp.Or(g.Creator, src.Creator)
+	group := cmp.Or(g.Group, src.Group)
+	block := creatorBlock(l, creator, group)
+	tagText := func(elem uint8) string {
+		return fmt.Sprintf("(%04X,%02X%02X)", group, max(block, 0), elem)
+	}
+	fail := func(elem uint8, format string, args ...any) ([3]float64, error) {
+		return [3]float64{}, &PrivateSourceError{Source: src.Name, Tag: tagText(elem), Reason: fmt.Sprintf(format, args...)}
+	}
+	if block < 0 {
+		return fail(g.Element[0], "gradient: private creator %q absent", creator)
+	}
+	var v []float64
+	for _, elem := range g.Element {
+		e := l.find(tag.Tag{Group: group, Element: uint16(block)<<8 | uint16(elem)})
+		if e == nil {
+			return fail(elem, "gradient element absent")
+		}
+		n, err := numbers(e, g.Read, bo)
+		if err != nil {
+			return fail(elem, "gradient cannot be read as %s: %v", g.Read, err)
+		}
+		v = append(v, n...)
+	}
+	if len(v) != 3 {
+		return fail(g.Element[0], "gradient has %d values, want 3", len(v))
+	}
+	u, ok := unitVector([3]float64(v))
+	if !ok {
+		return [3]float64{}, nil // a zero vector: a b0 or a trace, no direction
+	}
+	if g.ImageAxes {
+		p, ok := ImageToPatient(u, f.Geometry)
+		if !ok {
+			return fail(g.Element[0], "gradient in image axes and the image has no orientation")
+		}
+		return p, nil
+	}
+	return u, nil
 }

@@ -184,6 +184,12 @@ func (p *PrivateElement) Strings() []string {
 	return level{p.e}.strs(p.e.Tag)
 }
 
+// items returns the items of a private sequence, nil when the element is
+// not a sequence.
+func (p *PrivateElement) items() []level {
+	return level{p.e}.items(p.e.Tag)
+}
+
 // creatorBlock is the block number xx that creator reserves in group of
 // l, -1 when none does.
 func creatorBlock(l level, creator string, group uint16) int {
@@ -250,7 +256,13 @@ const makerSource = "maker:"
 // tried. Each lives in its own file; docs/makers.md lists the elements
 // they read and the sources.
 func DefaultMakers() []MakerReader {
-	return []MakerReader{}
+	return []MakerReader{
+		SiemensReader(),
+		geReader(),
+		philipsReader(),
+		canonReader(),
+		uihReader(),
+	}
 }
 
 // makers are the readers extraction uses: the configured list, or the
@@ -315,19 +327,50 @@ func (x *extraction) readMakers(f *dwi.Frame, per, shared level) (*Mosaic, error
 	return mosaic, nil
 }
 
-// merge takes from d what f does not know yet.
+// merge takes from d what f does not know yet, or what f holds that is
+// not consistent: a zero gradient vector (some scanners fill Diffusion
+// Gradient Orientation with 0\0\0 for b0 and trace images) is no
+// direction, and a Diffusion Directionality of NONE ("no diffusion
+// weighting", PS3.3 C.8.13.5.9) on an image above maxB0 is not what the
+// image is.
 func merge(f *dwi.Frame, d MakerDiffusion, name string) {
 	if !f.HasBValue && d.HasBValue && d.BValue >= 0 && !math.IsNaN(d.BValue) && !math.IsInf(d.BValue, 0) {
 		f.BValue, f.HasBValue, f.BValueSource = d.BValue, true, makerSource+name
 	}
-	if !f.HasGradient && d.HasGradient {
+	if (!f.HasGradient || f.Gradient == [3]float64{}) && d.HasGradient {
 		if u, ok := unitVector(d.Gradient); ok {
 			f.Gradient, f.HasGradient = u, true
 		}
 	}
-	if f.Directionality == dwi.DirectionalityUnknown {
+	noneAboveB0 := f.Directionality == dwi.DirectionalityNone && f.HasBValue && f.BValue > maxB0
+	if d.Directionality != dwi.DirectionalityUnknown && (f.Directionality == dwi.DirectionalityUnknown || noneAboveB0) {
 		f.Directionality = d.Directionality
 	}
+}
+
+// maxB0 (s/mm^2) is the largest b-value still read as a b0 when a maker's
+// elements say whether an image is a b0, a direction or a trace: b-values
+// up to 50 are b0 (common practice; scanners report a few s/mm^2 from the
+// imaging gradients for a nominal b = 0).
+const maxB0 = 50
+
+// directionalityOf is what a maker's b-value and gradient say an image
+// is: a b0 up to maxB0, one direction when the gradient is a unit vector,
+// else (a b-value with a zero vector) the scanner's isotropic (trace)
+// image. Makers that label their images say so more directly and do not
+// use it.
+func directionalityOf(b float64, hasB bool, g [3]float64, hasG bool) dwi.Directionality {
+	switch {
+	case !hasB:
+		return dwi.DirectionalityUnknown
+	case b <= maxB0:
+		return dwi.DirectionalityNone
+	case hasG:
+		if _, ok := unitVector(g); ok {
+			return dwi.DirectionalityDirectional
+		}
+	}
+	return dwi.DirectionalityIsotropic
 }
 
 // unitVectorTolerance is how far from 1 the length of a stored direction
@@ -350,9 +393,9 @@ func unitVector(v [3]float64) ([3]float64, bool) {
 // along the columns, along the slice normal) into patient coordinates,
 // with the image's Image Orientation (Patient) (PS3.3 C.7.6.2.1.1: the
 // row and column direction cosines; the normal is their cross product).
-// ok is false when the orientation is not known.
+// ok is false when the image has no orientation.
 func ImageToPatient(v [3]float64, g dwi.Geometry) ([3]float64, bool) {
-	if !g.Known {
+	if g.Orientation == [6]float64{} {
 		return [3]float64{}, false
 	}
 	o := g.Orientation
@@ -397,6 +440,10 @@ func splitMosaics(frames []dwi.Frame, mosaics []*Mosaic) []dwi.Frame {
 			t.Tile = k + 1
 			t.Geometry.Rows, t.Geometry.Columns = m.TileRows, m.TileColumns
 			t.Geometry.Position = m.Positions[k]
+			// A mosaic may carry no Image Position (Patient) of its own
+			// (the slices' positions are elsewhere): each slice's is now
+			// known, and with an orientation the slice is placed.
+			t.Geometry.Known = t.Geometry.Orientation != [6]float64{}
 			t.Pixels = nil
 			if f.Pixels != nil {
 				px := slab[k*m.TileRows*m.TileColumns : (k+1)*m.TileRows*m.TileColumns : (k+1)*m.TileRows*m.TileColumns]

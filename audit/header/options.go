@@ -94,7 +94,46 @@ type PrivateSource struct {
 	Element uint8     // offset within the creator's block: the low byte ee of (gggg,xxee)
 	Read    ValueKind // how the value is encoded
 	Index   int       // which value of a multi-valued element (0 first); for ValueText, which number in the text
-	Scale   float64   // multiplies the value to give s/mm^2; 0 means 1
+	Scale   float64   // multiplies the value, after Offset, to give s/mm^2; 0 means 1
+	// Offset is subtracted from the value before Scale: some scanners
+	// add a constant to the b-value (1e9 on some versions of one maker,
+	// docs/makers.md). 0 subtracts nothing.
+	Offset float64
+	// Gradient, when set, says where the same scanner keeps the
+	// gradient direction; it is read for images whose b-value this
+	// source gave and whose standard attributes hold no direction.
+	Gradient *GradientSource
+}
+
+// GradientSource tells where a scanner keeps the diffusion gradient
+// direction in private elements: one element holding three values, or
+// three elements holding one component each, in the block of a private
+// creator (PS3.5 7.8.1).
+type GradientSource struct {
+	Creator string    // "" means the PrivateSource's
+	Group   uint16    // 0 means the PrivateSource's
+	Element []uint8   // one offset (three values) or three offsets (x, y, z)
+	Read    ValueKind // how the values are encoded
+	// ImageAxes says the components are along the image's rows,
+	// columns and slice normal, and are to be turned into patient axes
+	// with its Image Orientation (Patient); otherwise they are patient
+	// axes (LPS, PS3.3 C.7.6.2.1.1), as Diffusion Gradient Orientation
+	// (0018,9089) is.
+	ImageAxes bool
+}
+
+// validate reports every problem of the gradient source of p.
+func (g *GradientSource) validate(bad func(format string, args ...any)) {
+	group := g.Group
+	if group != 0 && (group%2 == 0 || group <= 0x0007 || group == 0xFFFF) {
+		bad("Gradient.Group %04X is not a private group", group)
+	}
+	if n := len(g.Element); n != 1 && n != 3 {
+		bad("Gradient.Element has %d offsets (want 1 element of three values, or 3 elements)", n)
+	}
+	if g.Read <= ValueInvalid || g.Read > ValueText {
+		bad("Gradient.Read is not set")
+	}
 }
 
 // Validate reports every problem of the source at once.
@@ -122,6 +161,12 @@ func (p PrivateSource) Validate() error {
 	}
 	if math.IsNaN(p.Scale) || math.IsInf(p.Scale, 0) || p.Scale < 0 {
 		bad("Scale %v is not a positive number", p.Scale)
+	}
+	if math.IsNaN(p.Offset) || math.IsInf(p.Offset, 0) {
+		bad("Offset %v is not a number", p.Offset)
+	}
+	if p.Gradient != nil {
+		p.Gradient.validate(bad)
 	}
 	return errors.Join(errs...)
 }

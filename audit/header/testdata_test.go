@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"testing"
 
 	"dwiaudit/audit/dwi"
@@ -118,6 +119,14 @@ func FuzzExtract(f *testing.F) {
 			f.Fatal(err)
 		}
 		f.Add(b)
+	}
+	// Synthetic Siemens mosaics (siemens_extract_test.go), so that the
+	// CSA reader and the mosaic split are fuzzed through extraction too.
+	for i, ts := range []string{tsExplicitLE, tsImplicitLE} {
+		m := siemensMosaic(siemensCSA("1000", "4", []string{"0.6", "-0.8", "0"}, []string{"0", "0", "1"}))
+		f.Add(newSeries("fuzz-siemens", m).classic(f, ts)[0])
+		b0 := siemensMosaic(siemensCSA("0", strconv.Itoa(3+i), nil, []string{"0", "0", "-1"}))
+		f.Add(newSeries("fuzz-siemens-b0", b0).classic(f, ts)[0])
 	}
 	opt := testdataOptions()
 	f.Fuzz(func(t *testing.T, data []byte) {

@@ -27,6 +27,18 @@ type Measures struct {
 	// Volumes is the series' gradient table; absent in audits stored
 	// before it was kept.
 	Volumes []Volume `json:"volumes,omitempty"`
+	// Derived lists the study's series of derived maps the audit does
+	// not use (FA, colour FA, tensor b0), kept with every audited series
+	// of the study so that the study page can name them.
+	Derived []Derived `json:"derived,omitempty"`
+}
+
+// Derived is a series of derived maps, listed and not audited.
+type Derived struct {
+	SeriesUID    string `json:"series_uid"`
+	SeriesNumber int    `json:"series_number"`
+	Kind         string `json:"kind"` // "FA map", "colour FA map", "tensor b0", ...
+	Images       int    `json:"images"`
 }
 
 // Volume is one row of a series' gradient table, as `dwiaudit check

@@ -65,6 +65,7 @@ type seriesView struct {
 	Preview     string // the preview's URL, "" when there is none to show
 	PreviewNote string // why there is no preview, or what the preview shows
 	NotComputed string // the reason the series could not be computed
+	Derived     string // for a series of derived maps, its kind ("FA map"): listed, not audited
 	ScannerLink string
 }
 
@@ -93,6 +94,7 @@ func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
 		Accession: st.AccessionNumber,
 		PatientID: maskPatientID(st.PatientID),
 	}
+	var measures []record.Measures
 	for _, se := range st.Series {
 		sv := seriesView{
 			UID:         se.SeriesInstanceUID,
@@ -118,9 +120,25 @@ func (h *Handler) study(w http.ResponseWriter, r *http.Request) {
 				h.storeFailed(w, "study", err)
 				return
 			}
+			if m, ok, err := record.DecodeMeasures(cur.Measures); err == nil && ok {
+				measures = append(measures, m) // read once already by fillSeries
+			}
 			v.Findings += len(sv.Findings)
 		}
 		v.Series = append(v.Series, sv)
+	}
+	// Series of derived maps have no audit of their own: the audits of
+	// their study's diffusion series name them.
+	derived := map[string]string{}
+	for _, m := range measures {
+		for _, d := range m.Derived {
+			derived[d.SeriesUID] = d.Kind
+		}
+	}
+	for i := range v.Series {
+		if k := derived[v.Series[i].UID]; k != "" && !v.Series[i].Audited {
+			v.Series[i].Derived = k
+		}
 	}
 	h.render(w, http.StatusOK, "study", "Study of "+v.StudyDate, "", v)
 }

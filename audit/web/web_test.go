@@ -145,6 +145,33 @@ func TestStudyPage(t *testing.T) {
 	})
 }
 
+func TestStudyPageNamesTheKindOfADerivedSeries(t *testing.T) {
+	st := newTestStore(t)
+	ph := putPhantom(t, st, phantom.Options{Case: phantom.CaseClean, Seed: 4, PatientID: "QOH-SYN-0404", B0Series: true}, "qoh-mr1-1.5t")
+	dwi := dwiSeries(t, ph)
+	var other string
+	for _, s := range ph.Series {
+		if s.UID != dwi {
+			other = s.UID
+		}
+	}
+	// The other series stands for a series of FA maps: the DWI series'
+	// audit names it (record.Measures.Derived), and it has no audit.
+	saveAudit(t, st, store.AuditRecord{AuditTime: time.Date(2025, 3, 20, 9, 0, 0, 0, qoh), StudyInstanceUID: ph.StudyUID, SeriesUID: dwi}, nil,
+		map[string]any{"series_number": 2, "bvalues": []float64{0, 1000},
+			"derived": []map[string]any{{"series_uid": other, "series_number": 1, "kind": "FA map", "images": 12}}})
+	code, body := getPage(t, newPages(t, st, nil), "/studies/"+ph.StudyUID)
+	if code != http.StatusOK {
+		t.Fatalf("GET study: %d\n%s", code, body)
+	}
+	if !strings.Contains(body, `not audited: <span class="kind">FA map</span>, a map derived by the scanner`) {
+		t.Errorf("the study page does not name the derived series' kind:\n%s", body)
+	}
+	if strings.Count(body, "not audited") != 1 {
+		t.Errorf("%d series not audited, want the derived one only", strings.Count(body, "not audited"))
+	}
+}
+
 func TestScannerPages(t *testing.T) {
 	st := newTestStore(t)
 	mk := func(c phantom.Case, seed int64, day int, label string) *phantom.Study {

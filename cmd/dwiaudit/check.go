@@ -254,6 +254,18 @@ func printCheck(w io.Writer, rep *audit.Report) {
 	if len(rep.Series) > 0 {
 		fmt.Fprintln(w, "\nADC in 1e-3 mm²/s (tissue: median over parenchyma; CSF: high percentile inside the head).")
 	}
+	// Derived maps and non-image objects: listed, not audited.
+	for _, d := range rep.Derived {
+		fmt.Fprintf(w, "series %d %s of study %s: %s, %s, not audited\n", d.SeriesNumber, orDash(d.SeriesDescription), d.StudyUID,
+			d.Kind, plural(d.Images, "image", "images"))
+	}
+	if n := len(rep.Ignored); n > 0 {
+		fmt.Fprintf(w, "%s ignored, not images the audit reads (SOP Class %s", plural(n, "DICOM file", "DICOM files"), rep.Ignored[0].SOPClassUID)
+		if n > 1 {
+			fmt.Fprint(w, ", ...")
+		}
+		fmt.Fprintln(w, ")")
+	}
 
 	// Findings, grouped by study the same way.
 	fmt.Fprintln(w)

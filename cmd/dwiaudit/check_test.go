@@ -331,3 +331,60 @@ func TestCheckJSONGivesTheGradientTable(t *testing.T) {
 		t.Errorf("kinds %v with %d directions; want one b0, one trace, three directions", kinds, dirs)
 	}
 }
+
+// TestCheckTextListsDerivedSeriesAndIgnoredObjects adds to a clean
+// phantom an FA series (Image Type value 4 FA, common practice) and a
+// private non-image object (MR Image Storage, PS3.4 B.5, replaced by a
+// private SOP Class of the same length), both patched copies of its
+// files: they are listed, and nothing fails.
+func TestCheckTextListsDerivedSeriesAndIgnoredObjects(t *testing.T) {
+	dir := checkStudy(t, phantom.CaseClean)
+	var files []string
+	filepath.WalkDir(dir, func(p string, d os.DirEntry, err error) error {
+		if err == nil && d.Type().IsRegular() && strings.Contains(p, "dwi") {
+			files = append(files, p)
+		}
+		return nil
+	})
+	slices.Sort(files)
+	if len(files) < 2 {
+		t.Fatalf("DWI files %v", files)
+	}
+	patch := func(src, name string, pairs ...string) {
+		b, err := os.ReadFile(src)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := 0; i < len(pairs); i += 2 {
+			if !bytes.Contains(b, []byte(pairs[i])) || len(pairs[i]) != len(pairs[i+1]) {
+				t.Fatalf("cannot patch %q in %s", pairs[i], src)
+			}
+			b = bytes.ReplaceAll(b, []byte(pairs[i]), []byte(pairs[i+1]))
+		}
+		if err := os.WriteFile(filepath.Join(dir, name), b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	series := func(path string) string {
+		r := runCLI(t, "check", "--format", "json", path)
+		var body CheckResponse
+		if err := json.Unmarshal([]byte(r.stdout), &body); err != nil || len(body.Series) != 1 {
+			t.Fatalf("check of %s: %v\n%s", path, err, r.stdout)
+		}
+		return body.Series[0].SeriesUID
+	}
+	uid := series(dir)
+	faUID := uid[:len(uid)-1] + string("12"[(uid[len(uid)-1]-'0')%2])
+	patch(files[0], "fa.dcm", `ORIGINAL\PRIMARY\DIFFUSION\NONE `, `DERIVED\PRIMARY\DIFFUSION\FA    `, uid, faUID)
+	patch(files[1], "csa.dcm", "1.2.840.10008.5.1.4.1.1.4\x00", "1.3.12.2.1107.5.9.1.0.0.1\x00")
+
+	r := runCLI(t, "check", dir)
+	if r.code != exitOK {
+		t.Errorf("exit %d, want 0:\n%s", r.code, r.stdout)
+	}
+	for _, want := range []string{"FA map, 1 image, not audited", "1 DICOM file ignored, not images the audit reads (SOP Class 1.3.12.2.1107.5.9.1.0.0.1)", "No findings."} {
+		if !strings.Contains(r.stdout, want) {
+			t.Errorf("text output lacks %q:\n%s", want, r.stdout)
+		}
+	}
+}

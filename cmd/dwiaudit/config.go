@@ -856,15 +856,31 @@ func (s SeverityName) MarshalYAML() (any, error) { return rules.Severity(s).Stri
 // PrivateSourceConfig is one private b-value source (header.PrivateSource):
 // the private creator string that reserves a block in an odd group, the
 // element's offset in that block (the low byte of (gggg,xxee)), how to
-// read it, which value, and a scale to s/mm².
+// read it, which value, an offset to subtract and a scale to s/mm², and
+// optionally where the gradient direction is. A source overrides the
+// built-in maker readers; the standard attributes override both.
 type PrivateSourceConfig struct {
-	Name    string        `yaml:"name"`
-	Creator string        `yaml:"creator"`
-	Group   HexUint16     `yaml:"group"`   // e.g. "0x0019"
-	Element HexUint8      `yaml:"element"` // e.g. "0x0C"
-	Read    ValueKindName `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
-	Index   int           `yaml:"index"`
-	Scale   float64       `yaml:"scale"` // 0 or absent means 1
+	Name     string                `yaml:"name"`
+	Creator  string                `yaml:"creator"`
+	Group    HexUint16             `yaml:"group"`   // e.g. "0x0019"
+	Element  HexUint8              `yaml:"element"` // e.g. "0x0C"
+	Read     ValueKindName         `yaml:"read"`    // FD, FL, DS, IS, SL, UL, SS, US or text
+	Index    int                   `yaml:"index"`
+	Scale    float64               `yaml:"scale"`    // 0 or absent means 1
+	Offset   float64               `yaml:"offset"`   // subtracted before scale, e.g. 1e9
+	Gradient *GradientSourceConfig `yaml:"gradient"` // absent: no direction from this source
+}
+
+// GradientSourceConfig is where a private source's scanner keeps the
+// gradient direction (header.GradientSource): one element of three
+// values or three elements of one, in the block of creator (default:
+// the source's) in group (default: the source's).
+type GradientSourceConfig struct {
+	Creator   string        `yaml:"creator"`
+	Group     HexUint16     `yaml:"group"`
+	Elements  []HexUint8    `yaml:"elements"` // e.g. ["0x0D"] or ["0xBB", "0xBC", "0xBD"]
+	Read      ValueKindName `yaml:"read"`
+	ImageAxes bool          `yaml:"image_axes"` // components along rows, columns, slice normal
 }
 
 // HexUint16 is a DICOM group number written in hexadecimal, with or
@@ -1041,10 +1057,17 @@ func (a AuditConfig) AnalyzeConfig() analysis.AnalyzeConfig {
 func (a AuditConfig) ExtractOptions() header.ExtractOptions {
 	var o header.ExtractOptions
 	for _, p := range a.PrivateSources {
-		o.PrivateSources = append(o.PrivateSources, header.PrivateSource{
+		src := header.PrivateSource{
 			Name: p.Name, Creator: p.Creator, Group: uint16(p.Group), Element: uint8(p.Element),
-			Read: header.ValueKind(p.Read), Index: p.Index, Scale: p.Scale,
-		})
+			Read: header.ValueKind(p.Read), Index: p.Index, Scale: p.Scale, Offset: p.Offset,
+		}
+		if g := p.Gradient; g != nil {
+			src.Gradient = &header.GradientSource{Creator: g.Creator, Group: uint16(g.Group), Read: header.ValueKind(g.Read), ImageAxes: g.ImageAxes}
+			for _, e := range g.Elements {
+				src.Gradient.Element = append(src.Gradient.Element, uint8(e))
+			}
+		}
+		o.PrivateSources = append(o.PrivateSources, src)
 	}
 	return o
 }
@@ -1121,6 +1144,20 @@ func (a AuditConfig) validate(p *problems) {
 		}
 		if !(s.Scale >= 0) || math.IsInf(s.Scale, 0) {
 			p.addf(f+".scale", "%v is not a positive number", s.Scale)
+		}
+		if math.IsNaN(s.Offset) || math.IsInf(s.Offset, 0) {
+			p.addf(f+".offset", "%v is not a number", s.Offset)
+		}
+		if g := s.Gradient; g != nil {
+			if n := len(g.Elements); n != 1 && n != 3 {
+				p.addf(f+".gradient.elements", "%d offsets: want one element of three values or three elements", n)
+			}
+			if grp := uint16(g.Group); grp != 0 && (grp%2 == 0 || grp <= 0x0007 || grp == 0xFFFF) {
+				p.addf(f+".gradient.group", "0x%04X is not a private group (odd, 0x0009 to 0xFFFD; PS3.5 7.8.1)", grp)
+			}
+			if g.Read == ValueKindName(header.ValueInvalid) {
+				p.addf(f+".gradient.read", "missing: FD, FL, DS, IS, SL, UL, SS, US or text")
+			}
 		}
 	}
 

@@ -55,6 +55,8 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
       group: "0x0019"
       element: 0C
       read: IS
+      offset: 1e9
+      gradient: {elements: ["0xBB", "0xBC", "0xBD"], read: DS, image_axes: true}
   analysis:
     csf_percentile: 90
 `
@@ -83,7 +85,8 @@ func TestAuditSectionReplacesListsAndMergesTheRest(t *testing.T) {
 		t.Errorf("thresholds %+v: only low_snr.min_b0_snr must change", a.Thresholds)
 	}
 	src := a.ExtractOptions().PrivateSources
-	want := []header.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: header.ValueIS}}
+	want := []header.PrivateSource{{Name: "acme-b", Creator: "ACME DIFFUSION 1", Group: 0x0019, Element: 0x0C, Read: header.ValueIS, Offset: 1e9,
+		Gradient: &header.GradientSource{Element: []uint8{0xBB, 0xBC, 0xBD}, Read: header.ValueDS, ImageAxes: true}}}
 	if !reflect.DeepEqual(src, want) {
 		t.Errorf("private sources %+v, want %+v", src, want)
 	}
@@ -131,6 +134,7 @@ func TestAuditSectionProblemsNameTheirFields(t *testing.T) {
       element: "0x10C"
       read: XX
       index: -1
+      gradient: {elements: ["0x0D", "0x0E"]}
   analysis:
     csf_percentile: 0
 `
@@ -159,6 +163,8 @@ func TestAuditSectionProblemsNameTheirFields(t *testing.T) {
 		"audit.thresholds.low_snr.min_b0_snr: -1",
 		"audit.private_sources[0].group: 0x0018 is not a private group", // PS3.5 7.8.1: private groups are odd
 		"audit.private_sources[0].index: -1 is negative",
+		"audit.private_sources[0].gradient.elements: 2 offsets",
+		"audit.private_sources[0].gradient.read: missing",
 		"audit.analysis.csf_percentile: 0 is outside (0, 100]",
 	}
 	if len(ce.Problems) != len(want) {
