@@ -199,6 +199,14 @@ type HotspotThresholds struct {
 	// subarachnoid CSF and the outer cortex, where CSF and tissue mix,
 	// are about that thick in an adult brain (common practice).
 	EdgeMM float64 `yaml:"edge_mm"`
+	// MeasurableSigmas is how far above the noise floor, in noise σ of
+	// the DWI (analysis.Measures.FloorNoise), a voxel's DWI and the DWI
+	// its surroundings predict must lie for the voxel to be tested:
+	// below that the DWI cannot show a change (the Rician floor,
+	// Gudbjartsson & Patz, MRM 1995;34:910), and "the DWI did not
+	// change" means nothing. Default 3 (DOMAIN.md: high-b SNR below
+	// about 3 is at the floor).
+	MeasurableSigmas float64 `yaml:"measurable_sigmas"`
 	// WindowMM is the side of the square window the prediction is the
 	// median of, mm. Default 100: three times the half-width of a
 	// wrapped nose or a ghost band of a few centimetres (common
@@ -210,14 +218,15 @@ type HotspotThresholds struct {
 // fields for each reason).
 func DefaultHotspotThresholds() HotspotThresholds {
 	return HotspotThresholds{
-		MinB0Departure: 0.2,
-		NoiseSigmas:    3,
-		MaxDWIShare:    0.15,
-		MinADCShift:    0.25e-3,
-		ErrorADCShift:  0.3e-3,
-		MinAreaMM2:     100,
-		EdgeMM:         6,
-		WindowMM:       100,
+		MinB0Departure:   0.2,
+		NoiseSigmas:      3,
+		MaxDWIShare:      0.15,
+		MinADCShift:      0.25e-3,
+		ErrorADCShift:    0.3e-3,
+		MinAreaMM2:       100,
+		EdgeMM:           6,
+		WindowMM:         100,
+		MeasurableSigmas: 3,
 	}
 }
 
@@ -260,6 +269,9 @@ func (t HotspotThresholds) Validate() error {
 	}
 	if !(t.EdgeMM >= 0 && t.EdgeMM <= hotspotMaxEdgeMM) {
 		bad("edge_mm", t.EdgeMM, fmt.Sprintf("0..%d mm", hotspotMaxEdgeMM))
+	}
+	if !(t.MeasurableSigmas >= 0) || !finite(t.MeasurableSigmas) {
+		bad("measurable_sigmas", t.MeasurableSigmas, "a number of noise standard deviations >= 0")
 	}
 	if !(t.WindowMM > 0 && t.WindowMM <= hotspotMaxWindowMM) {
 		bad("window_mm", t.WindowMM, fmt.Sprintf("a width in mm, above 0 and at most %d", hotspotMaxWindowMM))
@@ -346,6 +358,14 @@ type hotspotRegion struct {
 	b0Ratio, dwiRatio      float64 // medians of b0/b0̂ and dwi/dwî
 	adcInside, adcAround   float64 // medians of ADC and of ADĈ, mm²/s
 	adcShift               float64 // median of ADC − ADĈ
+	// Evidence: the median DWI of the region in noise σ (floorSigma, by
+	// floorMethod), and the candidate voxels of the series left out as
+	// at the noise floor or as CSF.
+	dwiSigmas             float64
+	floorSigma            float64
+	floorMethod           string
+	atFloor, csfDominated int
+	members               []int32 // the region's voxels, until the evidence is taken
 }
 
 // hotspotGeometry is the voxel grid of a result.
@@ -379,6 +399,18 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 	if !res.Measures.HighBNoise.Valid() {
 		sigmaDWI = 0
 	}
+	// The noise floor of the DWI: a voxel whose DWI (or whose predicted
+	// DWI) is within MeasurableSigmas of it cannot show whether the DWI
+	// changed, so it is not tested (see Noise floor).
+	floorSigma := res.Measures.FloorNoise.Sigma
+	if !res.Measures.FloorNoise.Valid() {
+		floorSigma = sigmaDWI
+	}
+	if sigmaDWI == 0 && floorSigma > 0 {
+		sigmaDWI = floorSigma // the DWI's noise from its tissue, when the background is zeroed
+	}
+	floorLevel := float32(th.MeasurableSigmas * floorSigma)
+	parenMax := float32(analysis.DefaultAnalyzeConfig().ParenchymaADCMax)
 	if high.Directions > 1 {
 		// The trace is the geometric mean of the directions: its
 		// relative noise is that of one image over √directions.
@@ -393,8 +425,15 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 	hotspotRank(cand, res.Mask, g, edge, (2*edge+1)*(2*edge+1), counts)
 	lb0 := make([]float32, n)
 	ldwi := make([]float32, n)
+	var atFloor, csfDominated int
 	for i := range cand {
 		s0, s1, a := b0.Data[i], dwi.Data[i], adcMap.Data[i]
+		if cand[i] && s1 < floorLevel {
+			atFloor++
+		}
+		if cand[i] && a >= parenMax && s1 >= floorLevel {
+			csfDominated++
+		}
 		if !cand[i] || !(s0 > 0) || !(s1 > 0) || a != a || math.IsInf(float64(s0)+float64(s1), 0) {
 			cand[i] = false
 			lb0[i], ldwi[i] = float32(math.NaN()), float32(math.NaN())
@@ -470,13 +509,38 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 			if !cand[i] || rim[i] {
 				continue
 			}
+			// Noise floor and CSF (see those sections): the DWI, and
+			// the DWI the surroundings predict, must be measurable,
+			// and the voxel's ADC that of parenchyma, not of CSF.
+			if dwi.Data[i] < floorLevel || float32(math.Exp(float64(p.pDWI[k]))) < floorLevel || adcMap.Data[i] >= parenMax {
+				continue
+			}
 			r := root[nMean[i]]
 			flag[i] = hotspotVoxelTest(float64(beta[i]), float64(delta[i]), float64(dADC(i)), th, minLogUp, minLogDown,
 				float64(noise0[k]/r), float64(noise1[k]/r))
 		}
 	}
 	around := func(i int) float32 { return p.pADC[(i/plane)*perSlice+int(p.cell[i%plane])] }
-	return hotspotRegions(flag, g, beta, delta, dADC, around, adcMap.Data, th, minLogUp, minLogDown)
+	regions := hotspotRegions(flag, g, beta, delta, dADC, around, adcMap.Data, th, minLogUp, minLogDown)
+	for k := range regions {
+		r := &regions[k]
+		r.floorSigma, r.floorMethod = floorSigma, string(res.Measures.FloorNoise.Method)
+		if floorSigma > 0 {
+			r.dwiSigmas = float64(hotspotMedianAt(r.members, dwi.Data)) / floorSigma
+		}
+		r.atFloor, r.csfDominated = atFloor, csfDominated
+		r.members = nil
+	}
+	return regions
+}
+
+// hotspotMedianAt is the median of v over the voxels idx.
+func hotspotMedianAt(idx []int32, v []float32) float32 {
+	s := make([]float32, 0, len(idx))
+	for _, i := range idx {
+		s = append(s, v[i])
+	}
+	return adc.PercentileInPlace(s, 50)
 }
 
 // hotspotVoxelTest is tests 1-3 of the method on one voxel (or, with
@@ -810,6 +874,7 @@ func hotspotRegions(flag []bool, g hotspotGeometry, beta, delta []float32, dADC,
 			row0: g.rows, col0: g.cols, row1: -1, col1: -1,
 			b0Ratio: math.Exp(be), dwiRatio: math.Exp(de), adcShift: da,
 			adcInside: median(of(adcData)), adcAround: median(around),
+			members: slices.Clone(members),
 		}
 		for _, i := range members {
 			z, rem := int(i)/plane, int(i)%plane
@@ -882,7 +947,13 @@ func hotspotFindings(s *Study, sa *SeriesAudit, regions []hotspotRegion, th Hots
 		} else {
 			msg.WriteString("Signal lost on the b0 alone (dropout, a spike's stripes) lowers the ADC and can look like restriction; ")
 		}
-		msg.WriteString("a real lesion would change the DWI too. Check the b0 images of these slices.")
+		msg.WriteString("a real lesion would change the DWI too. ")
+		if r.floorSigma > 0 {
+			fmt.Fprintf(&msg, "Evidence: the region's DWI is %.0f σ above zero (noise σ %.3g, %s), so a change of the DWI would show; ", r.dwiSigmas, r.floorSigma, r.floorMethod)
+		} else {
+			msg.WriteString("Evidence: no noise estimate for the DWI, so the relative tests alone decided; ")
+		}
+		fmt.Fprintf(&msg, "voxels of parenchyma only (%d voxels of the series with an ADC of CSF and %d at the DWI noise floor were not tested). Check the b0 images of these slices.", r.csfDominated, r.atFloor)
 		if k == hotspotMaxFindings-1 && len(regions) > hotspotMaxFindings {
 			fmt.Fprintf(&msg, " %d smaller regions of this series are not listed.", len(regions)-hotspotMaxFindings)
 		}
