@@ -3,6 +3,7 @@ package header
 import (
 	"regexp"
 	"strconv"
+	"strings"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 
@@ -24,8 +25,13 @@ import (
 //     image itself says it has no diffusion weighting: Image Comments
 //     "b=0", a zero Diffusion Gradient Orientation, or Diffusion
 //     Directionality NONE (PS3.3 C.8.13.5.9: "NONE" is no diffusion
-//     weighting). An image with none of that evidence keeps no b-value
-//     and assembly reports it.
+//     weighting), or an image that says it is a diffusion acquisition
+//     (Acquisition Contrast (0008,9209) or a value of Image Type
+//     DIFFUSION, PS3.3 C.8.13.1.1.1): on older systems "the
+//     DiffusionBValue (0018,9087) tag may be omitted for images where
+//     the b-value is equal to zero" (the NA-MIC page, docs/makers.md).
+//     An image with none of that evidence keeps no b-value, and
+//     assembly reports it.
 func canonReader() MakerReader {
 	return MakerReader{
 		Name:          "canon",
@@ -62,7 +68,7 @@ func readCanon(im *MakerImage) (MakerDiffusion, error) {
 	}
 	if !d.HasBValue && !f.HasBValue && f.Kind == dwi.KindAcquired {
 		zeroGradient := f.HasGradient && f.Gradient == [3]float64{}
-		if zeroGradient || f.Directionality == dwi.DirectionalityNone {
+		if zeroGradient || f.Directionality == dwi.DirectionalityNone || diffusionContrast(f) {
 			d.BValue, d.HasBValue = 0, true
 		}
 	}
@@ -80,4 +86,19 @@ func readCanon(im *MakerImage) (MakerDiffusion, error) {
 		d.Directionality = directionalityOf(b, hasB, g, hasG)
 	}
 	return d, nil
+}
+
+// diffusionContrast says whether f says it is a diffusion acquisition:
+// Acquisition Contrast DIFFUSION (PS3.3 C.8.13.3.1.2) or an Image Type
+// value DIFFUSION.
+func diffusionContrast(f *dwi.Frame) bool {
+	if strings.EqualFold(f.AcquisitionContrast, "DIFFUSION") {
+		return true
+	}
+	for _, v := range f.ImageType {
+		if strings.EqualFold(v, "DIFFUSION") {
+			return true
+		}
+	}
+	return false
 }

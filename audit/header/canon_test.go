@@ -23,10 +23,15 @@ func TestCanonReader(t *testing.T) {
 		// PS3.3 C.8.13.5.9: NONE is no diffusion weighting.
 		{"Directionality NONE without a b-value is a b0", []el{txt(tDirectionality, "CS", "NONE")}, 0, true, dwi.DirectionalityNone, nil},
 		{"a zero gradient without a b-value is a b0", []el{fd(tGradient, 0, 0, 0)}, 0, true, dwi.DirectionalityNone, nil},
+		{"an image of a diffusion acquisition without a b-value is a b0", nil, 0, true, dwi.DirectionalityNone, nil}, // Image Type ORIGINAL\PRIMARY\DIFFUSION\NONE
 		{"an image with no evidence keeps no b-value", nil, 0, false, dwi.DirectionalityUnknown, nil},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
-			s := newSeries("canon", img{plain: true, extra: tt.extra})
+			m := img{plain: true, extra: tt.extra, imageType: []string{"ORIGINAL", "PRIMARY", "M", "SE"}}
+			if tt.name == "an image of a diffusion acquisition without a b-value is a b0" {
+				m.imageType = nil // the encoder's ORIGINAL\PRIMARY\DIFFUSION\NONE
+			}
+			s := newSeries("canon", m)
 			s.manufacturer = "TOSHIBA"
 			f := extractOne(t, s.classic(t, tsExplicitLE)[0], ExtractOptions{})[0]
 			if f.HasBValue != tt.hasB || f.BValue != tt.wantB || f.Directionality != tt.dir || (tt.hasB && f.BValueSource != "maker:canon") {

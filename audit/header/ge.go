@@ -23,9 +23,28 @@ import (
 //
 // The b0 images of a DTI series carry no Diffusion b-value (0018,9087)
 // while the diffusion-weighted ones do; (0043,xx39) gives them b = 0.
+// But every GE image has (0043,xx39), fMRI and T1 included, with a first
+// value of 0: a b-value of 0 is taken only from an image that says it is
+// a diffusion acquisition, by (from a public comment of the maker's staff,
+// docs/makers.md):
+//
+//   - (0021,xx5A) SL, creator "GEMS_RELA_01", "diffusion direction" of
+//     the series: 0 for none, non-zero (16 for DTI) for a diffusion
+//     series;
+//   - (0043,xx30) SS, creator "GEMS_PARM_01", the image's kind: 14 the
+//     T2 (b0) images, 16 the diffusion images, 18 FA, 19 the trace.
+//
+// On the public GE reference data the DTI series have 16 and 14/16,
+// its fMRI and T1 series 0 and 0.
 const (
 	geParmCreator = "GEMS_PARM_01"
 	geAcquCreator = "GEMS_ACQU_01"
+	geRelaCreator = "GEMS_RELA_01"
+
+	geKindT2        = 14
+	geKindDiffusion = 16
+	geKindFA        = 18
+	geKindTrace     = 19
 
 	// geBValueOffset is the power of ten some GE versions add to the
 	// b-value in (0043,xx39) (1000001000 for b = 1000; from a public
@@ -44,8 +63,29 @@ func geReader() MakerReader {
 	}
 }
 
+// geDiffusion says what the image says of itself: whether it is part of
+// a diffusion acquisition, and its kind ((0043,xx30), 0 when absent).
+func geDiffusion(im *MakerImage) (diffusion bool, kind int) {
+	if e, _ := im.Private(geParmCreator, 0x0043, 0x30); e != nil {
+		if v, err := e.Numbers(ValueSS); err == nil && len(v) == 1 {
+			kind = int(v[0])
+		}
+	}
+	switch kind {
+	case geKindT2, geKindDiffusion, geKindFA, geKindTrace:
+		return true, kind
+	}
+	if e, _ := im.Private(geRelaCreator, 0x0021, 0x5A); e != nil {
+		if v, err := e.Numbers(ValueSL); err == nil && len(v) == 1 && v[0] != 0 {
+			return true, kind
+		}
+	}
+	return im.Frame.HasBValue, kind
+}
+
 func readGE(im *MakerImage) (MakerDiffusion, error) {
 	var d MakerDiffusion
+	diffusion, kind := geDiffusion(im)
 	if e, _ := im.Private(geParmCreator, 0x0043, 0x39); e != nil {
 		v, err := e.Numbers(ValueIS)
 		if err != nil || len(v) == 0 {
@@ -54,6 +94,10 @@ func readGE(im *MakerImage) (MakerDiffusion, error) {
 		d.BValue, d.HasBValue = geBValue(v[0])
 		if !d.HasBValue {
 			return d, im.Fail(e, "b-value %v is negative", v[0])
+		}
+		if d.BValue <= maxB0 && !diffusion {
+			// Not a diffusion image: its 0 says nothing.
+			return MakerDiffusion{}, nil
 		}
 	}
 	var g [3]float64
@@ -81,11 +125,14 @@ func readGE(im *MakerImage) (MakerDiffusion, error) {
 	if im.Frame.HasBValue {
 		b, hasB = im.Frame.BValue, true
 	}
-	if n == 3 {
+	switch {
+	case kind == geKindTrace && hasB && b > maxB0:
+		d.Directionality, d.HasGradient = dwi.DirectionalityIsotropic, false
+	case n == 3:
 		// Without the three components the image says nothing of its
 		// direction; with them, a zero vector at b > 0 is the trace.
 		d.Directionality = directionalityOf(b, hasB, g, hasG)
-	} else if hasB && b <= maxB0 {
+	case hasB && b <= maxB0:
 		d.Directionality = dwi.DirectionalityNone
 	}
 	return d, nil

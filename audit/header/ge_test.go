@@ -10,11 +10,20 @@ import (
 // write them (docs/makers.md): (0043,xx39) of GEMS_PARM_01 holds the
 // b-value first, (0019,xxBB/BC/BD) of GEMS_ACQU_01 the gradient in image
 // axes; b0 images carry no Diffusion b-value (0018,9087), the others do.
+// (0021,xx5A) of GEMS_RELA_01 is 16 (DTI) and (0043,xx30) 14 (T2) or 16
+// (diffusion), as in those series.
 func geImage(slopInts []string, g [3]float64, slice float64, standardB *float64) img {
+	kind := uint16(16)
+	if slopInts[0] == "0" {
+		kind = 14
+	}
 	extra := []el{
 		txt(0x00190010, "LO", "GEMS_ACQU_01"),
 		ds(0x001910BB, g[0]), ds(0x001910BC, g[1]), ds(0x001910BD, g[2]),
+		txt(0x00210010, "LO", "GEMS_RELA_01"),
+		{tag: 0x0021105A, vr: "SL", u32: []uint32{16}},
 		txt(0x00430010, "LO", "GEMS_PARM_01"),
+		{tag: 0x00431030, vr: "SS", u16: []uint16{kind}},
 		txt(0x00431039, "IS", slopInts...),
 	}
 	if standardB != nil {
@@ -91,6 +100,20 @@ func TestGEReader(t *testing.T) {
 		}
 		if len(s.Facts.BValues) != 2 || s.Facts.BValues[0] != 0 || len(s.Facts.Directions[s.Facts.BValues[1]]) != 4 || len(s.Facts.NoBValue) != 0 || len(s.Facts.Duplicates) != 0 {
 			t.Errorf("facts %+v, want b 0 and 1000 with 4 directions", s.Facts)
+		}
+	})
+	t.Run("a GE image of no diffusion acquisition gets no b-value from its 0", func(t *testing.T) {
+		// The public GE fMRI and T1 series: (0043,xx39) "0\...", kind 0,
+		// diffusion direction 0.
+		m := img{plain: true, extra: []el{
+			txt(0x00210010, "LO", "GEMS_RELA_01"), {tag: 0x0021105A, vr: "SL", u32: []uint32{0}},
+			txt(0x00430010, "LO", "GEMS_PARM_01"), {tag: 0x00431030, vr: "SS", u16: []uint16{0}},
+			txt(0x00431039, "IS", "0", "1342177280", "0", "0"),
+		}}
+		for _, ts := range []string{tsExplicitLE, tsImplicitLE} {
+			if f := extractOne(t, geSeries("gefmri", m).classic(t, ts)[0], ExtractOptions{})[0]; f.HasBValue || f.Directionality != dwi.DirectionalityUnknown {
+				t.Errorf("%s: b %v from %q, %v; want none", ts, f.BValue, f.BValueSource, f.Directionality)
+			}
 		}
 	})
 	t.Run("another maker's image with the GE creators is not read", func(t *testing.T) {

@@ -43,7 +43,9 @@ type MakerReader struct {
 	Creators []string
 	// Read says what the maker's elements give for the image. An element
 	// that is present but unreadable is an error (a *PrivateSourceError,
-	// through MakerImage.Fail); an absent one is not.
+	// through MakerImage.Fail), which fails the image unless its b-value
+	// is already known from the standard attributes or a configured
+	// source; an absent element is not an error.
 	Read func(im *MakerImage) (MakerDiffusion, error)
 	// Split, optional, says whether the image is a mosaic and how it is
 	// laid out; ok false leaves the image whole.
@@ -306,10 +308,17 @@ func (x *extraction) readMakers(f *dwi.Frame, per, shared level) (*Mosaic, error
 		im.reader = r.Name
 		if r.Read != nil && (!f.HasBValue || !f.HasGradient || f.Directionality == dwi.DirectionalityUnknown) {
 			d, err := r.Read(im)
-			if err != nil {
+			switch {
+			case err != nil && f.HasBValue:
+				// The b-value is known from the standard attributes or a
+				// configured source, which win: an unreadable private
+				// element of the maker's does not make the image
+				// unreadable.
+			case err != nil:
 				return nil, fmt.Errorf("maker reader %s: %w", r.Name, err)
+			default:
+				merge(f, d, r.Name)
 			}
-			merge(f, d, r.Name)
 		}
 		if r.Split != nil && mosaic == nil {
 			m, ok, err := r.Split(im)

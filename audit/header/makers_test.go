@@ -161,6 +161,15 @@ func TestMakerReaderFillsWhatTheStandardAttributesLeaveUnknown(t *testing.T) {
 			t.Errorf("error %v, want a PrivateSourceError of maker:acme at (0019,100C)", err)
 		}
 	})
+	t.Run("an unreadable private element does not fail an image whose standard b-value is known", func(t *testing.T) {
+		// A standard b-value and no direction: the reader is run, and
+		// fails on the two-valued b-value.
+		m := img{plain: true, extra: []el{fd(tBValue, 500), txt(0x00190010, "LO", "ACME DIFFUSION 1"), txt(0x0019100C, "IS", "1000", "2000")}}
+		f := extractOne(t, acmeSeries("acme8b", m).classic(t, tsExplicitLE)[0], acme)[0]
+		if f.BValue != 500 || f.BValueSource != "standard" {
+			t.Errorf("b %v from %q, want the standard 500", f.BValue, f.BValueSource)
+		}
+	})
 	t.Run("an empty list of makers turns them off", func(t *testing.T) {
 		s := acmeSeries("acme9", acmeImage(txt(0x0019100C, "IS", "1000")))
 		f := extractOne(t, s.classic(t, tsExplicitLE)[0], ExtractOptions{Makers: []MakerReader{}})[0]

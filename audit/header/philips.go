@@ -14,7 +14,8 @@ import (
 //   - (2001,xx04) CS, same creator: a direction label. "I" is the
 //     scanner's isotropic (trace) image, or the b0 when the b-value is 0;
 //     "O" (oblique), "M", "P", "S" (measurement, phase, slice axes) are
-//     one direction each.
+//     one direction each. Images of other acquisitions carry (2001,xx03)
+//     = 0 with an empty label; they get nothing from this reader.
 //   - (2005,xxB0), (2005,xxB1), (2005,xxB2) FL, creator "Philips MR
 //     Imaging DD 001": the gradient direction, right-left, anterior-
 //     posterior, feet-head: patient axes, the same numbers as Diffusion
@@ -69,6 +70,12 @@ func readPhilips(im *MakerImage) (MakerDiffusion, error) {
 	label := ""
 	if e, _ := im.Private(philipsImagingCreator, 0x2001, 0x04); e != nil {
 		label = strings.ToUpper(strings.TrimSpace(strings.Join(e.Strings(), `\`)))
+	}
+	if label == "" && !(d.HasBValue && d.BValue > maxB0) {
+		// Non-diffusion Philips images carry (2001,xx03) = 0 with an
+		// empty label (the public Philips fMRI, T1 and perfusion
+		// series): that 0 says nothing.
+		return MakerDiffusion{}, nil
 	}
 	switch {
 	case !hasB:

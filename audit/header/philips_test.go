@@ -62,6 +62,16 @@ func TestPhilipsReader(t *testing.T) {
 			})
 		}
 	}
+	t.Run("a non-diffusion image's 0 with an empty label gives nothing", func(t *testing.T) {
+		// The public Philips fMRI series: (2001,xx03) FL 0, (2001,xx04)
+		// empty.
+		m := philipsImage(0, "", [3]float32{}, 0)
+		m.extra[2] = el{tag: 0x20011004, vr: "CS", raw: []byte{}}
+		f := extractOne(t, philipsSeries("phfmri", m).classic(t, tsExplicitLE)[0], ExtractOptions{})[0]
+		if f.HasBValue || f.Directionality != dwi.DirectionalityUnknown {
+			t.Errorf("b %v from %q, %v; want none", f.BValue, f.BValueSource, f.Directionality)
+		}
+	})
 	t.Run("a standard b-value wins over the private one", func(t *testing.T) {
 		m := philipsImage(1000, "O", [3]float32{1, 0, 0}, 0)
 		m.extra = append(m.extra, fd(tBValue, 995))

@@ -43,6 +43,8 @@ func testdataFiles() []testdataFile {
 	private := newSeries("tdpriv", img{noB: true, directionality: "DIRECTIONAL", dir: x, extra: []el{
 		txt(0x00190010, "LO", "ACME DIFFUSION 1"), txt(0x0019100C, "IS", "1000")}})
 	adc := newSeries("tdadc", img{b: 1000, iso: true, imageType: []string{"DERIVED", "PRIMARY", "DIFFUSION", "ADC"}, rwvUnits: "10-6.mm2/s"})
+	ge := geSeries("tdge", geImage([]string{"0", "8", "0", "0"}, [3]float64{}, 0, nil))
+	philips := philipsSeries("tdphilips", philipsImage(1000, "O", [3]float32{0, 0.6, 0.8}, 0))
 	classic := func(s testSeries, ts string, k int) func(testing.TB) []byte {
 		return func(t testing.TB) []byte { return s.classic(t, ts)[k] }
 	}
@@ -55,6 +57,8 @@ func testdataFiles() []testdataFile {
 		{"classic-explicit-be.dcm", classic(diffusionSeries, tsExplicitBE, 3), 1, []float64{1000}, dwi.KindAcquired, false},
 		{"classic-private-b-implicit.dcm", classic(private, tsImplicitLE, 0), 1, []float64{1000}, dwi.KindAcquired, false},
 		{"classic-adc-map.dcm", classic(adc, tsExplicitLE, 0), 1, []float64{1000}, dwi.KindADC, false},
+		{"classic-ge-private-b0-implicit.dcm", classic(ge, tsImplicitLE, 0), 1, []float64{0}, dwi.KindAcquired, false},
+		{"classic-philips-private-implicit.dcm", classic(philips, tsImplicitLE, 0), 1, []float64{1000}, dwi.KindAcquired, false},
 		{"enhanced-explicit-le.dcm", enhanced(diffusionSeries, tsExplicitLE), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-deflated.dcm", enhanced(diffusionSeries, tsDeflated), 4, []float64{0, 1000, 1000, 1000}, dwi.KindAcquired, false},
 		{"enhanced-jpeg-encapsulated.dcm", func(t testing.TB) []byte {
