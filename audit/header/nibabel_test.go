@@ -174,12 +174,21 @@ func TestReadSiemensNibabelMosaics(t *testing.T) {
 				ori := floatsOf(t, elems, tag.ImageOrientationPatient, 6)
 				n := SliceNormal([6]float64(ori), d.SliceNormal, d.HasSliceNormal)
 				axes := [3][3]float64{{ori[3], ori[4], ori[5]}, {ori[0], ori[1], ori[2]}, n}
-				var g []float64
-				for _, a := range axes {
-					g = append(g, a[0]*d.Gradient[0]+a[1]*d.Gradient[1]+a[2]*d.Gradient[2])
+				voxel := func(p [3]float64) []float64 {
+					var g []float64
+					for _, a := range axes {
+						g = append(g, a[0]*p[0]+a[1]*p[1]+a[2]*p[2])
+					}
+					return g
 				}
-				if !near(g, []float64{0.00507649, 0.99997450, -0.005023611}, 1e-6) {
+				if g := voxel(d.Gradient); !near(g, []float64{0.00507649, 0.99997450, -0.005023611}, 1e-6) {
 					t.Errorf("gradient %v in voxel axes %v, want nibabel's (0.00507649, 0.99997450, -0.005023611)", d.Gradient, g)
+				}
+				// The same for every slice extraction makes of the mosaic.
+				for k, f := range extractSlices(t, data, false, 48) {
+					if g := voxel(f.Gradient); !near(g, []float64{0.00507649, 0.99997450, -0.005023611}, 1e-6) {
+						t.Fatalf("slice %d: gradient %v in voxel axes %v, want nibabel's EXPECTED_PARAMS", k, f.Gradient, g)
+					}
 				}
 			}
 			// test_dicomwrappers.py EXPECTED_AFFINE (for
