@@ -500,6 +500,10 @@ func (e *Engine) auditStudy(ctx context.Context, rep *Report, in studyInput) *ru
 			if fe := failedFiles[s.SeriesInstanceUID]; len(fe) > 0 {
 				failed = append(failed, rules.ImagesUnreadable(sa, filesError(fe).Error()))
 			}
+			if ng := s.Facts.NoGeometry; len(ng) > 0 {
+				failed = append(failed, rules.ImagesUnreadable(sa, fmt.Sprintf(
+					"%d image(s) have no usable Image Position and Orientation (Patient) and cannot be placed on the slice grid (the first: %s)", len(ng), ng[0])))
+			}
 		}
 		switch {
 		case sa.Err != nil:

@@ -667,3 +667,40 @@ func TestImagesThatLostTheirDirectionGetUnknownDirections(t *testing.T) {
 		t.Errorf("gradient table %+v: want the %d images without direction kept in one isotropic volume", rep.Series[0].Volumes, moved)
 	}
 }
+
+func TestAnImageWithoutGeometryFailsOnlyItself(t *testing.T) {
+	st := writeStudy(t, t.TempDir(), phantom.Options{})
+	p := dwiSeriesOf(t, st).Files[1]
+	b, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Image Position (Patient) (0020,0032), PS3.3 C.7.6.2, moved to group
+	// 0021 (Explicit VR Little Endian tag bytes): the image has no place.
+	ipp := []byte("\x20\x00\x32\x00DS")
+	if !bytes.Contains(b, ipp) {
+		t.Fatal("the phantom's image has no Image Position (Patient)")
+	}
+	if err := os.WriteFile(p, bytes.ReplaceAll(b, ipp, []byte("\x21\x00\x32\x00DS")), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	rep, err := newEngine().AuditFiles(t.Context(), []string{st.Dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.Series) != 1 || rep.Series[0].CannotCompute != "" {
+		t.Fatalf("series %+v, want the DWI series computed without the image", rep.Series)
+	}
+	n := 0
+	for _, f := range rep.Findings {
+		if f.Rule == rules.IDAuditFailed {
+			n++
+			if !strings.Contains(f.Message, "Image Position and Orientation") || !strings.Contains(f.Message, "left out") {
+				t.Errorf("audit-failed %q does not say the image without geometry was left out", f.Message)
+			}
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d audit-failed findings, want one: %+v", n, rep.Findings)
+	}
+}

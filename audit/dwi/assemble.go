@@ -37,8 +37,8 @@ const (
 // lists a series made only of them in Study.Derived. The Series points into frames, which must not
 // change while it is in use.
 //
-// Errors: ErrNoImages when no image can be placed, ErrMixedSeries,
-// ErrMissingGeometry naming the first image without geometry,
+// Errors: ErrNoImages when no image can be placed, ErrMissingGeometry
+// (naming the first) when no image has usable geometry, ErrMixedSeries,
 // ErrInvalidOptions for bad tolerances. Everything else that is wrong
 // with the series is reported in Series.Facts.
 func AssembleSeries(frames []Frame, tol Tolerances) (*Series, error) {
@@ -73,6 +73,7 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 
 	s := &Series{SeriesInstanceUID: seriesUID}
 	var placed []*Frame
+	var geomErr error // the first image without usable geometry
 	for _, f := range sorted {
 		if !f.Kind.Audited() {
 			continue // a derived map the audit does not use (FA, ...): listed, not placed
@@ -80,17 +81,30 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 		if f.Encapsulated {
 			s.Facts.Encapsulated = true
 		}
+		// An image that cannot be placed is left out and named; only a
+		// series none of whose images can be placed fails.
 		if !f.Geometry.Known {
-			return nil, fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())
+			s.Facts.NoGeometry = append(s.Facts.NoGeometry, f.ID())
+			if geomErr == nil {
+				geomErr = fmt.Errorf("%w: image %s has no Image Position and Orientation (Patient)", ErrMissingGeometry, f.ID())
+			}
+			continue
 		}
 		if _, ok := normalOf(f.Geometry.Orientation); !ok {
-			return nil, fmt.Errorf("%w: image %s: Image Orientation (Patient) %v is not two orthogonal unit vectors", ErrMissingGeometry, f.ID(), f.Geometry.Orientation)
+			s.Facts.NoGeometry = append(s.Facts.NoGeometry, f.ID())
+			if geomErr == nil {
+				geomErr = fmt.Errorf("%w: image %s: Image Orientation (Patient) %v is not two orthogonal unit vectors", ErrMissingGeometry, f.ID(), f.Geometry.Orientation)
+			}
+			continue
 		}
 		if f.Kind == KindAcquired && !f.HasBValue && f.Directionality != DirectionalityNone {
 			s.Facts.NoBValue = append(s.Facts.NoBValue, f.ID())
 			continue
 		}
 		placed = append(placed, f)
+	}
+	if len(placed) == 0 && geomErr != nil {
+		return nil, geomErr
 	}
 	if len(placed) == 0 {
 		return nil, fmt.Errorf("%w: none of the %d images of series %s has a b-value or is a diffusion map", ErrNoImages, len(frames), seriesUID)

@@ -277,6 +277,13 @@ func TestAssemblyReportsWhatIsWrongAsFacts(t *testing.T) {
 				t.Errorf("geometry mismatch %v", f.GeometryMismatch)
 			}
 		}},
+		{"an image without geometry", four, func(fs []Frame) {
+			fs[1].Geometry.Known = false // no Image Position (Patient), PS3.3 C.7.6.2
+		}, func(t *testing.T, f Facts, s *Series) {
+			if len(f.NoGeometry) != 1 || len(s.Volumes) != 4 || len(f.MissingSlices) != 1 {
+				t.Errorf("no geometry %v, %d volumes, missing %+v; want the image left out and its slice missing", f.NoGeometry, len(s.Volumes), f.MissingSlices)
+			}
+		}},
 		{"images without a b-value", append(slices.Clone(four), img{noB: true, directionality: "DIRECTIONAL", dir: x, slice: 0}), nil,
 			func(t *testing.T, f Facts, s *Series) {
 				if len(f.NoBValue) != 1 || len(s.Volumes) != 4 {

@@ -375,6 +375,10 @@ type Facts struct {
 	SliceOffsets []SliceOffset
 	B0FromSeries string // when the b0 volume came from another series of the study
 
+	// NoGeometry lists images without usable Image Position and
+	// Orientation (Patient) (PS3.3 C.7.6.2): they are in no volume, and
+	// the rest of the series is assembled without them.
+	NoGeometry []string
 	// NoBValue lists images with no b-value from any source and a
 	// Diffusion Directionality other than NONE: they are in no volume.
 	NoBValue []string
