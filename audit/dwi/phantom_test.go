@@ -268,3 +268,22 @@ func TestOffsetB0InTheSeriesIsAGeometryMismatch(t *testing.T) {
 		}
 	})
 }
+
+// TestSliceOffsetSitsOnBothSidesOfTheTolerance: a b0 0.05 mm off (half
+// of Tolerances.SlicePosition, 0.1 mm) is the same slices; 0.25 mm off
+// (2.5 times it) is an offset volume.
+func TestSliceOffsetSitsOnBothSidesOfTheTolerance(t *testing.T) {
+	for _, c := range []struct {
+		mm     float64
+		offset bool
+	}{{0.05, false}, {0.25, true}} {
+		t.Run(fmt.Sprintf("a b0 %.2f mm off is an offset: %v", c.mm, c.offset), func(t *testing.T) {
+			// The phantom's slices are 5 mm apart.
+			_, st := phantomStudy(t, phantom.Options{Case: phantom.CaseSlicePositions, B0InSeries: true, B0SliceShift: c.mm / 5, Matrix: 16, Slices: 6})
+			s := st.Series[0]
+			if got := len(s.Facts.SliceOffsets) == 1; got != c.offset || len(s.Facts.MissingSlices) != 0 {
+				t.Errorf("offsets %+v, missing %v", s.Facts.SliceOffsets, s.Facts.MissingSlices)
+			}
+		})
+	}
+}
