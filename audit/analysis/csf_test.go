@@ -9,21 +9,24 @@ import (
 )
 
 // csfResult is a computed result of n voxels, all in the mask: a share
-// csf of them CSF (ADC 3.0e-3 mm²/s, near free water at 37 °C, Holz
-// 2000 via DOMAIN.md) whose highest-b signal is dw, the rest
-// parenchyma (0.7e-3, Helenius 2002 via DOMAIN.md) with signal 300.
+// csf of them CSF (b0 2000, ADC 3.0e-3 mm²/s, near free water at 37 °C,
+// Holz 2000 via DOMAIN.md) whose highest-b signal is dw, the rest
+// parenchyma (b0 600, ADC 0.7e-3, Helenius 2002 via DOMAIN.md) with
+// signal 300: the synthetic brain's values.
 func csfResult(n int, csf float64, dw float32) *Result {
 	res := &Result{
-		HighB: []BImage{{B: 1000, Trace: adc.NewVolume3(1, n, 1)}},
-		ADC:   adc.NewVolume3(1, n, 1),
-		Mask:  make([]bool, n),
+		HighB:      []BImage{{B: 1000, Trace: adc.NewVolume3(1, n, 1)}},
+		ADC:        adc.NewVolume3(1, n, 1),
+		B0:         adc.NewVolume3(1, n, 1),
+		Mask:       make([]bool, n),
+		Parenchyma: make([]bool, n),
 	}
 	k := int(math.Round(csf * float64(n)))
 	for i := range n {
-		res.Mask[i] = true
-		res.ADC.Data[i], res.HighB[0].Trace.Data[i] = 0.7e-3, 300
+		res.Mask[i], res.Parenchyma[i] = true, i >= k
+		res.B0.Data[i], res.ADC.Data[i], res.HighB[0].Trace.Data[i] = 600, 0.7e-3, 300
 		if i < k {
-			res.ADC.Data[i], res.HighB[0].Trace.Data[i] = 3.0e-3, dw
+			res.B0.Data[i], res.ADC.Data[i], res.HighB[0].Trace.Data[i] = 2000, 3.0e-3, dw
 		}
 	}
 	return res
