@@ -127,6 +127,13 @@ func runExpectation(t *testing.T, exp expectation, opt phantom.Options) {
 	if err != nil {
 		t.Fatalf("phantom.Write: %v", err)
 	}
+	auditWritten(t, st, opt, exp)
+}
+
+// auditWritten audits a written study and checks exp on its report,
+// which it returns.
+func auditWritten(t *testing.T, st *phantom.Study, opt phantom.Options, exp expectation) *audit.Report {
+	t.Helper()
 	if exp.corrupt != nil {
 		exp.corrupt(t, st)
 	}
@@ -169,6 +176,7 @@ func runExpectation(t *testing.T, exp expectation, opt phantom.Options) {
 	if exp.also != nil {
 		exp.also(t, rep)
 	}
+	return rep
 }
 
 // wantSeriesNamed: the audit-failed finding of a damaged file lies on the

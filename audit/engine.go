@@ -173,7 +173,15 @@ type SeriesReport struct {
 	// (rules.PhantomCentralADC, mm²/s) and PhantomExpectedADC its
 	// profile's expected value; NaN for other series.
 	PhantomADC, PhantomExpectedADC float64
+	// PhantomUniformity is the ADC uniformity over a phantom's water
+	// (rules.PhantomADCUniformity); NaN for other series.
+	PhantomUniformity float64
 }
+
+// IsPhantom reports whether the series matched a phantom profile: its
+// measures are the phantom's (central ADC, uniformity), and the tissue
+// measures (parenchyma, CSF) do not apply to it.
+func (r *SeriesReport) IsPhantom() bool { return !math.IsNaN(r.PhantomExpectedADC) }
 
 // Report is the outcome of one audit call.
 type Report struct {
@@ -611,7 +619,7 @@ func fill(f *rules.Finding, st *rules.Study, known map[string]header.Identity) {
 // seriesReport summarises one series of study: assembled, or (nil
 // Series) known only from its error and its files' headers.
 func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.Identity, cfg *rules.Config) SeriesReport {
-	r := SeriesReport{StudyUID: study, Measures: undefinedMeasures(), PhantomADC: math.NaN(), PhantomExpectedADC: math.NaN()}
+	r := SeriesReport{StudyUID: study, Measures: undefinedMeasures(), PhantomADC: math.NaN(), PhantomExpectedADC: math.NaN(), PhantomUniformity: math.NaN()}
 	if s := sa.Series; s != nil {
 		r.SeriesUID, r.SeriesNumber, r.SeriesDescription = s.SeriesInstanceUID, s.SeriesNumber, s.SeriesDescription
 		r.Scanner, r.BValues = scannerOf(s.Scanner), slices.Clone(s.Facts.BValues)
@@ -631,6 +639,7 @@ func seriesReport(study string, sa *rules.SeriesAudit, known map[string]header.I
 		if cfg != nil {
 			r.PhantomADC, _ = rules.PhantomCentralADC(sa, cfg)
 		}
+		r.PhantomUniformity = rules.PhantomADCUniformity(sa)
 	case sa.Protocol != nil:
 		r.Protocol = sa.Protocol.Name
 	}

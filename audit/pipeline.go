@@ -513,13 +513,18 @@ func findingsJSON(fs []rules.Finding) json.RawMessage {
 func measuresJSON(r *SeriesReport, derived []record.Derived) json.RawMessage {
 	fin := record.Finite
 	m := r.Measures
+	tissue, csf, note := fin(m.ParenchymaMedianADC), fin(m.CSFADC), m.CSFNote
+	if r.IsPhantom() {
+		tissue, csf, note = nil, nil, "" // water, not tissue: the phantom measures stand for it
+	}
 	b, err := json.Marshal(record.Measures{
 		SeriesNumber:           r.SeriesNumber,
 		SeriesDescription:      r.SeriesDescription,
 		Protocol:               r.Protocol,
 		BValues:                r.BValues,
-		TissueADCMedian:        fin(m.ParenchymaMedianADC),
-		CSFADC:                 fin(m.CSFADC),
+		TissueADCMedian:        tissue,
+		CSFADC:                 csf,
+		CSFADCNote:             note,
 		B0SNR:                  fin(m.B0SNR),
 		HighBTissueSNR:         fin(m.HighBTissueSNR),
 		FractionAboveFreeWater: fin(m.FractionAboveFreeWater),
@@ -527,6 +532,7 @@ func measuresJSON(r *SeriesReport, derived []record.Derived) json.RawMessage {
 		CannotCompute:          r.CannotCompute,
 		PhantomADC:             fin(r.PhantomADC),
 		PhantomExpectedADC:     fin(r.PhantomExpectedADC),
+		PhantomUniformity:      fin(r.PhantomUniformity),
 		Volumes:                VolumeRecords(r.Volumes),
 		Derived:                derived,
 	})

@@ -3,6 +3,7 @@ package rules
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"dwiaudit/audit/analysis"
 )
@@ -84,13 +85,40 @@ func (adcOutOfRange) Check(st *Study, cfg *Config) []Finding {
 
 // csfFarFromFreeWater judges the CSF ADC; minHighBSNR is low-snr's
 // limit, below which the noise floor is named as a cause too.
+//
+// Where the CSF's diffusion-weighted signal is at the noise floor
+// (analysis.Measures.CSFNote; Gudbjartsson & Patz, MRM 1995;34:910) the
+// ADC there is a lower bound, not a value: the series gets an info note
+// instead of an error, unless the lower bound itself is above free water
+// beyond the tolerance, which the floor cannot explain (it only lowers
+// the ADC).
 func csfFarFromFreeWater(sa *SeriesAudit, m analysis.Measures, th ADCRangeThresholds, minHighBSNR float64) (Finding, bool) {
-	if math.IsNaN(m.CSFADC) || m.ADCVoxels == 0 {
+	if m.ADCVoxels == 0 {
 		return Finding{}, false
 	}
 	share := float64(m.ADCVoxels-m.ParenchymaVoxels) / float64(m.ADCVoxels)
 	if share < th.MinCSFShare {
 		return Finding{}, false // the percentile would not lie in CSF
+	}
+	if math.IsNaN(m.CSFADC) {
+		lb := m.CSFADCLowerBound
+		if !math.IsNaN(lb) && lb/th.FreeWaterADC-1 > th.CSFTolerance {
+			f := NewFinding(sa, IDADCOutOfRange, SeverityError)
+			f.Message = fmt.Sprintf("CSF ADC is at least %s, %.0f%% above free water at 37 °C (%s, Holz 2000; tolerance ±%.0f%%), although its signal at b = %g is at the noise floor, which only lowers the ADC (Rician bias, Gudbjartsson & Patz 1995): "+
+				"the weighting applied was stronger than the header b-value says (ADC scales as b_applied/b_header), or the pixel scaling of b0 and DWI differs.",
+				fmtADC(lb), 100*(lb/th.FreeWaterADC-1), fmtADC(th.FreeWaterADC), 100*th.CSFTolerance, m.HighB)
+			f.Measured = lb
+			f.Expected = th.FreeWaterADC
+			return f, true
+		}
+		if strings.HasPrefix(m.CSFNote, "CSF ADC not measurable") {
+			f := NewFinding(sa, IDADCOutOfRange, SeverityInfo)
+			f.Message = m.CSFNote + ": the CSF check against free water was not made."
+			f.Measured = m.CSFDWSignalSigmas
+			f.Expected = analysis.DefaultAnalyzeConfig().MeasurableSigmas
+			return f, true
+		}
+		return Finding{}, false
 	}
 	rel := m.CSFADC/th.FreeWaterADC - 1
 	if math.Abs(rel) <= th.CSFTolerance {
@@ -103,10 +131,14 @@ func csfFarFromFreeWater(sa *SeriesAudit, m analysis.Measures, th ADCRangeThresh
 	if rel < 0 && m.HighBTissueSNR < minHighBSNR {
 		cause += "; or, with the high-b signal near the noise floor here (see low-snr), the Rician bias lifts the dark CSF signal at high b and lowers its ADC"
 	}
+	evidence := ""
+	if s := m.CSFDWSignalSigmas; s > 0 {
+		evidence = fmt.Sprintf(" Its diffusion-weighted signal at b = %g is %.1f σ above zero (noise: %s), above the noise floor, so the value is measured, not a lower bound.", m.HighB, s, m.FloorNoise.Method)
+	}
 	f := NewFinding(sa, IDADCOutOfRange, SeverityError)
 	f.Message = fmt.Sprintf("CSF ADC %s is %.0f%% %s free water at 37 °C (%s, Holz 2000; tolerance ±%.0f%%): "+
-		"CSF diffuses almost like free water, so %s.",
-		fmtADC(m.CSFADC), 100*math.Abs(rel), dir, fmtADC(th.FreeWaterADC), 100*th.CSFTolerance, cause)
+		"CSF diffuses almost like free water, so %s.%s",
+		fmtADC(m.CSFADC), 100*math.Abs(rel), dir, fmtADC(th.FreeWaterADC), 100*th.CSFTolerance, cause, evidence)
 	f.Measured = m.CSFADC
 	f.Expected = th.FreeWaterADC
 	return f, true

@@ -199,6 +199,14 @@ type HotspotThresholds struct {
 	// subarachnoid CSF and the outer cortex, where CSF and tissue mix,
 	// are about that thick in an adult brain (common practice).
 	EdgeMM float64 `yaml:"edge_mm"`
+	// MeasurableSigmas is how far above the noise floor, in noise σ of
+	// the DWI (analysis.Measures.FloorNoise), a voxel's DWI and the DWI
+	// its surroundings predict must lie for the voxel to be tested:
+	// below that the DWI cannot show a change (the Rician floor,
+	// Gudbjartsson & Patz, MRM 1995;34:910), and "the DWI did not
+	// change" means nothing. Default 3 (DOMAIN.md: high-b SNR below
+	// about 3 is at the floor).
+	MeasurableSigmas float64 `yaml:"measurable_sigmas"`
 	// WindowMM is the side of the square window the prediction is the
 	// median of, mm. Default 100: three times the half-width of a
 	// wrapped nose or a ghost band of a few centimetres (common
@@ -210,14 +218,15 @@ type HotspotThresholds struct {
 // fields for each reason).
 func DefaultHotspotThresholds() HotspotThresholds {
 	return HotspotThresholds{
-		MinB0Departure: 0.2,
-		NoiseSigmas:    3,
-		MaxDWIShare:    0.15,
-		MinADCShift:    0.25e-3,
-		ErrorADCShift:  0.3e-3,
-		MinAreaMM2:     100,
-		EdgeMM:         6,
-		WindowMM:       100,
+		MinB0Departure:   0.2,
+		NoiseSigmas:      3,
+		MaxDWIShare:      0.15,
+		MinADCShift:      0.25e-3,
+		ErrorADCShift:    0.3e-3,
+		MinAreaMM2:       100,
+		EdgeMM:           6,
+		WindowMM:         100,
+		MeasurableSigmas: 3,
 	}
 }
 
@@ -261,6 +270,9 @@ func (t HotspotThresholds) Validate() error {
 	if !(t.EdgeMM >= 0 && t.EdgeMM <= hotspotMaxEdgeMM) {
 		bad("edge_mm", t.EdgeMM, fmt.Sprintf("0..%d mm", hotspotMaxEdgeMM))
 	}
+	if !(t.MeasurableSigmas >= 0) || !finite(t.MeasurableSigmas) {
+		bad("measurable_sigmas", t.MeasurableSigmas, "a number of noise standard deviations >= 0")
+	}
 	if !(t.WindowMM > 0 && t.WindowMM <= hotspotMaxWindowMM) {
 		bad("window_mm", t.WindowMM, fmt.Sprintf("a width in mm, above 0 and at most %d", hotspotMaxWindowMM))
 	}
@@ -295,6 +307,24 @@ const (
 	// a square) of a DWI-dark voxel are not flagged: the partial-volume
 	// rim around ventricles and sulci.
 	hotspotCSFMarginPixels = 1
+	// hotspotBrainDWIFraction: tissue whose DWI is below this share of
+	// the parenchyma's median DWI is not brain for the edge. 0.3 (tuned
+	// on the real QA heads of docs/calibration.md): parenchyma varies
+	// by less than a factor 2 on the DWI (grey against white matter,
+	// coil shading), CSF at b = 1000 is about a third of white matter
+	// (hotspotDarkDWI) and less at higher b, and the suppressed scalp
+	// and air are near the noise.
+	hotspotBrainDWIFraction = 0.3
+	// hotspotCoreMM: a region is an error only when it is at least
+	// this thick in-plane somewhere (a square of this side, rounded to
+	// whole pixels, at least 3×3, fits inside it on one slice). 9 mm:
+	// twice the cortex's thickness (2.5-4.5 mm, common practice), so
+	// that a ribbon of cortex with the partial volume of its sulci,
+	// which at b ≈ 1500 has the b0-only signature exactly (see
+	// MinADCShift), is a warning at most; the b0 artifacts this rule is
+	// for cover centimetres (see WindowMM), though a weak one may only
+	// pass the tests in a thin band and is then a warning too.
+	hotspotCoreMM = 9
 	// hotspotMaxFindings caps the findings of one series: beyond five
 	// regions the series' b0 is broken throughout, and the last finding
 	// says how many more there were.
@@ -346,6 +376,15 @@ type hotspotRegion struct {
 	b0Ratio, dwiRatio      float64 // medians of b0/b0̂ and dwi/dwî
 	adcInside, adcAround   float64 // medians of ADC and of ADĈ, mm²/s
 	adcShift               float64 // median of ADC − ADĈ
+	// Evidence: the median DWI of the region in noise σ (floorSigma, by
+	// floorMethod), and the candidate voxels of the series left out as
+	// at the noise floor or as CSF.
+	dwiSigmas             float64
+	floorSigma            float64
+	floorMethod           string
+	atFloor, csfDominated int
+	members               []int32 // the region's voxels, until the evidence is taken
+	thin                  bool    // no core hotspotCoreMM wide: a warning at most
 }
 
 // hotspotGeometry is the voxel grid of a result.
@@ -379,6 +418,18 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 	if !res.Measures.HighBNoise.Valid() {
 		sigmaDWI = 0
 	}
+	// The noise floor of the DWI: a voxel whose DWI (or whose predicted
+	// DWI) is within MeasurableSigmas of it cannot show whether the DWI
+	// changed, so it is not tested (see Noise floor).
+	floorSigma := res.Measures.FloorNoise.Sigma
+	if !res.Measures.FloorNoise.Valid() {
+		floorSigma = sigmaDWI
+	}
+	if sigmaDWI == 0 && floorSigma > 0 {
+		sigmaDWI = floorSigma // the DWI's noise from its tissue, when the background is zeroed
+	}
+	floorLevel := float32(th.MeasurableSigmas * floorSigma)
+	parenMax := float32(analysis.DefaultAnalyzeConfig().ParenchymaADCMax)
 	if high.Directions > 1 {
 		// The trace is the geometric mean of the directions: its
 		// relative noise is that of one image over √directions.
@@ -391,10 +442,34 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 	counts := make([]int32, g.plane())
 	cand := make([]bool, n)
 	hotspotRank(cand, res.Mask, g, edge, (2*edge+1)*(2*edge+1), counts)
+	// The brain's edge on the DWI (see Partial volume): the mask is
+	// drawn on the b0 and in a real head reaches the scalp, so its edge
+	// is not the brain's. Tissue bright on the DWI is the brain (CSF,
+	// suppressed scalp fat and air are dark there); eroded by EdgeMM in
+	// the same way, it keeps the cortex, the sulci and the CSF around
+	// the brain out of the test.
+	if level := hotspotBrainLevel(dwi.Data, res.Parenchyma, cand); level > 0 {
+		brain := make([]bool, n)
+		for i, in := range res.Mask {
+			brain[i] = in && dwi.Data[i] >= level
+		}
+		eroded := make([]bool, n)
+		hotspotRank(eroded, brain, g, edge, (2*edge+1)*(2*edge+1), counts)
+		for i := range cand {
+			cand[i] = cand[i] && eroded[i]
+		}
+	}
 	lb0 := make([]float32, n)
 	ldwi := make([]float32, n)
+	var atFloor, csfDominated int
 	for i := range cand {
 		s0, s1, a := b0.Data[i], dwi.Data[i], adcMap.Data[i]
+		if cand[i] && s1 < floorLevel {
+			atFloor++
+		}
+		if cand[i] && a >= parenMax && s1 >= floorLevel {
+			csfDominated++
+		}
 		if !cand[i] || !(s0 > 0) || !(s1 > 0) || a != a || math.IsInf(float64(s0)+float64(s1), 0) {
 			cand[i] = false
 			lb0[i], ldwi[i] = float32(math.NaN()), float32(math.NaN())
@@ -433,11 +508,27 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 			}
 			lb0[i] -= p0
 			ldwi[i] -= p1
-			mark[i] = ldwi[i] < logDark
+			// CSF: dark on the DWI, or with the ADC of CSF (partial
+			// volume that leaves the DWI unchanged at high b, where a
+			// grey-matter and CSF mix looks like a b0-only change).
+			mark[i] = ldwi[i] < logDark || adcMap.Data[i] >= parenMax
 		}
 	}
 	rim := make([]bool, n)
 	hotspotRank(rim, mark, g, hotspotCSFMarginPixels, 1, counts)
+	// The rim reaches the adjacent slices too: partial volume is
+	// through-plane as much as in-plane, and slices are thicker than
+	// pixels are wide.
+	for i := range rim {
+		if mark[i] {
+			if i >= plane {
+				rim[i-plane] = true
+			}
+			if i+plane < n {
+				rim[i+plane] = true
+			}
+		}
+	}
 	beta, delta := lb0, ldwi
 	dADC := func(i int) float32 {
 		return adcMap.Data[i] - p.pADC[(i/plane)*perSlice+int(p.cell[i%plane])]
@@ -470,13 +561,54 @@ func detectHotspots(res *analysis.Result, th HotspotThresholds) []hotspotRegion 
 			if !cand[i] || rim[i] {
 				continue
 			}
+			// Noise floor and CSF (see those sections): the DWI, and
+			// the DWI the surroundings predict, must be measurable,
+			// and the voxel's ADC that of parenchyma, not of CSF.
+			if dwi.Data[i] < floorLevel || float32(math.Exp(float64(p.pDWI[k]))) < floorLevel || adcMap.Data[i] >= parenMax {
+				continue
+			}
 			r := root[nMean[i]]
 			flag[i] = hotspotVoxelTest(float64(beta[i]), float64(delta[i]), float64(dADC(i)), th, minLogUp, minLogDown,
 				float64(noise0[k]/r), float64(noise1[k]/r))
 		}
 	}
 	around := func(i int) float32 { return p.pADC[(i/plane)*perSlice+int(p.cell[i%plane])] }
-	return hotspotRegions(flag, g, beta, delta, dADC, around, adcMap.Data, th, minLogUp, minLogDown)
+	regions := hotspotRegions(flag, g, beta, delta, dADC, around, adcMap.Data, th, minLogUp, minLogDown)
+	for k := range regions {
+		r := &regions[k]
+		r.floorSigma, r.floorMethod = floorSigma, string(res.Measures.FloorNoise.Method)
+		if floorSigma > 0 {
+			r.dwiSigmas = float64(hotspotMedianAt(r.members, dwi.Data)) / floorSigma
+		}
+		r.atFloor, r.csfDominated = atFloor, csfDominated
+		r.members = nil
+	}
+	return regions
+}
+
+// hotspotBrainLevel is the DWI level above which tissue counts as brain
+// for the edge: hotspotBrainDWIFraction of the median DWI of the
+// parenchyma candidates; 0 when there are none.
+func hotspotBrainLevel(dwi []float32, paren, cand []bool) float32 {
+	var s []float32
+	for i, in := range paren {
+		if in && cand[i] && dwi[i] == dwi[i] {
+			s = append(s, dwi[i])
+		}
+	}
+	if len(s) == 0 {
+		return 0
+	}
+	return hotspotBrainDWIFraction * adc.PercentileInPlace(s, 50)
+}
+
+// hotspotMedianAt is the median of v over the voxels idx.
+func hotspotMedianAt(idx []int32, v []float32) float32 {
+	s := make([]float32, 0, len(idx))
+	for _, i := range idx {
+		s = append(s, v[i])
+	}
+	return adc.PercentileInPlace(s, 50)
 }
 
 // hotspotVoxelTest is tests 1-3 of the method on one voxel (or, with
@@ -750,6 +882,8 @@ func hotspotRegions(flag []bool, g hotspotGeometry, beta, delta []float32, dADC,
 	var stack, members []int32
 	var out []hotspotRegion
 	var scratch []float32
+	inReg := make([]bool, len(flag))
+	coreR := max(1, int(math.Round(hotspotCoreMM/2/math.Max(g.rowMM, g.colMM))))
 	for seed, f := range flag {
 		if !f {
 			continue
@@ -793,6 +927,11 @@ func hotspotRegions(flag []bool, g hotspotGeometry, beta, delta []float32, dADC,
 		if area < th.MinAreaMM2 {
 			continue
 		}
+		// Thickness (see Partial volume): a region without a core at
+		// least hotspotCoreMM wide in-plane anywhere is as thin as the
+		// cortical ribbon with the partial volume of its sulci, and is
+		// never more than a warning.
+		thin := !hotspotHasCore(members, inReg, g, coreR)
 		median := func(at func(int) float32) float64 {
 			scratch = scratch[:0]
 			for _, i := range members {
@@ -810,6 +949,7 @@ func hotspotRegions(flag []bool, g hotspotGeometry, beta, delta []float32, dADC,
 			row0: g.rows, col0: g.cols, row1: -1, col1: -1,
 			b0Ratio: math.Exp(be), dwiRatio: math.Exp(de), adcShift: da,
 			adcInside: median(of(adcData)), adcAround: median(around),
+			members: slices.Clone(members), thin: thin,
 		}
 		for _, i := range members {
 			z, rem := int(i)/plane, int(i)%plane
@@ -825,6 +965,42 @@ func hotspotRegions(flag []bool, g hotspotGeometry, beta, delta []float32, dADC,
 	}
 	slices.SortStableFunc(out, func(a, b hotspotRegion) int { return b.voxels - a.voxels })
 	return out
+}
+
+// hotspotHasCore reports whether some voxel of members has its whole
+// in-plane (2r+1)² square in members. inReg is scratch of the volume's
+// size, all false, and is left so.
+func hotspotHasCore(members []int32, inReg []bool, g hotspotGeometry, r int) bool {
+	for _, i := range members {
+		inReg[i] = true
+	}
+	defer func() {
+		for _, i := range members {
+			inReg[i] = false
+		}
+	}()
+	plane := g.plane()
+	for _, m := range members {
+		i := int(m)
+		z, rem := i/plane, i%plane
+		y, x := rem/g.cols, rem%g.cols
+		if y < r || x < r || y+r >= g.rows || x+r >= g.cols {
+			continue
+		}
+		core := true
+		for dy := -r; dy <= r && core; dy++ {
+			for dx := -r; dx <= r; dx++ {
+				if !inReg[z*plane+(y+dy)*g.cols+x+dx] {
+					core = false
+					break
+				}
+			}
+		}
+		if core {
+			return true
+		}
+	}
+	return false
 }
 
 // hotspotFindings turns the regions of one series into findings, at
@@ -849,7 +1025,7 @@ func hotspotFindings(s *Study, sa *SeriesAudit, regions []hotspotRegion, th Hots
 			break
 		}
 		sev := SeverityWarning
-		if math.Abs(r.adcShift) >= th.ErrorADCShift {
+		if math.Abs(r.adcShift) >= th.ErrorADCShift && !r.thin {
 			sev = SeverityError
 		}
 		reg := &Region{
@@ -882,7 +1058,17 @@ func hotspotFindings(s *Study, sa *SeriesAudit, regions []hotspotRegion, th Hots
 		} else {
 			msg.WriteString("Signal lost on the b0 alone (dropout, a spike's stripes) lowers the ADC and can look like restriction; ")
 		}
-		msg.WriteString("a real lesion would change the DWI too. Check the b0 images of these slices.")
+		msg.WriteString("a real lesion would change the DWI too. ")
+		if r.floorSigma > 0 {
+			fmt.Fprintf(&msg, "Evidence: the region's DWI is %.0f σ above zero (noise σ %.3g, %s), so a change of the DWI would show; ", r.dwiSigmas, r.floorSigma, r.floorMethod)
+		} else {
+			msg.WriteString("Evidence: no noise estimate for the DWI, so the relative tests alone decided; ")
+		}
+		fmt.Fprintf(&msg, "voxels of parenchyma only (%d voxels of the series with an ADC of CSF and %d at the DWI noise floor were not tested). ", r.csfDominated, r.atFloor)
+		if r.thin {
+			fmt.Fprintf(&msg, "The region is nowhere %g mm thick in-plane, as thin as the cortical ribbon, whose partial volume with sulcal CSF gives the same signature at high b; so a warning, not an error. ", float64(hotspotCoreMM))
+		}
+		msg.WriteString("Check the b0 images of these slices.")
 		if k == hotspotMaxFindings-1 && len(regions) > hotspotMaxFindings {
 			fmt.Fprintf(&msg, " %d smaller regions of this series are not listed.", len(regions)-hotspotMaxFindings)
 		}

@@ -439,3 +439,54 @@ func BenchmarkHotspot(b *testing.B) {
 		}
 	}
 }
+
+// TestHotspotCoreSitsOnBothSidesOfItsThickness: a region one pixel
+// narrower than the core square has no core (a warning at most, as the
+// cortical ribbon), one as wide has (hotspotCoreMM).
+func TestHotspotCoreSitsOnBothSidesOfItsThickness(t *testing.T) {
+	g := hotspotGeometry{rows: 20, cols: 20, slices: 1, rowMM: 3, colMM: 3}
+	r := max(1, int(math.Round(hotspotCoreMM/2/3.0))) // 2 at 3 mm pixels: a 5×5 core
+	band := func(width int) []int32 {
+		var m []int32
+		for y := 4; y < 4+width; y++ {
+			for x := 2; x < 18; x++ {
+				m = append(m, int32(y*g.cols+x))
+			}
+		}
+		return m
+	}
+	scratch := make([]bool, g.rows*g.cols)
+	if hotspotHasCore(band(2*r), scratch, g, r) {
+		t.Errorf("a band %d pixels wide has a %d×%d core", 2*r, 2*r+1, 2*r+1)
+	}
+	if !hotspotHasCore(band(2*r+1), scratch, g, r) {
+		t.Errorf("a band %d pixels wide has no %d×%d core", 2*r+1, 2*r+1, 2*r+1)
+	}
+	if slices.Contains(scratch, true) {
+		t.Error("scratch not left clear")
+	}
+}
+
+// TestHotspotNoiseFloorSitsOnBothSidesOfItsThreshold: the planted
+// aliasing is found while its DWI is above MeasurableSigmas noise σ,
+// and not once the floor is raised above the region's DWI (issue 15:
+// where the DWI is at the floor, "the DWI did not change" means
+// nothing; Gudbjartsson & Patz, MRM 1995;34:910).
+func TestHotspotNoiseFloorSitsOnBothSidesOfItsThreshold(t *testing.T) {
+	study, _ := hotspotPhantomStudy(t, phantom.Options{Case: phantom.CaseB0ArtifactAliasing, Matrix: 64, Slices: 12, Seed: 1})
+	sa := study.Series[0]
+	th := DefaultHotspotThresholds()
+	regions := detectHotspots(sa.Result, th)
+	if len(regions) == 0 || !(regions[0].dwiSigmas > th.MeasurableSigmas) {
+		t.Fatalf("regions %+v: want the aliasing found above the floor", regions)
+	}
+	d := regions[0].dwiSigmas
+	th.MeasurableSigmas = 0.5 * d
+	if len(detectHotspots(sa.Result, th)) == 0 {
+		t.Errorf("floor at %.1f σ, below the region's DWI (%.1f σ): aliasing lost", th.MeasurableSigmas, d)
+	}
+	th.MeasurableSigmas = 2 * d
+	if rs := detectHotspots(sa.Result, th); len(rs) != 0 {
+		t.Errorf("floor at %.1f σ, above the region's DWI (%.1f σ): still %d regions", th.MeasurableSigmas, d, len(rs))
+	}
+}

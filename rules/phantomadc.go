@@ -3,6 +3,7 @@ package rules
 import (
 	"fmt"
 	"math"
+	"slices"
 )
 
 // phantomADCBias is rule phantom-adc-bias (warning): a series matched
@@ -137,4 +138,33 @@ func centralADC(sa *SeriesAudit, radius float64) (float64, int, *Region) {
 	reg.BoxMM = [4]float64{float64(b[0]) * rs, float64(b[1]) * cs, float64(b[2]) * rs, float64(b[3]) * cs}
 	reg.AreaMM2 = float64(len(vals)) * rs * cs
 	return median(vals), len(vals), reg
+}
+
+// PhantomADCUniformity is the uniformity of the ADC over a phantom's
+// water (the tissue mask of a phantom series): 1 − (P95 − P5)/(P95 + P5)
+// of the voxel ADCs, the integral-uniformity formula NEMA MS 3 applies
+// to signal (from memory, not re-read), with the 5th and 95th
+// percentiles for its minimum and maximum so that a few noisy voxels do
+// not decide it. 1 is perfectly uniform. NaN for a series that matched
+// no phantom profile or was not computed.
+func PhantomADCUniformity(sa *SeriesAudit) float64 {
+	if sa == nil || sa.Phantom == nil || !sa.Computed() || sa.Result.ADC == nil || len(sa.Result.Mask) != len(sa.Result.ADC.Data) {
+		return math.NaN()
+	}
+	var vals []float64
+	for i, in := range sa.Result.Mask {
+		if v := float64(sa.Result.ADC.Data[i]); in && !math.IsNaN(v) {
+			vals = append(vals, v)
+		}
+	}
+	if len(vals) == 0 {
+		return math.NaN()
+	}
+	slices.Sort(vals)
+	at := func(p float64) float64 { return vals[int(math.Round(p/100*float64(len(vals)-1)))] }
+	lo, hi := at(5), at(95)
+	if !(hi+lo > 0) {
+		return math.NaN()
+	}
+	return 1 - (hi-lo)/(hi+lo)
 }

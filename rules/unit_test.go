@@ -321,6 +321,23 @@ func TestADCOutOfRangeOnHandBuiltMeasures(t *testing.T) {
 			[]string{"parenchyma median ADC 1.30e-3 mm²/s"}},
 		{"CSF at 2.1e-3 is far from free water", brain(), func(m *analysis.Measures) { m.CSFADC = 2.1e-3 },
 			[]string{"CSF ADC 2.10e-3 mm²/s is 30% below free water"}},
+		// The noise floor (issue 15; Gudbjartsson & Patz, MRM
+		// 1995;34:910): a CSF ADC left undefined because its signal is
+		// at the floor is an info note; its lower bound above free
+		// water by more than the 15% tolerance is still an error (the
+		// floor only lowers an ADC), and just inside it is a note.
+		{"CSF at the noise floor is a note, not an error", brain(), func(m *analysis.Measures) {
+			m.CSFADC, m.CSFADCLowerBound, m.CSFDWSignalSigmas = math.NaN(), 1.6e-3, 1.2
+			m.CSFNote = "CSF ADC not measurable at b = 1500: signal at the noise floor"
+		}, []string{"CSF ADC not measurable at b = 1500: signal at the noise floor: the CSF check against free water was not made"}},
+		{"a CSF lower bound 16% above free water is an error", brain(), func(m *analysis.Measures) {
+			m.CSFADC, m.CSFADCLowerBound = math.NaN(), 3.0e-3*1.16
+			m.CSFNote = "CSF ADC not measurable at b = 1500: signal at the noise floor"
+		}, []string{"CSF ADC is at least 3.48e-3"}},
+		{"a CSF lower bound 14% above free water is a note", brain(), func(m *analysis.Measures) {
+			m.CSFADC, m.CSFADCLowerBound = math.NaN(), 3.0e-3*1.14
+			m.CSFNote = "CSF ADC not measurable at b = 1500: signal at the noise floor"
+		}, []string{"not measurable"}},
 		{"CSF is not judged when the mask holds too little of it", brain(), func(m *analysis.Measures) { m.CSFADC, m.ParenchymaVoxels = 0.9e-3, 980 }, nil},
 		{"tissue above free water beyond 2% is a warning", brain(), func(m *analysis.Measures) { m.FractionAboveFreeWater = 0.05 },
 			[]string{"5.0% of tissue voxels have an ADC above the free-water ceiling"}},

@@ -55,6 +55,23 @@ type AnalyzeConfig struct {
 	// b = 0 (Eur Radiol 2010, doi 10.1007/s00330-010-2017-y; DOMAIN.md);
 	// a series whose lowest b-value is above that has no b0.
 	ReferenceBMax float64
+	// MeasurableSigmas: a diffusion-weighted signal below this many noise
+	// σ (Measures.FloorNoise) is at the noise floor, and the ADC computed
+	// from it is a lower bound, not a value: magnitude images are biased
+	// up there (Rician bias, Gudbjartsson & Patz, MRM 1995;34:910), so
+	// the signal reads high and the ADC low. Default 3: the SNR below
+	// which DOMAIN.md flags tissue (after Gudbjartsson & Patz's 2-3);
+	// at 3σ the Rician mean sqrt(A²+σ²) is 5% above the signal A.
+	MeasurableSigmas float64
+	// MinCSFShare is the least share of the mask's voxels with an ADC
+	// that must be CSF, told by their bright b0 (csfB0Factor), for a
+	// CSF ADC to exist: the CSF ADC is the CSFPercentile-th percentile
+	// of the mask, which lies in CSF only when CSF is about as large a
+	// share as the percentile leaves above it. Default 0.04 (tuned on
+	// the real heads of docs/calibration.md, which hold 2-6%, and the
+	// synthetic brain, which holds more): below it the percentile lands
+	// in partial volume and reads 1.6-2.1e-3 on clean scans.
+	MinCSFShare float64
 	// Mask tunes the tissue mask (adc.TissueMask).
 	Mask adc.MaskOptions
 }
@@ -67,6 +84,8 @@ func DefaultAnalyzeConfig() AnalyzeConfig {
 		FreeWaterCeiling: 3.4e-3,
 		SignalFloor:      0,
 		ReferenceBMax:    200,
+		MeasurableSigmas: 3,
+		MinCSFShare:      0.04,
 		Mask:             adc.DefaultMaskOptions(),
 	}
 }
@@ -92,6 +111,12 @@ func (c AnalyzeConfig) Validate() error {
 	}
 	if !(c.ReferenceBMax >= 0) || math.IsInf(c.ReferenceBMax, 0) {
 		bad("ReferenceBMax", c.ReferenceBMax, "a b-value >= 0 in s/mm²")
+	}
+	if !(c.MeasurableSigmas >= 0) || math.IsInf(c.MeasurableSigmas, 0) {
+		bad("MeasurableSigmas", c.MeasurableSigmas, "a number of noise σ >= 0")
+	}
+	if !(c.MinCSFShare >= 0 && c.MinCSFShare < 1) {
+		bad("MinCSFShare", c.MinCSFShare, "a share 0 <= s < 1")
 	}
 	if err := c.Mask.Validate(); err != nil {
 		errs = append(errs, fmt.Errorf("%w: Mask: %w", errInvalidConfig, err))
@@ -182,8 +207,32 @@ type Measures struct {
 	// (DOMAIN.md: 0.6-1.1e-3 expected in brain).
 	ParenchymaMedianADC float64
 	// CSFADC is the AnalyzeConfig.CSFPercentile-th percentile of the ADC
-	// inside the mask, mm²/s (DOMAIN.md: about 3e-3 expected).
+	// inside the mask, mm²/s (DOMAIN.md: about 3e-3 expected). It exists
+	// only when the mask holds enough CSF (AnalyzeConfig.MinCSFShare)
+	// and the diffusion-weighted signal of the voxels it rests on (those
+	// at or above the percentile) is measurable: their median at least
+	// AnalyzeConfig.MeasurableSigmas times FloorNoise. Otherwise it is
+	// NaN and CSFNote says why.
 	CSFADC float64
+	// CSFNote says why CSFADC is undefined ("" when it is defined, or
+	// when nothing was computed).
+	CSFNote string
+	// CSFADCLowerBound is the percentile CSFADC would be when the CSF's
+	// diffusion-weighted signal is at the noise floor: the Rician bias
+	// lifts that signal, so the true CSF ADC is at least this (mm²/s).
+	// NaN otherwise.
+	CSFADCLowerBound float64
+	// CSFShare is the share of the mask voxels with an ADC that are CSF
+	// by their b0 (see AnalyzeConfig.MinCSFShare); CSFDWSignalSigmas the median
+	// highest-b trace signal of the voxels at or above the CSF
+	// percentile, in units of FloorNoise.Sigma (NaN without a noise
+	// estimate).
+	CSFShare, CSFDWSignalSigmas float64
+	// FloorNoise is the noise σ the noise floor of the highest-b images
+	// is judged against: HighBNoise when the background gave one, else
+	// an estimate from the tissue of those images (adc.NoiseFromLaplacian),
+	// for scanners that zero the background.
+	FloorNoise adc.NoiseEstimate
 	// FractionAboveFreeWater and FractionNegative are shares of the mask
 	// voxels with a defined ADC: ADC > FreeWaterCeiling, ADC < 0.
 	FractionAboveFreeWater, FractionNegative float64
@@ -307,7 +356,12 @@ func Analyze(s *dwi.Series, cfg AnalyzeConfig) (*Result, error) {
 		v := float64(res.ADC.Data[i])
 		res.Parenchyma[i] = in && v < cfg.ParenchymaADCMax // NaN compares false
 	}
-	res.Measures = measure(res, cfg, noise, highNoise(groups[len(groups)-1], high, rows, cols))
+	hi := highNoise(groups[len(groups)-1], high, rows, cols)
+	floor := hi
+	if !floor.Valid() {
+		floor = tissueNoise(groups[len(groups)-1], high, mask, rows, cols)
+	}
+	res.Measures = measure(res, cfg, noise, hi, floor)
 	return res, nil
 }
 
@@ -316,8 +370,9 @@ func undefinedMeasures() Measures {
 	nan := math.NaN()
 	undefined := adc.NoiseEstimate{Sigma: nan}
 	return Measures{
-		ParenchymaMedianADC: nan, CSFADC: nan, FractionAboveFreeWater: nan, FractionNegative: nan,
-		B0SNR: nan, HighBTissueSNR: nan, Noise: undefined, HighBNoise: undefined, HighB: nan,
+		ParenchymaMedianADC: nan, CSFADC: nan, CSFADCLowerBound: nan, CSFShare: nan, CSFDWSignalSigmas: nan,
+		FractionAboveFreeWater: nan, FractionNegative: nan,
+		B0SNR: nan, HighBTissueSNR: nan, Noise: undefined, HighBNoise: undefined, FloorNoise: undefined, HighB: nan,
 	}
 }
 
@@ -474,10 +529,44 @@ func highNoise(g bGroup, high BImage, rows, cols int) adc.NoiseEstimate {
 	return adc.BackgroundNoiseImages(rows, cols, images...)
 }
 
+// tissueNoiseVolumes caps the directional volumes tissueNoise reads:
+// six give some hundred thousand pixels in a head, far more than the
+// estimate needs, at a fraction of the cost of 80 directions.
+const tissueNoiseVolumes = 6
+
+// tissueNoise estimates the noise of the highest b-value's images from
+// their tissue (adc.NoiseFromLaplacian, mask eroded by the 3×3 the
+// estimator needs): the directional images when there are any, else the
+// trace.
+func tissueNoise(g bGroup, high BImage, mask []bool, rows, cols int) adc.NoiseEstimate {
+	plane := rows * cols
+	var images [][]float32
+	var masks [][]bool
+	add := func(z int, img []float32) {
+		if (z+1)*plane <= len(mask) && len(img) == plane {
+			images, masks = append(images, img), append(masks, mask[z*plane:(z+1)*plane])
+		}
+	}
+	if len(g.directional) == 0 {
+		for z := range high.Trace.Slices {
+			add(z, high.Trace.Slice(z))
+		}
+	} else {
+		for _, v := range g.directional[:min(len(g.directional), tissueNoiseVolumes)] {
+			for z, f := range v.Slices {
+				if f != nil {
+					add(z, f.Pixels)
+				}
+			}
+		}
+	}
+	return adc.NoiseFromLaplacian(rows, cols, images, masks)
+}
+
 // measure computes the Measures of a computed Result.
-func measure(res *Result, cfg AnalyzeConfig, noise, hiNoise adc.NoiseEstimate) Measures {
+func measure(res *Result, cfg AnalyzeConfig, noise, hiNoise, floor adc.NoiseEstimate) Measures {
 	m := undefinedMeasures()
-	m.Noise, m.HighBNoise = noise, hiNoise
+	m.Noise, m.HighBNoise, m.FloorNoise = noise, hiNoise, floor
 	high := res.HighB[len(res.HighB)-1]
 	m.HighB = high.B
 
@@ -505,7 +594,7 @@ func measure(res *Result, cfg AnalyzeConfig, noise, hiNoise adc.NoiseEstimate) M
 	if m.ADCVoxels > 0 {
 		m.FractionAboveFreeWater = float64(above) / float64(m.ADCVoxels)
 		m.FractionNegative = float64(negative) / float64(m.ADCVoxels)
-		m.CSFADC = float64(adc.PercentileInPlace(scratch, cfg.CSFPercentile))
+		csfMeasure(&m, res, cfg, float64(adc.PercentileInPlace(scratch, cfg.CSFPercentile)))
 	}
 
 	gather := func(src []float32) []float32 {
@@ -534,3 +623,68 @@ func measure(res *Result, cfg AnalyzeConfig, noise, hiNoise adc.NoiseEstimate) M
 	}
 	return m
 }
+
+// csfMeasure decides whether the CSF ADC exists (Measures.CSFADC): the
+// mask must hold enough CSF, and the diffusion-weighted signal of the
+// voxels the percentile p rests on must be above the noise floor;
+// otherwise CSFADC is NaN and CSFNote says why.
+func csfMeasure(m *Measures, res *Result, cfg AnalyzeConfig, p float64) {
+	high := res.HighB[len(res.HighB)-1]
+	// CSF is told by its b0, not its ADC (which is what is judged): its
+	// long T2 makes it the brightest tissue of the b0, and a voxel at
+	// csfB0Factor times the parenchyma's median b0 is mostly CSF.
+	var pb []float32
+	for i, in := range res.Parenchyma {
+		if v := res.B0.Data[i]; in && v == v {
+			pb = append(pb, v)
+		}
+	}
+	level := float32(math.Inf(1))
+	if len(pb) > 0 {
+		level = csfB0Factor * adc.PercentileInPlace(pb, 50)
+	}
+	csf := 0
+	var dw []float32
+	for i, in := range res.Mask {
+		v := float64(res.ADC.Data[i])
+		if !in || v != v {
+			continue
+		}
+		if res.B0.Data[i] >= level {
+			csf++
+		}
+		if v >= p {
+			dw = append(dw, high.Trace.Data[i])
+		}
+	}
+	m.CSFShare = float64(csf) / float64(m.ADCVoxels)
+	if m.CSFShare < cfg.MinCSFShare {
+		m.CSFNote = fmt.Sprintf("CSF ADC not measured: %.1f%% of the tissue mask is CSF (b0 at least %g times the parenchyma's), fewer than the %.0f%% its percentile needs to lie in CSF",
+			100*m.CSFShare, csfB0Factor, 100*cfg.MinCSFShare)
+		return
+	}
+	if !m.FloorNoise.Valid() {
+		m.CSFNote = fmt.Sprintf("CSF ADC not measurable at b = %g: no noise estimate (%s), so whether its signal is above the noise floor is unknown", high.B, m.FloorNoise.Method)
+		return
+	}
+	sig := float64(adc.PercentileInPlace(dw, 50)) / m.FloorNoise.Sigma
+	m.CSFDWSignalSigmas = sig
+	if !(sig >= cfg.MeasurableSigmas) {
+		m.CSFNote = fmt.Sprintf("CSF ADC not measurable at b = %g: signal at the noise floor (median CSF signal %.1f σ, below %g σ; Rician bias makes %s mm²/s a lower bound)",
+			high.B, sig, cfg.MeasurableSigmas, fmtADC(p))
+		m.CSFADCLowerBound = p
+		return
+	}
+	m.CSFADC = p
+}
+
+// csfB0Factor: a mask voxel whose b0 is at least this many times the
+// parenchyma's median b0 counts as CSF for MinCSFShare. 2.5: CSF's b0
+// is about three times white matter's at the echo times of DWI, and
+// the synthetic brain's 2000 against 600-800 (common practice; the
+// phantom's values); grey matter (about 1.3 times) and partial volume
+// below three quarters CSF stay under it.
+const csfB0Factor = 2.5
+
+// fmtADC writes an ADC in units of 1e-3 mm²/s.
+func fmtADC(v float64) string { return fmt.Sprintf("%.2fe-3", v*1e3) }

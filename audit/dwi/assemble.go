@@ -150,6 +150,49 @@ func assembleSeries(frames []*Frame, tol Tolerances) (*Series, error) {
 		}
 	}
 	volumes := s.group(placed, acq, slot, tol, false)
+	if off, main := offGridVolumes(volumes, s.Grid, tol); len(off) > 0 {
+		// Place the offset volumes' images on the others' slices (those
+		// beyond the others' coverage are left out) and build the grid
+		// again without their positions, so that an offset is a
+		// geometry mismatch, not missing slices.
+		shift := map[*Frame]float64{}
+		drop := map[*Frame]bool{}
+		for _, o := range off {
+			so := SliceOffset{Volume: o.v.String(), MM: o.mm, Spacing: o.spacing, Tilted: o.tilted}
+			for z := range o.v.Slices {
+				for _, f := range o.v.ImagesAt(z) {
+					p := dot(f.Geometry.Position, s.Normal) - o.mm
+					if math.Abs(p-main[nearest(main, p)]) > tol.SlicePosition {
+						drop[f] = true
+						so.Outside++
+						continue
+					}
+					shift[f] = o.mm
+				}
+			}
+			s.Facts.SliceOffsets = append(s.Facts.SliceOffsets, so)
+		}
+		placed = slices.DeleteFunc(placed, func(f *Frame) bool { return drop[f] })
+		pos = pos[:len(placed)]
+		acq, maps = acq[:0], maps[:0]
+		for i, f := range placed {
+			pos[i] = dot(f.Geometry.Position, s.Normal) - shift[f]
+			if f.Kind == KindAcquired {
+				acq = append(acq, i)
+			} else {
+				maps = append(maps, i)
+			}
+		}
+		slot, grid = cluster1D(pos, func(float64) float64 { return tol.SlicePosition })
+		s.Grid, s.Facts.GridGaps, s.Facts.SliceSpacing = inferGaps(grid, tol)
+		if len(s.Facts.GridGaps) > 0 {
+			for i := range slot {
+				slot[i] = nearest(s.Grid, grid[slot[i]])
+			}
+		}
+		s.Facts.Repeats, s.Facts.Duplicates, s.Facts.UnknownDirections = nil, nil, nil
+		volumes = s.group(placed, acq, slot, tol, false)
+	}
 	s.Maps = s.group(placed, maps, slot, tol, true)
 	s.Volumes = volumes
 
@@ -385,6 +428,9 @@ func nominalValues(bs []float64, slot []int, means []float64, tol Tolerances) []
 func (s *Series) refresh(tol Tolerances) {
 	f := &s.Facts
 	f.BValues, f.Directions, f.SlicesPerVolume, f.MissingSlices, f.GeometryMismatch = nil, nil, nil, nil, nil
+	for _, o := range f.SliceOffsets {
+		f.GeometryMismatch = append(f.GeometryMismatch, o.String())
+	}
 	switch {
 	case len(s.Volumes) > 0:
 		s.Reference = s.Volumes[0].Geometry
@@ -565,6 +611,131 @@ func normalOf(o [6]float64) ([3]float64, bool) {
 	n := [3]float64{r[1]*c[2] - r[2]*c[1], r[2]*c[0] - r[0]*c[2], r[0]*c[1] - r[1]*c[0]}
 	u, ok := unit(n)
 	return [3]float64(u), ok
+}
+
+// offGrid is a volume whose slices lie off the others' grid.
+type offGrid struct {
+	v       *Volume
+	mm      float64 // median offset along the normal
+	spacing float64 // the others' slice spacing
+	tilted  bool
+}
+
+// offGridVolumes finds the acquired volumes whose slice positions lie
+// off the others' by less than one slice spacing: the positions held by
+// most volumes of the highest b-value are the series' own (the DWI is
+// what the ADC is read from), and a volume most of whose slices are
+// farther than tol.SlicePosition from every one of them, all by about
+// the same amount, is offset, by the median of those distances. A
+// volume that is merely missing slices has its slices on the grid and
+// is not one of these.
+//
+// Offsets are found modulo the spacing, then placed where most of the
+// volume's slices meet the others'. It returns the offset volumes and
+// the series' own positions.
+func offGridVolumes(vols []*Volume, grid []float64, tol Tolerances) ([]offGrid, []float64) {
+	if len(vols) < 2 || len(grid) < 2 {
+		return nil, nil
+	}
+	highB := 0.0
+	for _, v := range vols {
+		highB = max(highB, v.BValue)
+	}
+	count := make([]int, len(grid))
+	most := 0
+	for _, v := range vols {
+		if v.BValue != highB {
+			continue
+		}
+		for i, sl := range v.Slices {
+			if sl != nil {
+				count[i]++
+				most = max(most, count[i])
+			}
+		}
+	}
+	var main []float64
+	for i, c := range count {
+		if 2*c > most {
+			main = append(main, grid[i])
+		}
+	}
+	if len(main) == 0 {
+		return nil, nil
+	}
+	spacing := 0.0
+	if len(main) > 1 {
+		steps := make([]float64, len(main)-1)
+		for i := range steps {
+			steps[i] = main[i+1] - main[i]
+		}
+		slices.Sort(steps)
+		spacing = steps[(len(steps)-1)/2]
+	}
+	var refOrient [6]float64
+	for _, v := range vols {
+		if v.BValue == highB {
+			refOrient = firstGeometry(v).Orientation
+			break
+		}
+	}
+	var out []offGrid
+	for _, v := range vols {
+		var d []float64
+		n := 0
+		for i, sl := range v.Slices {
+			if sl == nil {
+				continue
+			}
+			n++
+			off := grid[i] - main[nearest(main, grid[i])]
+			if spacing > 0 && math.Abs(off) > spacing/2+tol.SlicePosition {
+				off -= spacing * math.Round(off/spacing) // beyond the others' coverage
+			}
+			if math.Abs(off) > tol.SlicePosition {
+				d = append(d, off)
+			}
+		}
+		if n == 0 || 2*len(d) <= n {
+			continue
+		}
+		slices.Sort(d)
+		med := d[len(d)/2]
+		// All by about the same amount: a constant offset, not slices
+		// scattered over the grid.
+		if d[len(d)-1]-d[0] > 2*tol.SlicePosition+0.5*math.Abs(med) {
+			continue
+		}
+		// Of the offset and its neighbours one spacing away, the one
+		// that puts most of the volume's slices on the others' (a b0
+		// three quarters of a slice off covers every DWI slice at
+		// +0.75, not all at -0.25).
+		if spacing > 0 {
+			best, bestN := med, -1
+			for _, c := range []float64{med, med - spacing, med + spacing} {
+				on := 0
+				for i, sl := range v.Slices {
+					if sl != nil {
+						p := grid[i] - c
+						if math.Abs(p-main[nearest(main, p)]) <= tol.SlicePosition {
+							on++
+						}
+					}
+				}
+				if on > bestN || (on == bestN && math.Abs(c) < math.Abs(best)) {
+					best, bestN = c, on
+				}
+			}
+			med = best
+		}
+		tilted := false
+		o := firstGeometry(v).Orientation
+		for i := range 6 {
+			tilted = tilted || math.Abs(o[i]-refOrient[i]) > tol.Orientation
+		}
+		out = append(out, offGrid{v: v, mm: med, spacing: spacing, tilted: tilted})
+	}
+	return out, main
 }
 
 // cluster1D groups values whose sorted neighbours are at most within(a)

@@ -5,7 +5,11 @@ package dwi
 // and what the computation (package audit/adc) and the rules read. Keep
 // it free of I/O.
 
-import "strconv"
+import (
+	"fmt"
+	"math"
+	"strconv"
+)
 
 // Directionality is Diffusion Directionality (0018,9075), PS3.3
 // C.8.13.5.9.
@@ -283,6 +287,37 @@ type Volume struct {
 	Geometry Geometry
 }
 
+// SliceOffset is a volume whose slices lie off the series' grid along
+// the slice normal.
+type SliceOffset struct {
+	Volume string  // the volume, as Volume.String names it
+	MM     float64 // its median offset along the normal, mm (signed)
+	// Spacing is the slice spacing of the other volumes, mm (0 when they
+	// have one slice).
+	Spacing float64
+	// Tilted: the volume's orientation differs from the others' beyond
+	// tolerance, which is what moves its slices.
+	Tilted bool
+	// Outside counts its images left out because, placed on the others'
+	// slices, they fall beyond the others' coverage.
+	Outside int
+}
+
+// String describes the offset for a finding.
+func (o SliceOffset) String() string {
+	s := fmt.Sprintf("%s: slice positions %+.2f mm along the normal from the other volumes'", o.Volume, o.MM)
+	if o.Spacing > 0 {
+		s += fmt.Sprintf(" (%.2f of the %.2f mm slice spacing)", math.Abs(o.MM)/o.Spacing, o.Spacing)
+	}
+	if o.Tilted {
+		s += ", the volume tilted against them"
+	}
+	if o.Outside > 0 {
+		s += fmt.Sprintf("; %d of its images beyond their coverage left out", o.Outside)
+	}
+	return s
+}
+
 // ImagesAt is the acquired images behind slice i: Images[i], or
 // Slices[i] alone when the volume carries no Images.
 func (v *Volume) ImagesAt(i int) []*Frame {
@@ -336,7 +371,13 @@ type Facts struct {
 	Encapsulated      bool     // some image has compressed pixel data
 	InconsistentB     []string // images whose b-value disagrees with their volume beyond tolerance, or with their b-matrix trace
 	GeometryMismatch  []string // volumes whose geometry differs from the reference volume beyond tolerance
-	B0FromSeries      string   // when the b0 volume came from another series of the study
+	// SliceOffsets are the volumes whose slice positions lie off the
+	// other volumes' by a fraction of the slice spacing (a quarter, a
+	// half), or off them because the volume is tilted: placed on the
+	// nearest slice of the others so that they are not taken for
+	// missing slices, and listed in GeometryMismatch too.
+	SliceOffsets []SliceOffset
+	B0FromSeries string // when the b0 volume came from another series of the study
 
 	// NoGeometry lists images without usable Image Position and
 	// Orientation (Patient) (PS3.3 C.7.6.2): they are in no volume, and

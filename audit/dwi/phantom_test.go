@@ -189,3 +189,101 @@ func subset(a, b []float64) bool {
 	}
 	return true
 }
+
+// TestOffsetB0InTheSeriesIsAGeometryMismatch is issue 15's held-out
+// case: the b0 volume of a DWI series offset along the normal by a
+// fraction of the slice spacing. The truth is the phantom's
+// (Truth.B0SliceZ − Truth.SliceZ); the assembly must place the b0 on the
+// DWI's slices, report the offset in mm, and find no missing slice.
+func TestOffsetB0InTheSeriesIsAGeometryMismatch(t *testing.T) {
+	for _, shift := range []float64{0.25, 0.5, -0.4, 0.1, 0.75} {
+		for _, multi := range []bool{false, true} {
+			t.Run(fmt.Sprintf("a b0 %+g of a slice off, multi-frame %v, is an offset of that many mm and no missing slice", shift, multi), func(t *testing.T) {
+				opt := phantom.Options{Case: phantom.CaseSlicePositions, B0InSeries: true, B0SliceShift: shift, Matrix: 16, Slices: 6, MultiFrame: multi}
+				ps, st := phantomStudy(t, opt)
+				if len(st.Series) != 1 {
+					t.Fatalf("%d series, want the DWI series alone", len(st.Series))
+				}
+				s := st.Series[0]
+				want := ps.Truth.B0SliceZ[0] - ps.Truth.SliceZ[0]
+				if len(s.Grid) != opt.Slices || len(s.Facts.MissingSlices) != 0 || len(s.Facts.GridGaps) != 0 {
+					t.Errorf("grid %v, missing %v, gaps %v: want the %d DWI positions and nothing missing", s.Grid, s.Facts.MissingSlices, s.Facts.GridGaps, opt.Slices)
+				}
+				if len(s.Facts.SliceOffsets) != 1 || math.Abs(s.Facts.SliceOffsets[0].MM-want) > 0.01 || len(s.Facts.GeometryMismatch) == 0 {
+					t.Fatalf("offsets %+v, mismatch %v: want the b0 %+.2f mm off", s.Facts.SliceOffsets, s.Facts.GeometryMismatch, want)
+				}
+				if o := s.Facts.SliceOffsets[0]; o.Volume != "b=0 isotropic" && o.Volume != "b=0 without direction" {
+					t.Errorf("offset volume %q, want the b0", o.Volume)
+				}
+			})
+		}
+	}
+	t.Run("a tilted b0 is an offset with the tilt named", func(t *testing.T) {
+		ps, err := phantom.Write(filepath.Join(t.TempDir(), "study"), phantom.Options{Matrix: 16, Slices: 6})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var frames []Frame
+		for _, p := range ps.Files {
+			fs, err := ExtractFileForTest(p)
+			if err != nil {
+				t.Fatal(err)
+			}
+			frames = append(frames, fs...)
+		}
+		// Tilt every b0 image by 3 degrees about the row direction: the
+		// column vector leans into the normal, and the image corner (the
+		// Image Position) moves along the normal by the tilt's lever.
+		const deg = 3.0
+		c, sn := math.Cos(deg*math.Pi/180), math.Sin(deg*math.Pi/180)
+		tilted := 0
+		for i := range frames {
+			f := &frames[i]
+			if f.HasBValue && f.BValue == 0 {
+				o := f.Geometry.Orientation
+				row := [3]float64{o[0], o[1], o[2]}
+				col := [3]float64{o[3], o[4], o[5]}
+				n := [3]float64{row[1]*col[2] - row[2]*col[1], row[2]*col[0] - row[0]*col[2], row[0]*col[1] - row[1]*col[0]}
+				for k := range 3 {
+					f.Geometry.Orientation[3+k] = c*col[k] + sn*n[k]
+				}
+				// A lever of half the field of view moves the corner by
+				// its sine along the normal; about 1.1 mm at 21 mm.
+				for k := range 3 {
+					f.Geometry.Position[k] += 1.1 * n[k]
+				}
+				tilted++
+			}
+		}
+		if tilted == 0 {
+			t.Fatal("no b0 image to tilt")
+		}
+		st, err := AssembleStudy(frames, DefaultTolerances())
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := st.Series[0]
+		if len(s.Facts.MissingSlices) != 0 || len(s.Facts.SliceOffsets) != 1 || !s.Facts.SliceOffsets[0].Tilted {
+			t.Errorf("missing %v, offsets %+v: want one tilted offset volume and nothing missing", s.Facts.MissingSlices, s.Facts.SliceOffsets)
+		}
+	})
+}
+
+// TestSliceOffsetSitsOnBothSidesOfTheTolerance: a b0 0.05 mm off (half
+// of Tolerances.SlicePosition, 0.1 mm) is the same slices; 0.25 mm off
+// (2.5 times it) is an offset volume.
+func TestSliceOffsetSitsOnBothSidesOfTheTolerance(t *testing.T) {
+	for _, c := range []struct {
+		mm     float64
+		offset bool
+	}{{0.05, false}, {0.25, true}} {
+		t.Run(fmt.Sprintf("a b0 %.2f mm off is an offset: %v", c.mm, c.offset), func(t *testing.T) {
+			// The phantom's slices are 5 mm apart.
+			_, st := phantomStudy(t, phantom.Options{Case: phantom.CaseSlicePositions, B0InSeries: true, B0SliceShift: c.mm / 5, Matrix: 16, Slices: 6})
+			s := st.Series[0]
+			if got := len(s.Facts.SliceOffsets) == 1; got != c.offset || len(s.Facts.MissingSlices) != 0 {
+				t.Errorf("offsets %+v, missing %v", s.Facts.SliceOffsets, s.Facts.MissingSlices)
+			}
+		})
+	}
+}

@@ -1,6 +1,7 @@
 package phantom
 
 import (
+	"cmp"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -181,7 +182,7 @@ func plan(o Options) *acquisition {
 		applied[i] *= o.AppliedBScale
 	}
 	b0Role := RoleDWI
-	if o.B0Series || o.Case == CaseSlicePositions {
+	if o.B0Series || (o.Case == CaseSlicePositions && !o.B0InSeries) {
 		b0Role = RoleB0
 	}
 	dirs := directionSet(o.Directions)
@@ -194,7 +195,7 @@ func plan(o Options) *acquisition {
 		if header[i] == 0 {
 			v := newVol(volume{kind: volB0, role: b0Role, bIndex: i, bHeader: 0, bApplied: applied[i]})
 			if o.Case == CaseSlicePositions {
-				v.zShift = sliceThicknessMM / 2
+				v.zShift = cmp.Or(o.B0SliceShift, 0.5) * sliceThicknessMM
 			}
 			continue
 		}
@@ -502,7 +503,11 @@ func (a *acquisition) plant() {
 		d.Slices = missingSlices(a.slices)
 		d.Detail = fmt.Sprintf("slices %v missing from b = %g direction %v", d.Slices, t.HeaderB[len(t.HeaderB)-1], directionSet(o.Directions)[0])
 	case CaseSlicePositions:
-		d.Detail = fmt.Sprintf("b0 series slice positions shifted %+g mm along the slice normal", sliceThicknessMM/2)
+		where := "b0 series"
+		if a.opt.B0InSeries {
+			where = "b0 volume of the DWI series,"
+		}
+		d.Detail = fmt.Sprintf("%s slice positions shifted %+g mm along the slice normal", where, cmp.Or(a.opt.B0SliceShift, 0.5)*sliceThicknessMM)
 	case CaseScannerADCScaled:
 		d.Detail = fmt.Sprintf("ADC map Real World Value Mapping slope %g mm2/s, should be %g", adcUnit*misscaleFactor, adcUnit)
 	case CaseLowSNR:

@@ -145,6 +145,17 @@ type Options struct {
 	// about 1.67; dropout dropoutFactor, 0.6). Other cases refuse a
 	// non-zero value.
 	B0ArtifactK float64
+	// B0SliceShift is, for the slice-positions-differ case, the offset
+	// of the b0 slices along the slice normal as a fraction of the slice
+	// spacing: 0.25 puts them a quarter slice off the DWI's. Zero means
+	// 0.5. Other cases refuse a non-zero value; |shift| must be below 1
+	// (a whole slice or more is other coverage, not an offset).
+	B0SliceShift float64
+	// B0InSeries keeps the offset b0 of the slice-positions-differ case
+	// inside the DWI series instead of in a series of its own, so that
+	// the assembly of one series must tell an offset volume from missing
+	// slices. Other cases refuse it.
+	B0InSeries bool
 	// Anisotropic gives white matter a diagonal tensor (wmAxialD along x,
 	// wmRadialD along y and z, mean ADCWhiteMatter) instead of an
 	// isotropic ADC, so that each direction differs and only the trace
@@ -240,6 +251,12 @@ func (o Options) withDefaults() (Options, error) {
 		} else if i > 0 && !(b > o.BValues[i-1]) {
 			bad("BValues must ascend without repeats, got %v", o.BValues)
 		}
+	}
+	if o.Case != CaseSlicePositions && (o.B0SliceShift != 0 || o.B0InSeries) {
+		bad("B0SliceShift %v and B0InSeries %v apply only to the case %s", o.B0SliceShift, o.B0InSeries, CaseSlicePositions)
+	}
+	if !(math.Abs(o.B0SliceShift) < 1) {
+		bad("B0SliceShift %v, want a fraction of the slice spacing, |shift| < 1", o.B0SliceShift)
 	}
 	switch k := o.B0ArtifactK; {
 	case k == 0:

@@ -9,21 +9,30 @@ import (
 // ratio, shares as fractions; a nil pointer is a measure that is
 // undefined (not computed, or not finite).
 type Measures struct {
-	SeriesNumber           int       `json:"series_number"`
-	SeriesDescription      string    `json:"series_description"`
-	Protocol               string    `json:"protocol"` // the protocol or phantom profile matched; "" when none
-	BValues                []float64 `json:"bvalues"`
-	TissueADCMedian        *float64  `json:"tissue_adc_median"`
-	CSFADC                 *float64  `json:"csf_adc"`
-	B0SNR                  *float64  `json:"b0_snr"`
-	HighBTissueSNR         *float64  `json:"high_b_tissue_snr"`
-	FractionAboveFreeWater *float64  `json:"fraction_above_free_water"`
-	FractionNegative       *float64  `json:"fraction_negative"`
-	CannotCompute          string    `json:"cannot_compute,omitempty"`
+	SeriesNumber      int       `json:"series_number"`
+	SeriesDescription string    `json:"series_description"`
+	Protocol          string    `json:"protocol"` // the protocol or phantom profile matched; "" when none
+	BValues           []float64 `json:"bvalues"`
+	// TissueADCMedian and CSFADC are tissue measures: nil for a phantom
+	// series (its measures are the Phantom ones) and CSFADC nil where
+	// the series has too little CSF or its CSF signal is at the noise
+	// floor, CSFADCNote saying which.
+	TissueADCMedian        *float64 `json:"tissue_adc_median"`
+	CSFADC                 *float64 `json:"csf_adc"`
+	CSFADCNote             string   `json:"csf_adc_note,omitempty"`
+	B0SNR                  *float64 `json:"b0_snr"`
+	HighBTissueSNR         *float64 `json:"high_b_tissue_snr"`
+	FractionAboveFreeWater *float64 `json:"fraction_above_free_water"`
+	FractionNegative       *float64 `json:"fraction_negative"`
+	CannotCompute          string   `json:"cannot_compute,omitempty"`
 	// PhantomADC is the central-region ADC of a phantom series and
 	// PhantomExpectedADC its profile's value (mm²/s); absent otherwise.
 	PhantomADC         *float64 `json:"phantom_adc,omitempty"`
 	PhantomExpectedADC *float64 `json:"phantom_expected_adc,omitempty"`
+	// PhantomUniformity is the ADC uniformity of a phantom's water
+	// (rules.PhantomADCUniformity, 1 perfectly uniform); absent
+	// otherwise.
+	PhantomUniformity *float64 `json:"phantom_uniformity,omitempty"`
 	// Volumes is the series' gradient table; absent in audits stored
 	// before it was kept.
 	Volumes []Volume `json:"volumes,omitempty"`

@@ -63,6 +63,15 @@ type CheckFinding struct {
 	Expected  any    `json:"expected"`
 }
 
+// tissueOrNaN is a tissue measure of s, NaN (null, "—") for a phantom
+// series: its mask is water, and its measures are the phantom's.
+func tissueOrNaN(s audit.SeriesReport, v float64) float64 {
+	if s.IsPhantom() {
+		return math.NaN()
+	}
+	return v
+}
+
 // CheckBody turns a report into the JSON body.
 func CheckBody(rep *audit.Report) CheckResponse {
 	out := CheckResponse{Series: []CheckSeries{}, Findings: []CheckFinding{}}
@@ -77,8 +86,8 @@ func CheckBody(rep *audit.Report) CheckResponse {
 			BValues: bv,
 			Volumes: volumesOrEmpty(audit.VolumeRecords(s.Volumes)),
 			Measures: CheckMeasures{
-				TissueADCMedian: finite(s.Measures.ParenchymaMedianADC),
-				CSFADC:          finite(s.Measures.CSFADC),
+				TissueADCMedian: finite(tissueOrNaN(s, s.Measures.ParenchymaMedianADC)),
+				CSFADC:          finite(tissueOrNaN(s, s.Measures.CSFADC)),
 				B0SNR:           finite(s.Measures.B0SNR),
 			},
 		})
@@ -166,7 +175,7 @@ func PrintCheck(w io.Writer, rep *audit.Report) {
 		for ; i < len(rep.Series) && rep.Series[i].StudyUID == study; i++ {
 			s := rep.Series[i]
 			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", s.SeriesNumber, orDash(s.SeriesDescription), orDash(s.Scanner),
-				orDash(s.Protocol), bvalueList(s.BValues), adcText(s.Measures.ParenchymaMedianADC), adcText(s.Measures.CSFADC),
+				orDash(s.Protocol), bvalueList(s.BValues), adcText(tissueOrNaN(s, s.Measures.ParenchymaMedianADC)), adcText(tissueOrNaN(s, s.Measures.CSFADC)),
 				numberText(s.Measures.B0SNR, 1), noteText(s.CannotCompute))
 		}
 		tw.Flush()

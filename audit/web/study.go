@@ -199,17 +199,26 @@ func (h *pagesHandler) fillSeries(sv *seriesView, findingsJSON, measuresJSON jso
 		}
 		sv.Volumes = append(sv.Volumes, vv)
 	}
-	sv.Measures = []measureView{
-		{"Parenchyma median ADC", formatADC(m.TissueADCMedian)},
-		{"CSF ADC", formatADC(m.CSFADC)},
-		{"b0 SNR", formatNumber(m.B0SNR, 1)},
-		{"High-b tissue SNR", formatNumber(m.HighBTissueSNR, 1)},
-	}
 	if m.PhantomADC != nil || m.PhantomExpectedADC != nil {
-		sv.Measures = append(sv.Measures,
-			measureView{"Phantom central ADC", formatADC(m.PhantomADC)},
-			measureView{"Phantom expected ADC", formatADC(m.PhantomExpectedADC)})
+		// A phantom is water, not tissue: its own measures only.
+		sv.Measures = []measureView{
+			{"Phantom central ADC", formatADC(m.PhantomADC)},
+			{"Phantom expected ADC", formatADC(m.PhantomExpectedADC)},
+			{"Phantom ADC uniformity", formatNumber(m.PhantomUniformity, 3)},
+		}
+	} else {
+		csf := formatADC(m.CSFADC)
+		if m.CSFADC == nil && m.CSFADCNote != "" {
+			csf += " (" + m.CSFADCNote + ")"
+		}
+		sv.Measures = []measureView{
+			{"Parenchyma median ADC", formatADC(m.TissueADCMedian)},
+			{"CSF ADC", csf},
+		}
 	}
+	sv.Measures = append(sv.Measures,
+		measureView{"b0 SNR", formatNumber(m.B0SNR, 1)},
+		measureView{"High-b tissue SNR", formatNumber(m.HighBTissueSNR, 1)})
 	if m.CannotCompute != "" {
 		sv.NotComputed = m.CannotCompute
 		sv.PreviewNote = "No preview: the maps could not be computed."
