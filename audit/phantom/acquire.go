@@ -120,8 +120,20 @@ type acquisition struct {
 }
 
 // directionSet is the gradient scheme of n directions (patient axes).
+// 30 is a DTI scheme: points of a golden-angle spiral on the upper
+// half-sphere (common practice for spreading directions evenly; any
+// distinct unit vectors serve the phantom).
 func directionSet(n int) [][3]float64 {
 	switch n {
+	case ManyDirs:
+		out := make([][3]float64, n)
+		golden := math.Pi * (3 - math.Sqrt(5))
+		for i := range out {
+			z := 1 - (float64(i)+0.5)/float64(n)
+			r := math.Sqrt(1 - z*z)
+			out[i] = [3]float64{r * math.Cos(golden*float64(i)), r * math.Sin(golden*float64(i)), z}
+		}
+		return out
 	case 1:
 		return [][3]float64{{0, 0, 1}}
 	case 6:

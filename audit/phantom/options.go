@@ -29,6 +29,9 @@ const (
 	DefaultSNR    = 60.0 // b0 SNR in white matter; a 1.5 T brain DWI b0 is of this order (common practice)
 	LowSNR        = 4.0  // the low-snr case: near the Rician floor at b = 1000 (DOMAIN.md: flag below about 3)
 	DefaultDirs   = 3
+	// ManyDirs is the largest direction scheme: a 30-direction DTI
+	// acquisition, common in clinical tensor imaging (common practice).
+	ManyDirs = 30
 )
 
 // Limits on Options, each with its reason.
@@ -127,7 +130,8 @@ type Options struct {
 	BValues []float64
 	// Directions is the number of gradient directions per non-zero
 	// b-value: 1 (z), 3 (x, y, z; the default) or 6 (the six (+-1,+-1,0)
-	// permutations, normalised).
+	// permutations, normalised) or ManyDirs (a DTI scheme spread over the
+	// half-sphere).
 	Directions int
 	// OmitTrace leaves out the scanner's isotropic trace image per
 	// non-zero b-value, which is written by default.
@@ -270,8 +274,8 @@ func (o Options) withDefaults() (Options, error) {
 	if !(o.AppliedBScale >= minBScale && o.AppliedBScale <= maxBScale) { // NaN too
 		bad("AppliedBScale %v, want %g..%g", o.AppliedBScale, minBScale, maxBScale)
 	}
-	if o.Directions != 1 && o.Directions != 3 && o.Directions != 6 {
-		bad("Directions %d, want 1, 3 or 6", o.Directions)
+	if o.Directions != 1 && o.Directions != 3 && o.Directions != 6 && o.Directions != ManyDirs {
+		bad("Directions %d, want 1, 3, 6 or %d", o.Directions, ManyDirs)
 	}
 	if o.TransferSyntax != ExplicitVRLittleEndian && o.TransferSyntax != ImplicitVRLittleEndian {
 		bad("TransferSyntax %q, want %s or %s", o.TransferSyntax, ExplicitVRLittleEndian, ImplicitVRLittleEndian)

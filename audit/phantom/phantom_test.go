@@ -499,3 +499,32 @@ func TestPhantomTissueADCIsRecoveredAtSNR50(t *testing.T) {
 		})
 	}
 }
+
+// TestManyDirections checks the 30-direction scheme: unit vectors, no two
+// alike or opposite (within 1 degree), and a series with one image per
+// direction and slice plus b0 and trace.
+func TestManyDirections(t *testing.T) {
+	dirs := directionSet(ManyDirs)
+	if len(dirs) != ManyDirs {
+		t.Fatalf("%d directions, want %d", len(dirs), ManyDirs)
+	}
+	for i, a := range dirs {
+		if n := math.Sqrt(a[0]*a[0] + a[1]*a[1] + a[2]*a[2]); math.Abs(n-1) > 1e-12 {
+			t.Errorf("direction %d %v has norm %v", i, a, n)
+		}
+		for j := i + 1; j < len(dirs); j++ {
+			b := dirs[j]
+			if c := math.Abs(a[0]*b[0] + a[1]*b[1] + a[2]*b[2]); c > math.Cos(math.Pi/180) {
+				t.Errorf("directions %d and %d within 1 degree: %v %v", i, j, a, b)
+			}
+		}
+	}
+	dir := t.TempDir()
+	st, err := Write(dir, Options{Matrix: 16, Slices: 2, Directions: ManyDirs, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := 2 * (1 + ManyDirs + 1); len(st.Files) != want {
+		t.Fatalf("%d files, want %d (2 slices x (b0 + %d directions + trace))", len(st.Files), want, ManyDirs)
+	}
+}

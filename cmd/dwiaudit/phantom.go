@@ -21,6 +21,7 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 	slices := fs.Int("slices", phantom.DefaultSlices, fmt.Sprintf("slices (1..%d)", phantom.MaxSlices))
 	seed := fs.Int64("seed", 1, "seed of the UIDs and the noise; the same seed writes the same bytes")
 	multi := fs.Bool("multiframe", false, "write Enhanced MR Image Storage multi-frame instances instead of one classic MR image per file")
+	dirs := fs.Int("directions", phantom.DefaultDirs, fmt.Sprintf("gradient directions per non-zero b-value: 1, 3, 6 or %d", phantom.ManyDirs))
 	snr := fs.Float64("snr", 0, "b0 SNR in white matter (0: the case's default, 60, or 4 for low-snr)")
 	station := fs.String("station", "", "station name of the invented scanner: "+strings.Join(stations(), ", ")+" (default the first)")
 	list := fs.Bool("list", false, "print the cases with a description and exit")
@@ -40,7 +41,7 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 		fs.Usage()
 		return exitUsage
 	}
-	opt := phantom.Options{Case: phantom.Case(*name), Matrix: *matrix, Slices: *slices, Seed: *seed, MultiFrame: *multi, SNR: *snr}
+	opt := phantom.Options{Case: phantom.Case(*name), Matrix: *matrix, Slices: *slices, Seed: *seed, MultiFrame: *multi, SNR: *snr, Directions: *dirs}
 	if *station != "" {
 		for _, s := range phantom.Scanners() {
 			if s.Station == *station {
