@@ -112,7 +112,13 @@ type Options struct {
 	Matrix     int   // rows = columns; DefaultMatrix when zero
 	Slices     int   // DefaultSlices when zero
 	Seed       int64 // fixes every UID and every noise sample
-	MultiFrame bool  // Enhanced MR Image Storage instead of classic MR Image Storage
+	MultiFrame bool  // Enhanced MR Image Storage instead of classic MR Image Storage (LayoutEnhanced)
+
+	// Layout is how the diffusion encoding is written (see Layouts):
+	// LayoutStandard when empty, or LayoutEnhanced when MultiFrame is set.
+	// LayoutEnhanced sets MultiFrame; the makers' layouts are classic
+	// images and refuse MultiFrame.
+	Layout Layout
 
 	// SNR is the b0 signal-to-noise ratio of white matter (of the water for
 	// the ice-water phantom): the noise standard deviation on each of the
@@ -176,6 +182,16 @@ func (o Options) withDefaults() (Options, error) {
 	}
 	if !o.Case.Valid() {
 		return o, fmt.Errorf("%w %q (see Cases)", ErrUnknownCase, o.Case)
+	}
+	switch {
+	case o.Layout == "" && o.MultiFrame:
+		o.Layout = LayoutEnhanced
+	case o.Layout == "":
+		o.Layout = LayoutStandard
+	case !o.Layout.Valid():
+		return o, fmt.Errorf("%w %q (see Layouts)", ErrUnknownLayout, o.Layout)
+	case o.Layout == LayoutEnhanced:
+		o.MultiFrame = true
 	}
 	if o.Matrix == 0 {
 		o.Matrix = DefaultMatrix
@@ -259,6 +275,9 @@ func (o Options) withDefaults() (Options, error) {
 	if o.TransferSyntax != ExplicitVRLittleEndian && o.TransferSyntax != ImplicitVRLittleEndian {
 		bad("TransferSyntax %q, want %s or %s", o.TransferSyntax, ExplicitVRLittleEndian, ImplicitVRLittleEndian)
 	}
+	if o.MultiFrame && o.Layout.maker() {
+		bad("MultiFrame with layout %s, which writes classic MR images", o.Layout)
+	}
 	if len(o.Scanner.Station) > maxSH {
 		bad("Scanner.Station %q longer than %d characters", o.Scanner.Station, maxSH)
 	}
@@ -293,6 +312,8 @@ func (o Options) withDefaults() (Options, error) {
 		bad("case %s needs at least two b-values", o.Case)
 	case o.Case == CaseMissingSlices && o.Slices < 3:
 		bad("case %s needs at least 3 slices", o.Case)
+	case o.Case == CaseMissingSlices && o.Layout == LayoutSiemensMosaic:
+		bad("case %s cannot be written as layout %s: a mosaic holds every slice of its volume", o.Case, o.Layout)
 	}
 	if len(errs) > 0 {
 		return o, sortedJoin(errs)
