@@ -231,6 +231,13 @@ func TestPhantomLayouts(t *testing.T) {
 			for _, c := range layoutCases() {
 				files = append(files, studies[l][c].Files...)
 			}
+			// And in Implicit VR Little Endian, where the private
+			// elements travel without their VR (PS3.5 7.1.3).
+			st, err := Write(filepath.Join(t.TempDir(), string(l)), Options{Case: CaseScannerADCCorrect, Layout: l, Matrix: 16, Slices: 3, Seed: 7, TransferSyntax: ImplicitVRLittleEndian})
+			if err != nil {
+				t.Fatal(err)
+			}
+			files = append(files, st.Files...)
 		}
 		dciodvfyFiles(t, files, dciodvfyLayoutWarnings)
 	})
