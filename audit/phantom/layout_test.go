@@ -15,9 +15,12 @@ import (
 )
 
 // layoutCases are the cases every maker's layout is checked on: the
-// clean study, one with the scanner's ADC map (a derived series), and one
-// with the b0 in a series of its own, shifted half a slice.
-func layoutCases() []Case { return []Case{CaseClean, CaseScannerADCCorrect, CaseSlicePositions} }
+// clean study, one with the scanner's ADC map (a derived series), one
+// with the b0 in a series of its own, shifted half a slice, and one whose
+// high b-value is 800, not 1000.
+func layoutCases() []Case {
+	return []Case{CaseClean, CaseScannerADCCorrect, CaseSlicePositions, CaseBValueSetDiffers}
+}
 
 // makerLayouts is Layouts without standard and enhanced.
 func makerLayouts() []Layout {
