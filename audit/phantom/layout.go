@@ -10,8 +10,12 @@ package phantom
 // arrangement differ.
 //
 // The private blocks carry the makers' own private creator strings
-// (PS3.5 7.8.1), because a reader finds a block by its creator; the
-// scanner itself stays invented (Manufacturer "Synthetic").
+// (PS3.5 7.8.1), because a reader finds a block by its creator, and
+// Manufacturer (0008,0070) is the maker's, as its files carry it
+// (Layout.manufacturer), because readers select a maker's elements by
+// the manufacturer too (and Canon's layout has no private block to tell
+// it by). Everything else about the scanner stays invented: institution,
+// station, model, serial number, software.
 type Layout string
 
 // The layouts.
@@ -64,7 +68,7 @@ func layoutTable() []layoutInfo {
 		{LayoutSiemensMosaic, "Siemens mosaic: each volume's slices tiled into one image, CSA header (0029,xx10) and (0019,xx0C/0D/0E)"},
 		{LayoutGE, "GE: b-value in (0043,xx39) with a 10^9 offset, gradient in (0019,xxBB/BC/BD), no standard attributes"},
 		{LayoutPhilips, "Philips: (2001,xx03) b-value, (2001,xx04) direction label, (2005,xxB0/B1/B2) gradient, trace labelled I"},
-		{LayoutCanon, "Canon classic: (0018,9087) and the gradient only on weighted images, b0 without any b-value, Image Comments"},
+		{LayoutCanon, "Canon classic: (0018,9087) and the gradient only on weighted images, b0 without a b-value, Image Comments b=..."},
 		{LayoutUIH, "UIH: b-value (0065,xx09/0A) and gradient (0065,xx37) in private group 0065, no standard attributes"},
 	}
 }
@@ -101,6 +105,25 @@ func (l Layout) Description() string {
 }
 
 func (l Layout) String() string { return string(l) }
+
+// manufacturer is Manufacturer (0008,0070) as the maker's scanners write
+// it (from memory), "" for standard and enhanced, which keep the
+// invented scanner's.
+func (l Layout) manufacturer() string {
+	switch l {
+	case LayoutSiemensMosaic:
+		return "SIEMENS"
+	case LayoutGE:
+		return "GE MEDICAL SYSTEMS"
+	case LayoutPhilips:
+		return "Philips Medical Systems"
+	case LayoutCanon:
+		return "CANON_MEC"
+	case LayoutUIH:
+		return "UIH"
+	}
+	return ""
+}
 
 // maker reports whether l is one of the makers' layouts (not standard or
 // enhanced).

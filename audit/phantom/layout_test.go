@@ -319,7 +319,8 @@ func TestPhantomLayouts(t *testing.T) {
 				case r.dir == "-":
 					want = "I" // the scanner's isotropic (trace) image
 				default:
-					want = map[string]string{"1.0000,0.0000,0.0000": "R", "0.0000,1.0000,0.0000": "A", "0.0000,0.0000,1.0000": "F"}[r.dir]
+					// Measurement (rows, x), phase (columns, y), slice (z).
+					want = map[string]string{"1.0000,0.0000,0.0000": "M", "0.0000,1.0000,0.0000": "P", "0.0000,0.0000,1.0000": "S"}[r.dir]
 				}
 				if r.note != want {
 					t.Errorf("%s: b %s direction %s labelled %q, want %q", r.path, r.b, r.dir, r.note, want)
@@ -327,9 +328,12 @@ func TestPhantomLayouts(t *testing.T) {
 			}
 			for _, r := range recs[LayoutCanon][c] {
 				want := "-"
-				if r.dir != "-" {
+				switch {
+				case r.dir != "-":
 					g := isoDirection(t, r.dir)
 					want = fmt.Sprintf("b=%s(%.3f,%.3f,%.3f)", r.b, g[0], g[1], g[2])
+				case r.b == "-" && strings.Contains(r.path, "-dwi/") || strings.Contains(r.path, "-b0/"):
+					want = "b=0(0.000,0.000,0.000)" // a b0: no b-value, only the text
 				}
 				// NA-MIC wiki, private vendor Canon: "(0020,4000) LT
 				// [b=1500(0.445,0.000,0.895)]".

@@ -68,10 +68,11 @@ func (w *writer) ge(it *item, v *volume) {
 // DiffusionHeaderPhilipsDICOMFileReader, tag 0x2001,0x1003), Diffusion
 // Direction (2001,xx04) CS, and Diffusion Direction RL/AP/FH
 // (2005,xxB0/B1/B2) FL in the "Philips MR Imaging DD 001" block, in
-// patient axes (from memory). The direction labels are from memory: R,
-// A, F for a gradient along one patient axis, O for an oblique one, I for
-// the scanner's isotropic (trace) image; a b0 gets no label. No standard
-// diffusion attribute is written.
+// patient axes (from memory). The direction labels are from memory: M,
+// P, S for a gradient along the measurement (frequency), phase or slice
+// axis, O for an oblique one, I for the scanner's isotropic (trace)
+// image; a b0 gets no label. No standard diffusion attribute is
+// written.
 const (
 	philipsImagingCreator = "Philips Imaging DD 001"
 	philipsImagingGroup   = 0x2001
@@ -90,13 +91,13 @@ func philipsLabel(v *volume) string {
 	case volTrace:
 		return "I"
 	case volDirectional:
-		switch v.dir {
+		switch imageAxes(v.dir) {
 		case [3]float64{1, 0, 0}:
-			return "R"
+			return "M"
 		case [3]float64{0, 1, 0}:
-			return "A"
+			return "P"
 		case [3]float64{0, 0, 1}:
-			return "F"
+			return "S"
 		}
 		return "O"
 	}
@@ -126,27 +127,31 @@ func (w *writer) philips(it *item, v *volume) {
 // fields ... (0020,4000) LT [b=1500(0.445,0.000,0.895)]" (NA-MIC wiki,
 // private vendor Canon). No public description puts Canon's b-value in a
 // private block, so none is invented: the b0 images carry no b-value
-// and no diffusion attribute at all, which is what a reader must
-// recognise.
+// and no diffusion attribute, only the Image Comments text "b=0" (that a
+// b0 carries the text too is from memory), which is what a reader must
+// recognise. The text gives the gradient in patient axes (from memory:
+// no description at hand says in which frame).
 const canonCommentFormat = "b=%g(%.3f,%.3f,%.3f)"
 
-// canon adds the Canon diffusion encoding of v: nothing for a b0.
+// canon adds the Canon diffusion encoding of v.
 func (w *writer) canon(it *item, v *volume) {
-	if v.kind == volB0 {
+	g := gradient(v)
+	switch v.kind {
+	case volB0:
+		it.str(tag.ImageComments, fmt.Sprintf(canonCommentFormat, v.bHeader, g[0], g[1], g[2]))
 		return
+	case volDirectional:
+		it.str(tag.ImageComments, fmt.Sprintf(canonCommentFormat, v.bHeader, zero(g[0]), zero(g[1]), zero(g[2])))
 	}
 	w.diffusion(it, v)
-	if v.kind == volDirectional {
-		it.str(tag.ImageComments, fmt.Sprintf(canonCommentFormat, v.bHeader, zero(v.dir[0]), zero(v.dir[1]), zero(v.dir[2])))
-	}
 }
 
 // UIH: BActualValue (0065,xx09) FD ("Actual B-Value from sequence") and
 // BUserValue (0065,xx0A) FD ("User Choose B-Value from UI"), and
 // SliceNormalVector (0065,xx14) DS 3, from UIH's table of private tags in
-// dcm2niix's UIH notes; the gradient direction (0065,xx37) FD 3 in
-// patient axes and the private creator string are from memory. No
-// standard diffusion attribute is written.
+// dcm2niix's UIH notes; the gradient direction (0065,xx37) FD 3 in the
+// image axes (rows, columns, slice normal) and the private creator string
+// are from memory. No standard diffusion attribute is written.
 const (
 	uihCreator     = "Image Private Header" // from memory
 	uihGroup       = 0x0065
@@ -159,7 +164,7 @@ const (
 // uih adds the UIH private diffusion elements of v.
 func (w *writer) uih(it *item, v *volume) {
 	n := sliceNormal()
-	g := gradient(v)
+	g := imageAxes(gradient(v))
 	it.creator(uihGroup, uihCreator)
 	it.private(privateTag(uihGroup, uihBActual), "FD", []float64{v.bHeader})
 	it.private(privateTag(uihGroup, uihBUser), "FD", []float64{v.bHeader})

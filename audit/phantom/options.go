@@ -83,7 +83,7 @@ type ScannerProfile struct {
 	Institution      string  // Institution Name (0008,0080)
 	Station          string  // Station Name (0008,1010), at most 16 characters
 	DeviceSerial     string  // Device Serial Number (0018,1000)
-	Manufacturer     string  // Manufacturer (0008,0070): never a real vendor
+	Manufacturer     string  // Manufacturer (0008,0070): never a real vendor (a maker's layout writes the maker's instead, Layout)
 	Model            string  // Manufacturer's Model Name (0008,1090)
 	SoftwareVersions string  // Software Versions (0018,1020)
 	FieldStrength    float64 // Magnetic Field Strength (0018,0087), tesla
@@ -117,7 +117,8 @@ type Options struct {
 	// Layout is how the diffusion encoding is written (see Layouts):
 	// LayoutStandard when empty, or LayoutEnhanced when MultiFrame is set.
 	// LayoutEnhanced sets MultiFrame; the makers' layouts are classic
-	// images and refuse MultiFrame.
+	// images and refuse MultiFrame. A maker's layout writes the maker's
+	// Manufacturer (0008,0070) in place of Scanner.Manufacturer.
 	Layout Layout
 
 	// SNR is the b0 signal-to-noise ratio of white matter (of the water for
@@ -214,6 +215,9 @@ func (o Options) withDefaults() (Options, error) {
 	}
 	if o.Scanner == (ScannerProfile{}) {
 		o.Scanner = Scanners()[0]
+	}
+	if m := o.Layout.manufacturer(); m != "" {
+		o.Scanner.Manufacturer = m
 	}
 	if o.StudyDate.IsZero() {
 		o.StudyDate = time.Date(2025, 3, 14, 9, 30, 0, 0, time.UTC)
