@@ -315,9 +315,9 @@ func TestPhantomLayouts(t *testing.T) {
 			for _, r := range recs[LayoutPhilips][c] {
 				want := "-"
 				switch {
-				case r.b == "-" || r.b == "0":
-				case r.dir == "-":
-					want = "I" // the scanner's isotropic (trace) image
+				case r.b == "-":
+				case r.b == "0" || r.dir == "-":
+					want = "I" // the b0, or the scanner's isotropic (trace) image
 				default:
 					// Measurement (rows, x), phase (columns, y), slice (z).
 					want = map[string]string{"1.0000,0.0000,0.0000": "M", "0.0000,1.0000,0.0000": "P", "0.0000,0.0000,1.0000": "S"}[r.dir]

@@ -35,12 +35,25 @@ import (
 // GEMS_ACQU_01 block, relative to the frequency, phase and slice axes
 // (dcm2niix's GE notes: "the GE convention for reported diffusion
 // gradient direction has always been in 'MR physics' logical coordinate,
-// i.e Freq (X), Phase (Y), Slice (Z)"). No standard diffusion attribute
-// is written.
+// i.e Freq (X), Phase (Y), Slice (Z)"). What marks the images as a
+// diffusion acquisition, from memory (and as the project's GE reader,
+// audit/header, documents them): (0043,xx30) SS in GEMS_PARM_01, the
+// image's kind, 14 for the T2 (b0) images, 16 for the diffusion-weighted
+// ones, 19 for the trace; (0021,xx5A) SL in GEMS_RELA_01, the series'
+// diffusion direction code, non-zero (16 for DTI) in a diffusion series.
+// No standard diffusion attribute is written.
 const (
 	geParmCreator  = "GEMS_PARM_01"
 	geParmGroup    = 0x0043
 	geBValue       = 0x39 // (0043,xx39) IS, 4 values
+	geImageKind    = 0x30 // (0043,xx30) SS
+	geRelaCreator  = "GEMS_RELA_01"
+	geRelaGroup    = 0x0021
+	geDiffSeries   = 0x5A // (0021,xx5A) SL
+	geKindT2       = 14
+	geKindDWI      = 16
+	geKindTrace    = 19
+	geDTISeries    = 16
 	geAcquCreator  = "GEMS_ACQU_01"
 	geAcquGroup    = 0x0019
 	geGradFreq     = 0xBB // (0019,xxBB) DS
@@ -56,6 +69,10 @@ func (w *writer) ge(it *item, v *volume) {
 	// (NA-MIC wiki); zero here.
 	it.creator(geParmGroup, geParmCreator)
 	it.private(privateTag(geParmGroup, geBValue), "IS", []string{strconv.Itoa(b), "0", "0", "0"})
+	kind := map[volKind]int{volB0: geKindT2, volDirectional: geKindDWI, volTrace: geKindTrace}[v.kind]
+	it.private(privateTag(geParmGroup, geImageKind), "SS", []int{kind})
+	it.creator(geRelaGroup, geRelaCreator)
+	it.private(privateTag(geRelaGroup, geDiffSeries), "SL", []int{geDTISeries})
 	g := imageAxes(gradient(v))
 	it.creator(geAcquGroup, geAcquCreator)
 	for i, xx := range []uint8{geGradFreq, geGradPhase, geGradSlice} {
@@ -71,8 +88,8 @@ func (w *writer) ge(it *item, v *volume) {
 // patient axes (from memory). The direction labels are from memory: M,
 // P, S for a gradient along the measurement (frequency), phase or slice
 // axis, O for an oblique one, I for the scanner's isotropic (trace)
-// image; a b0 gets no label. No standard diffusion attribute is
-// written.
+// image and for the b0 (an empty label marks a non-diffusion image). No
+// standard diffusion attribute is written.
 const (
 	philipsImagingCreator = "Philips Imaging DD 001"
 	philipsImagingGroup   = 0x2001
@@ -88,7 +105,7 @@ const (
 // philipsLabel is the (2001,xx04) label of v, "" for none.
 func philipsLabel(v *volume) string {
 	switch v.kind {
-	case volTrace:
+	case volB0, volTrace:
 		return "I"
 	case volDirectional:
 		switch imageAxes(v.dir) {
