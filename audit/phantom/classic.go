@@ -49,6 +49,19 @@ func directionality(k volKind) string {
 	return "ISOTROPIC"
 }
 
+// classicImage is what one classic MR image holds: one slice of a
+// volume, or for a mosaic every slice of it tiled into one image.
+type classicImage struct {
+	vol        *volume
+	k          int // the volume's index in its series
+	slice      int // the slice; the first slice for a mosaic
+	instance   int // Instance Number
+	rows, cols int
+	pos        []float64 // Image Position (Patient)
+	pixels     []byte    // little-endian 16-bit pixels, rows*cols
+	mosaic     int       // slices tiled into the image, 0 for one slice
+}
+
 // writeClassicSeries writes one MR Image Storage file per present image,
 // volume after volume, slice after slice.
 func (w *writer) writeClassicSeries(so *seriesOut) (*SeriesInfo, error) {
@@ -60,37 +73,52 @@ func (w *writer) writeClassicSeries(so *seriesOut) (*SeriesInfo, error) {
 				continue
 			}
 			instance++
-			ds, err := w.classic(so, v, k, s, instance)
-			if err != nil {
+			im := classicImage{vol: v, k: k, slice: s, instance: instance, rows: w.a.rows, cols: w.a.cols,
+				pos: w.position(v, s), pixels: w.sliceBytes(v, s)}
+			if err := w.writeClassicFile(so, info, im); err != nil {
 				return nil, err
 			}
-			path := filepath.Join(w.dir, so.folder, fmt.Sprintf("mr%04d.dcm", instance))
-			if err := synth.WriteFile(path, ds); err != nil {
-				return nil, err
-			}
-			info.Files = append(info.Files, path)
-			info.Images++
 		}
 	}
 	return info, nil
 }
 
-// classic is the data set of slice s of volume v (the series' k-th): the
-// MR Image IOD (PS3.3 A.4): the common modules, General Image (C.7.6.1),
-// Image Plane (C.7.6.2), Image Pixel (C.7.6.3), MR Image (C.8.3.1), plus
-// the diffusion attributes of the MR Diffusion Macro (C.8.13.5.9) at top
-// level, where scanners put them in classic images (DOMAIN.md), and for
-// ADC maps a Real World Value Mapping (C.7.6.16.2.11).
-func (w *writer) classic(so *seriesOut, v *volume, k, s, instance int) (dicom.Dataset, error) {
-	a, o := w.a, w.o
+// writeClassicFile writes im as the next file of the series.
+func (w *writer) writeClassicFile(so *seriesOut, info *SeriesInfo, im classicImage) error {
+	ds, err := w.classic(so, im)
+	if err != nil {
+		return err
+	}
+	path := filepath.Join(w.dir, so.folder, fmt.Sprintf("mr%04d.dcm", im.instance))
+	if err := synth.WriteFile(path, ds); err != nil {
+		return err
+	}
+	info.Files = append(info.Files, path)
+	info.Images++
+	return nil
+}
+
+// classic is the data set of one classic image: the MR Image IOD (PS3.3
+// A.4): the common modules, General Image (C.7.6.1), Image Plane
+// (C.7.6.2), Image Pixel (C.7.6.3), MR Image (C.8.3.1), plus the
+// diffusion encoding of the layout (for the standard layout the MR
+// Diffusion Macro's attributes (C.8.13.5.9) at top level, where scanners
+// put them in classic images, DOMAIN.md), and for ADC maps a Real World
+// Value Mapping (C.7.6.16.2.11).
+func (w *writer) classic(so *seriesOut, im classicImage) (dicom.Dataset, error) {
+	a, o, v := w.a, w.o, im.vol
 	sop := synth.NewUID(w.uids)
 	it := (&builder{}).item()
 	w.fileMeta(it, MRImageStorage, sop)
 	w.common(it, so, MRImageStorage, sop)
 
-	when := so.imageTime(k)
-	it.str(tag.ImageType, imageType(v.kind)...)
-	it.is(tag.InstanceNumber, instance)
+	when := so.imageTime(im.k)
+	typ := imageType(v.kind)
+	if im.mosaic > 0 {
+		typ = append(typ, "MOSAIC")
+	}
+	it.str(tag.ImageType, typ...)
+	it.is(tag.InstanceNumber, im.instance)
 	it.str(tag.ContentDate, da(when))
 	it.str(tag.ContentTime, tm(when))
 	it.is(tag.AcquisitionNumber, 1)
@@ -99,13 +127,12 @@ func (w *writer) classic(so *seriesOut, v *volume, k, s, instance int) (dicom.Da
 
 	it.ds(tag.PixelSpacing, a.spacing, a.spacing)
 	it.ds(tag.ImageOrientationPatient, orientation()...)
-	pos := w.position(v, s)
-	it.ds(tag.ImagePositionPatient, pos...)
+	it.ds(tag.ImagePositionPatient, im.pos...)
 	it.ds(tag.SliceThickness, sliceThicknessMM)
 	it.ds(tag.SpacingBetweenSlices, sliceThicknessMM)
-	it.ds(tag.SliceLocation, pos[2])
+	it.ds(tag.SliceLocation, im.pos[2])
 
-	w.imagePixel(it)
+	w.imagePixel(it, im.rows, im.cols)
 
 	it.str(tag.ScanningSequence, "SE", "EP")
 	it.str(tag.SequenceVariant, "NONE")
@@ -125,12 +152,38 @@ func (w *writer) classic(so *seriesOut, v *volume, k, s, instance int) (dicom.Da
 
 	if v.kind == volADC {
 		it.seq(tag.RealWorldValueMappingSequence, w.adcMapping(it.b))
-	} else {
+	}
+	w.encodeDiffusion(it, im)
+
+	it.add(tag.PixelData, dicom.PixelDataInfo{IntentionallyUnprocessed: true, UnprocessedValueData: im.pixels})
+	return it.dataset()
+}
+
+// encodeDiffusion adds the diffusion encoding of im in the study's
+// layout. An ADC map carries none, but a mosaic ADC map still says how
+// its slices are tiled.
+func (w *writer) encodeDiffusion(it *item, im classicImage) {
+	v := im.vol
+	switch w.o.Layout {
+	case LayoutSiemensMosaic:
+		w.siemens(it, im)
+		return
+	}
+	if v.kind == volADC {
+		return
+	}
+	switch w.o.Layout {
+	case LayoutGE:
+		w.ge(it, v)
+	case LayoutPhilips:
+		w.philips(it, v)
+	case LayoutCanon:
+		w.canon(it, v)
+	case LayoutUIH:
+		w.uih(it, v)
+	default:
 		w.diffusion(it, v)
 	}
-
-	it.add(tag.PixelData, dicom.PixelDataInfo{IntentionallyUnprocessed: true, UnprocessedValueData: w.sliceBytes(v, s)})
-	return it.dataset()
 }
 
 // diffusion adds the MR Diffusion Macro's attributes (PS3.3 C.8.13.5.9)

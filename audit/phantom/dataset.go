@@ -86,3 +86,33 @@ func (it *item) dataset() (dicom.Dataset, error) {
 	synth.SortElements(it.elems)
 	return dicom.Dataset{Elements: it.elems}, nil
 }
+
+// privateBlock is the block of element numbers every private block here
+// reserves: Private Creator (gggg,0010), elements (gggg,10xx) (PS3.5
+// 7.8.1). Real scanners use block 0x10 for these blocks too (common
+// practice); a reader must still find it through the creator.
+const privateBlock = 0x10
+
+// privateTag is element xx of the block privateBlock in group g:
+// (gggg,10xx).
+func privateTag(group uint16, xx uint8) tag.Tag {
+	return tag.Tag{Group: group, Element: privateBlock<<8 | uint16(xx)}
+}
+
+// private adds a private element (PS3.5 7.8) with its VR given: the data
+// dictionary does not know private elements, so suyashkumar's writer
+// takes the VR from the element (and writes no VR in Implicit VR).
+func (it *item) private(t tag.Tag, vr string, v any) {
+	val, err := dicom.NewValue(v)
+	if err != nil {
+		it.b.errs = append(it.b.errs, fmt.Errorf("phantom: private element %v: %w", t, err))
+		return
+	}
+	it.elems = append(it.elems, &dicom.Element{Tag: t, ValueRepresentation: tag.GetVRKind(t, vr), RawValueRepresentation: vr, Value: val})
+}
+
+// creator adds the Private Creator Data Element (gggg,0010), LO, that
+// reserves block privateBlock of group g for name (PS3.5 7.8.1).
+func (it *item) creator(group uint16, name string) {
+	it.private(tag.Tag{Group: group, Element: privateBlock}, "LO", []string{name})
+}

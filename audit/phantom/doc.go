@@ -25,11 +25,18 @@
 //   - classic.go and enhanced.go: the DICOM data sets, one MR Image
 //     Storage file per image, or Enhanced MR Image Storage multi-frame
 //     files with functional groups (PS3.3 A.4 and A.36-2);
+//   - layout.go, mosaic.go and makers.go: the makers' layouts (Layout):
+//     the same images with the diffusion encoding the makers' scanners
+//     write, in private blocks (a Siemens CSA header and mosaic, GE,
+//     Philips, UIH) or in Canon's partial use of the standard attributes,
+//     each written from a public description of it;
 //   - dataset.go: a small builder of suyashkumar/dicom elements;
 //   - phantom.go: Write, which ties them together.
 //
 // Every name in the files is invented: the hospital, its scanners, the
-// patient, the manufacturer. Nothing here names a real vendor or person.
+// patient, the manufacturer. Nothing here names a real person; the only
+// makers' names written are the private creator strings of the makers'
+// layouts, which a reader needs to find those blocks (PS3.5 7.8.1).
 //
 // The files are written with github.com/suyashkumar/dicom, a DICOM
 // implementation independent of the audit's reader, through the shared

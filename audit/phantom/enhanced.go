@@ -126,7 +126,7 @@ func (w *writer) enhanced(so *seriesOut, in *instanceOut, number int) (dicom.Dat
 	it.str(tag.ContentTime, tm(first))
 	it.is(tag.NumberOfFrames, len(in.frames))
 
-	w.imagePixel(it)
+	w.imagePixel(it, a.rows, a.cols)
 	it.str(tag.PresentationLUTShape, "IDENTITY")
 	it.str(tag.LossyImageCompression, "00")
 	it.str(tag.BurnedInAnnotation, "NO")

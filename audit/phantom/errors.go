@@ -11,6 +11,9 @@ var (
 	// ErrUnknownCase means Options.Case is not one of Cases().
 	ErrUnknownCase = errors.New("phantom: unknown case")
 
+	// ErrUnknownLayout means Options.Layout is not one of Layouts().
+	ErrUnknownLayout = errors.New("phantom: unknown layout")
+
 	// ErrOutputNotEmpty means the output folder exists and already holds
 	// files: a study written over another would mix their series.
 	ErrOutputNotEmpty = errors.New("phantom: output folder is not empty")

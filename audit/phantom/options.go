@@ -86,7 +86,7 @@ type ScannerProfile struct {
 	Institution      string  // Institution Name (0008,0080)
 	Station          string  // Station Name (0008,1010), at most 16 characters
 	DeviceSerial     string  // Device Serial Number (0018,1000)
-	Manufacturer     string  // Manufacturer (0008,0070): never a real vendor
+	Manufacturer     string  // Manufacturer (0008,0070): never a real vendor (a maker's layout writes the maker's instead, Layout)
 	Model            string  // Manufacturer's Model Name (0008,1090)
 	SoftwareVersions string  // Software Versions (0018,1020)
 	FieldStrength    float64 // Magnetic Field Strength (0018,0087), tesla
@@ -115,7 +115,14 @@ type Options struct {
 	Matrix     int   // rows = columns; DefaultMatrix when zero
 	Slices     int   // DefaultSlices when zero
 	Seed       int64 // fixes every UID and every noise sample
-	MultiFrame bool  // Enhanced MR Image Storage instead of classic MR Image Storage
+	MultiFrame bool  // Enhanced MR Image Storage instead of classic MR Image Storage (LayoutEnhanced)
+
+	// Layout is how the diffusion encoding is written (see Layouts):
+	// LayoutStandard when empty, or LayoutEnhanced when MultiFrame is set.
+	// LayoutEnhanced sets MultiFrame; the makers' layouts are classic
+	// images and refuse MultiFrame. A maker's layout writes the maker's
+	// Manufacturer (0008,0070) in place of Scanner.Manufacturer.
+	Layout Layout
 
 	// SNR is the b0 signal-to-noise ratio of white matter (of the water for
 	// the ice-water phantom): the noise standard deviation on each of the
@@ -192,6 +199,16 @@ func (o Options) withDefaults() (Options, error) {
 	if !o.Case.Valid() {
 		return o, fmt.Errorf("%w %q (see Cases)", ErrUnknownCase, o.Case)
 	}
+	switch {
+	case o.Layout == "" && o.MultiFrame:
+		o.Layout = LayoutEnhanced
+	case o.Layout == "":
+		o.Layout = LayoutStandard
+	case !o.Layout.Valid():
+		return o, fmt.Errorf("%w %q (see Layouts)", ErrUnknownLayout, o.Layout)
+	case o.Layout == LayoutEnhanced:
+		o.MultiFrame = true
+	}
 	if o.Matrix == 0 {
 		o.Matrix = DefaultMatrix
 	}
@@ -213,6 +230,9 @@ func (o Options) withDefaults() (Options, error) {
 	}
 	if o.Scanner == (ScannerProfile{}) {
 		o.Scanner = Scanners()[0]
+	}
+	if m := o.Layout.manufacturer(); m != "" {
+		o.Scanner.Manufacturer = m
 	}
 	if o.StudyDate.IsZero() {
 		o.StudyDate = time.Date(2025, 3, 14, 9, 30, 0, 0, time.UTC)
@@ -280,6 +300,9 @@ func (o Options) withDefaults() (Options, error) {
 	if o.TransferSyntax != ExplicitVRLittleEndian && o.TransferSyntax != ImplicitVRLittleEndian {
 		bad("TransferSyntax %q, want %s or %s", o.TransferSyntax, ExplicitVRLittleEndian, ImplicitVRLittleEndian)
 	}
+	if o.MultiFrame && o.Layout.maker() {
+		bad("MultiFrame with layout %s, which writes classic MR images", o.Layout)
+	}
 	if len(o.Scanner.Station) > maxSH {
 		bad("Scanner.Station %q longer than %d characters", o.Scanner.Station, maxSH)
 	}
@@ -314,6 +337,8 @@ func (o Options) withDefaults() (Options, error) {
 		bad("case %s needs at least two b-values", o.Case)
 	case o.Case == CaseMissingSlices && o.Slices < 3:
 		bad("case %s needs at least 3 slices", o.Case)
+	case o.Case == CaseMissingSlices && o.Layout == LayoutSiemensMosaic:
+		bad("case %s cannot be written as layout %s: a mosaic holds every slice of its volume", o.Case, o.Layout)
 	}
 	if len(errs) > 0 {
 		return o, sortedJoin(errs)

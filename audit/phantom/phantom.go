@@ -116,6 +116,11 @@ type writer struct {
 func newWriter(dir string, a *acquisition) *writer {
 	h := fnv.New64a()
 	fmt.Fprintf(h, "%s|%t", a.opt.Case, a.opt.MultiFrame)
+	if a.opt.Layout.maker() {
+		// Standard and enhanced keep the UIDs they always had; every
+		// maker's layout gets its own, so all can share one archive.
+		fmt.Fprintf(h, "|%s", a.opt.Layout)
+	}
 	w := &writer{
 		dir:  dir,
 		a:    a,
@@ -186,9 +191,12 @@ func (w *writer) write() error {
 		}
 		var info *SeriesInfo
 		var err error
-		if w.o.MultiFrame {
+		switch {
+		case w.o.MultiFrame:
 			info, err = w.writeEnhancedSeries(so)
-		} else {
+		case w.o.Layout == LayoutSiemensMosaic:
+			info, err = w.writeMosaicSeries(so)
+		default:
 			info, err = w.writeClassicSeries(so)
 		}
 		if err != nil {
@@ -260,12 +268,13 @@ func (w *writer) common(it *item, so *seriesOut, sopClass, sopInstance string) {
 	it.str(tag.SoftwareVersions, s.SoftwareVersions)
 }
 
-// imagePixel adds the Image Pixel module (PS3.3 C.7.6.3) but Pixel Data.
-func (w *writer) imagePixel(it *item) {
+// imagePixel adds the Image Pixel module (PS3.3 C.7.6.3) but Pixel Data,
+// for images of rows x cols pixels.
+func (w *writer) imagePixel(it *item, rows, cols int) {
 	it.num(tag.SamplesPerPixel, 1)
 	it.str(tag.PhotometricInterpretation, "MONOCHROME2")
-	it.num(tag.Rows, w.a.rows)
-	it.num(tag.Columns, w.a.cols)
+	it.num(tag.Rows, rows)
+	it.num(tag.Columns, cols)
 	it.num(tag.BitsAllocated, 16)
 	it.num(tag.BitsStored, bitsStored)
 	it.num(tag.HighBit, bitsStored-1)

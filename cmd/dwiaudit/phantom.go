@@ -20,11 +20,12 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 	matrix := fs.Int("matrix", phantom.DefaultMatrix, fmt.Sprintf("rows and columns of every image (%d..%d)", phantom.MinMatrix, phantom.MaxMatrix))
 	slices := fs.Int("slices", phantom.DefaultSlices, fmt.Sprintf("slices (1..%d)", phantom.MaxSlices))
 	seed := fs.Int64("seed", 1, "seed of the UIDs and the noise; the same seed writes the same bytes")
-	multi := fs.Bool("multiframe", false, "write Enhanced MR Image Storage multi-frame instances instead of one classic MR image per file")
+	multi := fs.Bool("multiframe", false, "write Enhanced MR Image Storage multi-frame instances instead of one classic MR image per file (--layout enhanced)")
 	dirs := fs.Int("directions", phantom.DefaultDirs, fmt.Sprintf("gradient directions per non-zero b-value: 1, 3, 6 or %d", phantom.ManyDirs))
+	layout := fs.String("layout", "", "how the diffusion encoding is written: "+layoutNames()+" (default standard; enhanced with --multiframe); --list shows them")
 	snr := fs.Float64("snr", 0, "b0 SNR in white matter (0: the case's default, 60, or 4 for low-snr)")
 	station := fs.String("station", "", "station name of the invented scanner: "+strings.Join(stations(), ", ")+" (default the first)")
-	list := fs.Bool("list", false, "print the cases with a description and exit")
+	list := fs.Bool("list", false, "print the cases and the layouts with a description and exit")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -34,6 +35,12 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 			fmt.Fprintf(tw, "%s\t%s\n", c, c.Description())
 		}
 		tw.Flush()
+		fmt.Fprintln(env.stdout)
+		fmt.Fprintln(env.stdout, "layouts (--layout):")
+		for _, l := range phantom.Layouts() {
+			fmt.Fprintf(tw, "  %s\t%s\n", l, l.Description())
+		}
+		tw.Flush()
 		return exitOK
 	}
 	if fs.NArg() != 0 || *out == "" {
@@ -41,7 +48,11 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 		fs.Usage()
 		return exitUsage
 	}
-	opt := phantom.Options{Case: phantom.Case(*name), Matrix: *matrix, Slices: *slices, Seed: *seed, MultiFrame: *multi, SNR: *snr, Directions: *dirs}
+	if *layout != "" && !phantom.Layout(*layout).Valid() {
+		fmt.Fprintf(env.stderr, "dwiaudit phantom: unknown --layout %q (want one of %s)\n", *layout, layoutNames())
+		return exitUsage
+	}
+	opt := phantom.Options{Case: phantom.Case(*name), Matrix: *matrix, Slices: *slices, Seed: *seed, MultiFrame: *multi, SNR: *snr, Directions: *dirs, Layout: phantom.Layout(*layout)}
 	if *station != "" {
 		for _, s := range phantom.Scanners() {
 			if s.Station == *station {
@@ -55,7 +66,7 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 	}
 	st, err := phantom.Write(*out, opt)
 	switch {
-	case errors.Is(err, phantom.ErrUnknownCase) || errors.Is(err, phantom.ErrInvalidOptions):
+	case errors.Is(err, phantom.ErrUnknownCase) || errors.Is(err, phantom.ErrUnknownLayout) || errors.Is(err, phantom.ErrInvalidOptions):
 		fmt.Fprintln(env.stderr, "dwiaudit phantom:", err)
 		return exitUsage
 	case err != nil:
@@ -63,8 +74,11 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 		return exitFailure
 	}
 	kind := "classic MR Image Storage"
-	if *multi {
+	if *multi || *layout == string(phantom.LayoutEnhanced) {
 		kind = "Enhanced MR Image Storage"
+	}
+	if *layout != "" {
+		kind += ", layout " + *layout
 	}
 	fmt.Fprintf(env.stdout, "wrote synthetic case %s (%s), %d files in %s\n", opt.Case, kind, len(st.Files), st.Dir)
 	for _, s := range st.Series {
@@ -74,6 +88,16 @@ func runPhantom(_ context.Context, env *cliEnv, args []string) int {
 		fmt.Fprintf(env.stdout, "  planted: %s\n", d.Detail)
 	}
 	return exitOK
+}
+
+// layoutNames is the layouts, comma-separated, for the usage text and
+// errors.
+func layoutNames() string {
+	var names []string
+	for _, l := range phantom.Layouts() {
+		names = append(names, string(l))
+	}
+	return strings.Join(names, ", ")
 }
 
 func stations() []string {
