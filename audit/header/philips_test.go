@@ -90,6 +90,16 @@ func TestPhilipsReader(t *testing.T) {
 			t.Errorf("directionality %v, want ISOTROPIC", f.Directionality)
 		}
 	})
+	t.Run("an Enhanced MR file with the private encoding in its per-frame groups", func(t *testing.T) {
+		// Where Philips Enhanced MR files keep it (from memory; no such
+		// public file without the standard attributes was at hand).
+		s := philipsSeries("phenh", philipsImage(0, "I", [3]float32{}, 0), philipsImage(1000, "O", [3]float32{0, 1, 0}, 0))
+		frames := extractOne(t, s.enhanced(t, tsExplicitLE), ExtractOptions{})
+		if len(frames) != 2 || !frames[0].HasBValue || frames[0].BValue != 0 || frames[0].Directionality != dwi.DirectionalityNone ||
+			frames[1].BValue != 1000 || frames[1].BValueSource != "maker:philips" || frames[1].Gradient != [3]float64{0, 1, 0} {
+			t.Errorf("frames %+v", frames)
+		}
+	})
 	t.Run("a series with only private encoding assembles with its trace apart", func(t *testing.T) {
 		var images []img
 		for sl := range 2 {
