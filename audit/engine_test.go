@@ -122,7 +122,7 @@ func TestSeriesReportCarriesIdentityBValuesAndMeasures(t *testing.T) {
 		t.Errorf("b-values %v, want [0 1000]", s.BValues)
 	}
 	// The phantom's white matter is 0.70e-3 mm²/s (Helenius 2002 via
-	// DOMAIN.md) and most of the parenchyma; its cortex 0.89e-3.
+	// docs/references.md#helenius-2002) and most of the parenchyma; its cortex 0.89e-3.
 	if m := s.Measures.ParenchymaMedianADC; !(m > 0.6e-3 && m < 0.9e-3) {
 		t.Errorf("tissue ADC %v, want the phantom's parenchyma (0.70-0.89e-3 mm²/s)", m)
 	}
@@ -425,7 +425,7 @@ func TestPhantomSeriesReportTheirCentralADC(t *testing.T) {
 		lo, hi float64 // mm²/s
 	}{
 		// Ice water at 0 °C: 1.10e-3 mm²/s (QIBA DWI profile; Malyarenko
-		// et al., JMRI 2013;37:1238; DOMAIN.md). The phantom plants it.
+		// et al., JMRI 2013;37:1238; docs/references.md#malyarenko-2013). The phantom plants it.
 		{"an ice-water phantom at 0 C reports about 1.10e-3", phantom.CaseIceWater0C, 1.10e-3 * 0.98, 1.10e-3 * 1.02},
 		// The warm case is above the ±3.6% tolerance by construction.
 		{"a warm ice-water phantom reports more than 3.6% above it", phantom.CaseIceWaterWarm, 1.10e-3 * 1.036, 1.6e-3},

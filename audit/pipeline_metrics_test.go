@@ -79,7 +79,7 @@ func TestThePipelineFeedsTheMetricsAndLeavesTestPatientsOutOfTheDrift(t *testing
 		labels      string
 		low, high   float64 // expected gauge range; 0, 0: no sample
 	}{
-		// DOMAIN.md (Helenius 2002): white matter 0.70e-3, cortex
+		// docs/references.md#helenius-2002 (Helenius 2002): white matter 0.70e-3, cortex
 		// 0.89e-3 mm²/s; the parenchyma median lies between.
 		{"a brain series sets its scanner's parenchyma ADC", phantom.Options{Matrix: 32, Slices: 4}, false,
 			"dwiaudit_series_parenchyma_adc_square_meters_per_second", "protocol=brain,scanner=qoh-mr1", 0.70e-9, 0.89e-9},
@@ -87,7 +87,7 @@ func TestThePipelineFeedsTheMetricsAndLeavesTestPatientsOutOfTheDrift(t *testing
 			"dwiaudit_series_parenchyma_adc_square_meters_per_second", "", 0, 0},
 		// The phantom truth (audit/phantom cases.go): water at 4 °C,
 		// 1.26e-3 mm²/s, against the profile's 1.10e-3 at 0 °C (QIBA,
-		// DOMAIN.md): about 15% high, far past the 3.6% tolerance.
+		// docs/references.md#ice-water-phantom): about 15% high, far past the 3.6% tolerance.
 		{"a warm ice-water phantom shows its bias", phantom.Options{Case: phantom.CaseIceWaterWarm, Matrix: 32, Slices: 4}, false,
 			"dwiaudit_phantom_adc_bias_ratio", "phantom=ice water,scanner=qoh-mr1", 0.10, 0.20},
 	}

@@ -855,7 +855,7 @@ const (
 	defaultAuditWorkers = 2
 
 	// maxPlausibleADC bounds every ADC in the configuration, mm²/s: free
-	// water at 37 C is 3.04e-3 (Holz 2000, DOMAIN.md); 0.01 is three
+	// water at 37 C is 3.04e-3 (Holz 2000, docs/references.md#holz-2000); 0.01 is three
 	// times that, so a value above it is an ADC written in 1e-3 mm²/s
 	// or µm²/ms by mistake (0.7 for 0.7e-3).
 	maxPlausibleADC = 0.01

@@ -422,7 +422,7 @@ func TestTheDashboardImportsAndShowsEveryMetric(t *testing.T) {
 			if strings.Contains(p.Title, "Phantom ADC (") {
 				for _, s := range p.FieldConfig.Defaults.Thresholds.Steps {
 					// Ice water at 0 °C, 1.1e-3 mm²/s (QIBA DWI profile;
-					// Malyarenko et al., JMRI 2013;37:1238; DOMAIN.md).
+					// Malyarenko et al., JMRI 2013;37:1238; docs/references.md#malyarenko-2013).
 					if s.Value != nil && *s.Value == 1.1 {
 						return
 					}

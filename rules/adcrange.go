@@ -12,17 +12,17 @@ import (
 // series is outside what physiology allows.
 //
 //   - Parenchyma (error): the median ADC of the parenchyma is outside
-//     the protocol's range (brain 0.6-1.1e-3 mm²/s, DOMAIN.md). A whole
+//     the protocol's range (brain 0.6-1.1e-3 mm²/s, docs/references.md#parenchyma-range). A whole
 //     series off means the weighting or scaling is wrong, not a lesion:
 //     a lesion moves a small part of the parenchyma, not its median.
 //   - CSF (error, head protocols): the CSF ADC is far from free water at
 //     37 °C (3.0e-3, Holz 2000): CSF is close to free water, so the
 //     header b-value does not match the applied weighting, or the pixel
-//     scaling is wrong (DOMAIN.md). Judged only when the mask holds
+//     scaling is wrong (docs/references.md#csf-reference). Judged only when the mask holds
 //     enough CSF for the percentile the analysis takes to lie in it
 //     (thresholds.adc_out_of_range.min_csf_share).
 //   - Above free water (warning): too many tissue voxels faster than free
-//     water at body temperature, which no tissue is (DOMAIN.md).
+//     water at body temperature, which no tissue is (docs/references.md#free-water-ceiling).
 //   - Negative (warning): too many tissue voxels with DWI brighter than
 //     b0, beyond what noise gives.
 //

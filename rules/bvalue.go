@@ -15,14 +15,14 @@ import (
 //   - Set (warning): the acquired b-values differ from the matched
 //     protocol's (tolerance max(bvalue_tolerance, relative_tolerance*b)).
 //     ADC depends on the b-values used (it falls as b rises in tissue,
-//     DeLano et al., AJNR 2000;21:1830; DOMAIN.md), so such a series is
+//     DeLano et al., AJNR 2000;21:1830; docs/references.md#delano-2000), so such a series is
 //     not comparable with the protocol's others. A series holding only
 //     b0 images (a b0 series lending its b0) is not held to the set, and
 //     a missing lowest b-value is left to missing-b0 (unless disabled).
 //   - Directions (warning): fewer gradient directions at a b-value than
 //     the protocol's minimum; a trace from fewer than three orthogonal
 //     directions depends on fibre orientation (Basser & Pierpaoli;
-//     DOMAIN.md). Series with only the scanner's trace image say nothing
+//     docs/references.md#basser-pierpaoli). Series with only the scanner's trace image say nothing
 //     about directions and are not judged.
 //   - Inside one volume (error): images of one volume whose b-values
 //     differ beyond tolerance; the ADC of their slices uses a b that is

@@ -41,12 +41,12 @@ type Protocol struct {
 	// BTolerance is the allowed difference in s/mm²; the tolerance at b
 	// is max(BTolerance, thresholds.bvalue_mismatch.relative_tolerance*b),
 	// the same form as the assembly's (dwi.DefaultTolerances). Zero
-	// means DefaultBTolerance (DOMAIN.md: a nominal 900 seen as 895-905,
+	// means DefaultBTolerance (docs/references.md#bvalue-tolerance: a nominal 900 seen as 895-905,
 	// common practice).
 	BValues    []float64 `yaml:"bvalues"`
 	BTolerance float64   `yaml:"bvalue_tolerance"`
 	// LowestB is the b-value that counts as "b0" for this protocol (0;
-	// body protocols often use 50 to suppress perfusion, DOMAIN.md IVIM).
+	// body protocols often use 50 to suppress perfusion, docs/references.md#ivim).
 	LowestB float64 `yaml:"lowest_b"`
 	// MinDirections is the least number of gradient directions per
 	// diffusion-weighted b-value; 0 checks nothing.
@@ -59,7 +59,7 @@ type Protocol struct {
 	Head          bool       `yaml:"head"`
 }
 
-// PhantomProfile is a test object with a known ADC (DOMAIN.md: ice water
+// PhantomProfile is a test object with a known ADC (docs/references.md#ice-water-phantom: ice water
 // 1.10e-3 mm²/s at 0 °C, QIBA; Malyarenko et al. 2013).
 type PhantomProfile struct {
 	Name        string  `yaml:"name"`
@@ -82,7 +82,7 @@ type Config struct {
 	Protocols []Protocol              `yaml:"protocols"`
 	Phantoms  []PhantomProfile        `yaml:"phantoms"`
 	Rules     map[string]RuleSettings `yaml:"rules"`
-	// Thresholds of the individual rules, with defaults from DOMAIN.md.
+	// Thresholds of the individual rules, with defaults from docs/references.md.
 	Thresholds Thresholds `yaml:"thresholds"`
 }
 
@@ -148,7 +148,7 @@ type ScannerADCThresholds struct {
 	// DefaultUnits are the units of a scanner ADC map's pixel values
 	// when it has no Real World Value Mapping in units of a diffusion
 	// coefficient: "mm2/s", "um2/s" or "10-6.mm2/s" (UCUM, as in
-	// (0040,08EA); DOMAIN.md).
+	// (0040,08EA); docs/references.md#real-world-value-mapping).
 	DefaultUnits string `yaml:"default_units"`
 	// MinVoxels is the least number of tissue voxels where both maps
 	// have a value for the comparison to be made.
@@ -168,7 +168,7 @@ type PhantomADCThresholds struct {
 
 // DefaultBTolerance is the absolute b-value tolerance of a protocol
 // that gives none, s/mm²: stored b-values differ slightly from the
-// nominal, a nominal 900 seen as 895-905 (DOMAIN.md, common practice);
+// nominal, a nominal 900 seen as 895-905 (docs/references.md#bvalue-tolerance, common practice);
 // the same absolute floor as dwi.DefaultTolerances.
 const DefaultBTolerance = 5
 
@@ -176,11 +176,11 @@ const DefaultBTolerance = 5
 // call:
 //
 //   - protocol "prostate (example)": b 50, 800, 1400 with b = 50 as the
-//     lowest (DOMAIN.md IVIM); matched on Body Part Examined PROSTATE or
+//     lowest (docs/references.md#ivim); matched on Body Part Examined PROSTATE or
 //     "prostat" in the series description or protocol name. It comes
 //     before the brain protocol because the first match wins and the
 //     brain protocol matches any description containing DWI.
-//   - protocol "brain": b 0 and 1000 (DOMAIN.md: typical brain DWI,
+//   - protocol "brain": b 0 and 1000 (docs/references.md#typical-b-values: typical brain DWI,
 //     common practice); matched on Body Part Examined BRAIN or HEAD, or a
 //     series description containing DWI or DIFF (case-insensitive).
 //   - phantom "ice water": 1.10e-3 mm²/s, ±3.6%; matched on ice water
@@ -197,16 +197,16 @@ func DefaultConfig() *Config {
 					SeriesDescription: []string{`(?i)prostat`},
 					ProtocolName:      []string{`(?i)prostat`},
 				},
-				// b 50/800/1400: DOMAIN.md, prostate high b 1400-2000
+				// b 50/800/1400: docs/references.md#typical-b-values, prostate high b 1400-2000
 				// (common practice) and b = 50 instead of 0 against
 				// perfusion (Eur Radiol 2010, doi 10.1007/s00330-010-2017-y).
 				BValues:    []float64{50, 800, 1400},
 				BTolerance: DefaultBTolerance,
 				LowestB:    50,
 				// Three orthogonal directions give a rotationally
-				// invariant trace (Basser & Pierpaoli, DOMAIN.md).
+				// invariant trace (Basser & Pierpaoli, docs/references.md#basser-pierpaoli).
 				MinDirections: 3,
-				// Jafar et al., World J Radiol 2016;8:21 (DOMAIN.md):
+				// Jafar et al., World J Radiol 2016;8:21 (docs/references.md#jafar-2016):
 				// median prostate ADC 1.31e-3 (central) and 1.64e-3
 				// (peripheral zone). Widened by a quarter each way, the
 				// lower median less 25% and the higher plus 25%, rounded
@@ -223,13 +223,13 @@ func DefaultConfig() *Config {
 					BodyPart:          []string{"BRAIN", "HEAD"},
 					SeriesDescription: []string{`(?i)DWI`, `(?i)DIFF`},
 				},
-				// DOMAIN.md: typical brain DWI b = 1000 (common
+				// docs/references.md#typical-b-values: typical brain DWI b = 1000 (common
 				// practice), b0 as reference.
 				BValues:       []float64{0, 1000},
 				BTolerance:    DefaultBTolerance,
 				LowestB:       0,
-				MinDirections: 3, // rotationally invariant trace (Basser & Pierpaoli, DOMAIN.md)
-				// DOMAIN.md: brain parenchyma median ADC roughly
+				MinDirections: 3, // rotationally invariant trace (Basser & Pierpaoli, docs/references.md#basser-pierpaoli)
+				// docs/references.md#parenchyma-range: brain parenchyma median ADC roughly
 				// 0.6-1.1e-3 mm²/s, Helenius et al. (AJNR 2002;23:194)
 				// ranges (white matter 0.62-0.79, cortical grey
 				// 0.78-1.09) widened for age and field.
@@ -245,10 +245,10 @@ func DefaultConfig() *Config {
 					ProtocolName:      []string{`(?i)ice.?water`},
 				},
 				// 1.10e-3 mm²/s at 0 °C, isocentre: QIBA DWI profile;
-				// Malyarenko et al., JMRI 2013;37:1238 (DOMAIN.md).
+				// Malyarenko et al., JMRI 2013;37:1238 (docs/references.md#malyarenko-2013).
 				ExpectedADC: 1.10e-3,
 				// ±3.6%: QIBA phantom bias tolerance, from memory, not
-				// verified (DOMAIN.md).
+				// verified (docs/references.md#phantom-tolerance).
 				Tolerance: 0.036,
 			},
 		},
@@ -257,13 +257,13 @@ func DefaultConfig() *Config {
 				// Perfusion (IVIM) acts below about 200 s/mm², so a
 				// lowest b-value up to 200 can still serve as the
 				// reference (Eur Radiol 2010, doi
-				// 10.1007/s00330-010-2017-y; DOMAIN.md); the same limit
+				// 10.1007/s00330-010-2017-y; docs/references.md#eur-radiol-2010-ivim); the same limit
 				// as analysis.DefaultAnalyzeConfig's ReferenceBMax.
 				UnmatchedMaxB: 200,
 			},
 			BValueMismatch: BValueMismatchThresholds{
 				// 2% of b, as dwi.DefaultTolerances: three times the
-				// ±5 spread of a nominal 900 (DOMAIN.md, common
+				// ±5 spread of a nominal 900 (docs/references.md#bvalue-tolerance, common
 				// practice) and far below the relative step between
 				// high b-values in use (800/1000: 20%; common
 				// practice).
@@ -271,15 +271,15 @@ func DefaultConfig() *Config {
 			},
 			ADCOutOfRange: ADCRangeThresholds{
 				// Free water at 37 °C: 3.04e-3 from the Holz, Heil &
-				// Sacco fit (PCCP 2000;2:4740; DOMAIN.md), 3.0e-3 as
-				// the issue and DOMAIN.md ("about 3e-3") round it.
+				// Sacco fit (PCCP 2000;2:4740; docs/references.md#holz-2000), 3.0e-3 as
+				// the issue and docs/references.md#csf-reference ("about 3e-3") round it.
 				FreeWaterADC: 3.0e-3,
 				// ±15% (inference): room for the 5% between free water
 				// at 37 °C and the CSF histogram peak (3.2e-3, AJNR
-				// 2000;21:1078; DOMAIN.md) and for partial volume,
+				// 2000;21:1078; docs/references.md#csf-histogram-ajnr-2000) and for partial volume,
 				// while a header b-value 1/0.85 or more times the
 				// applied one (ADC scales as b_applied/b_header,
-				// DOMAIN.md's mono-exponential model) still shows.
+				// the mono-exponential model in docs/references.md#mono-exponential) still shows.
 				CSFTolerance: 0.15,
 				// The analysis takes the 95th percentile
 				// (analysis.DefaultAnalyzeConfig), which lies in CSF
@@ -290,14 +290,14 @@ func DefaultConfig() *Config {
 				// 5%, at coarse matrices).
 				MinCSFShare: 0.06,
 				// No tissue diffuses faster than free water at body
-				// temperature (DOMAIN.md): 2% (inference) is ten times
+				// temperature (docs/references.md#free-water-ceiling): 2% (inference) is ten times
 				// what noise alone puts there at b0 SNR 4 (0.2% on the
 				// low-snr phantom) and below the CSF's own share of
 				// the mask (5-10%), so a header b-value too low lifts
 				// the CSF over the ceiling and shows.
 				MaxFractionAboveFreeWater: 0.02,
 				// Negative ADC (Sb > S0) beyond noise is a defect
-				// (DOMAIN.md): 5% (inference) is twice the 2.5% noise
+				// (docs/references.md#free-water-ceiling): 5% (inference) is twice the 2.5% noise
 				// gives at b0 SNR 4 (the low-snr phantom), while b0
 				// and DWI swapped or scaled apart turn most voxels
 				// negative.
@@ -306,13 +306,13 @@ func DefaultConfig() *Config {
 			LowSNR: LowSNRThresholds{
 				// 10 (inference): the two-point ADC's noise is about
 				// (1/b)·sqrt(1/SNR0² + 1/SNRb²) (propagation through
-				// ln(S0/Sb)/b, DOMAIN.md's model); at b0 SNR 10, white
+				// ln(S0/Sb)/b, the model in docs/references.md#mono-exponential); at b0 SNR 10, white
 				// matter at b = 1000 has SNR 5 and a voxel's ADC
 				// scatters by 0.22e-3 mm²/s, a third of its value
 				// (0.70e-3, Helenius 2002).
 				MinB0SNR: 10,
 				// Rician bias: magnitude images are biased when SNR <
-				// 2-3 (Gudbjartsson & Patz, MRM 1995;34:910); DOMAIN.md
+				// 2-3 (Gudbjartsson & Patz, MRM 1995;34:910); docs/references.md#gudbjartsson-patz-1995
 				// says flag tissue whose high-b SNR is below about 3
 				// (inference).
 				MinHighBSNR: 3,
@@ -320,7 +320,7 @@ func DefaultConfig() *Config {
 			ScannerADC: ScannerADCThresholds{
 				// 8%: the change worth reporting in brain ADC at 95%
 				// confidence (QIBA profile review, Radiology 2024;
-				// DOMAIN.md). A scanner map closer than that to the
+				// docs/references.md#qiba-review-2024). A scanner map closer than that to the
 				// recomputed one reads the same to a radiologist.
 				Tolerance: 0.08,
 				// Scanners commonly store ADC maps as integers in
@@ -333,7 +333,7 @@ func DefaultConfig() *Config {
 			},
 			PhantomADC: PhantomADCThresholds{
 				// 15 mm (inference): the QIBA value is at isocentre
-				// (DOMAIN.md); gradient nonlinearity biases ADC away
+				// (docs/references.md#ice-water-phantom); gradient nonlinearity biases ADC away
 				// from it (Malyarenko 2013), so a small central region,
 				// still hundreds of voxels at 4 mm pixels and 5 mm
 				// slices.

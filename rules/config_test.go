@@ -27,16 +27,16 @@ func TestDefaultConfigIsValidAndFresh(t *testing.T) {
 func TestDefaultConfigHoldsTheDocumentedValues(t *testing.T) {
 	c := rules.DefaultConfig()
 	brain := protocolNamed(t, c, "brain")
-	// DOMAIN.md: typical brain DWI b = 1000 (common practice); parenchyma
+	// docs/references.md#typical-b-values: typical brain DWI b = 1000 (common practice); parenchyma
 	// 0.6-1.1e-3 mm²/s (Helenius 2002 ranges widened).
 	if got := brain.BValues; len(got) != 2 || got[0] != 0 || got[1] != 1000 || brain.LowestB != 0 || brain.MinDirections != 3 || !brain.Head {
 		t.Errorf("brain protocol %+v", brain)
 	}
-	if brain.ParenchymaADC != [2]float64{0.6e-3, 1.1e-3} { // DOMAIN.md, Physiological sanity
+	if brain.ParenchymaADC != [2]float64{0.6e-3, 1.1e-3} { // docs/references.md#physiological-sanity
 		t.Errorf("brain parenchyma range %v", brain.ParenchymaADC)
 	}
 	body := protocolNamed(t, c, "prostate (example)")
-	// Issue 5: b 50, 800, 1400 with b = 50 lowest (DOMAIN.md IVIM); the
+	// Issue 5: b 50, 800, 1400 with b = 50 lowest (docs/references.md#ivim); the
 	// range is Jafar 2016's prostate medians 1.31/1.64e-3 widened by a
 	// quarter (config.go).
 	if got := body.BValues; len(got) != 3 || got[0] != 50 || got[1] != 800 || got[2] != 1400 || body.LowestB != 50 || body.Head {
@@ -51,7 +51,7 @@ func TestDefaultConfigHoldsTheDocumentedValues(t *testing.T) {
 	}
 	ice := c.Phantoms[0]
 	// QIBA DWI profile: 1.10e-3 mm²/s at 0 °C; ±3.6% from memory, not
-	// verified (DOMAIN.md).
+	// verified (docs/references.md#phantom-tolerance).
 	if ice.ExpectedADC != 1.10e-3 || ice.Tolerance != 0.036 {
 		t.Errorf("ice-water profile %+v", ice)
 	}
@@ -59,10 +59,10 @@ func TestDefaultConfigHoldsTheDocumentedValues(t *testing.T) {
 	if th.ADCOutOfRange.FreeWaterADC != 3.0e-3 { // Holz 2000 at 37 °C, as issue 5 rounds it
 		t.Errorf("free water %v", th.ADCOutOfRange.FreeWaterADC)
 	}
-	if th.LowSNR.MinHighBSNR != 3 { // DOMAIN.md: flag high-b SNR below about 3 (Gudbjartsson & Patz 1995)
+	if th.LowSNR.MinHighBSNR != 3 { // docs/references.md#rician-floor: flag high-b SNR below about 3 (Gudbjartsson & Patz 1995)
 		t.Errorf("high-b SNR limit %v", th.LowSNR.MinHighBSNR)
 	}
-	if th.ScannerADC.Tolerance != 0.08 { // DOMAIN.md: > 8% is the change worth reporting (QIBA review, Radiology 2024)
+	if th.ScannerADC.Tolerance != 0.08 { // docs/references.md#qiba-review-2024: > 8% is the change worth reporting (QIBA review, Radiology 2024)
 		t.Errorf("scanner ADC tolerance %v", th.ScannerADC.Tolerance)
 	}
 }

@@ -16,7 +16,7 @@ import (
 // The audit cannot tell distinct directions from repeats of one. The
 // assembly takes their geometric mean per slice as the trace: right when
 // they are distinct directions whose second moment is isotropic (three
-// orthogonal ones, a balanced scheme; Basser & Pierpaoli, DOMAIN.md),
+// orthogonal ones, a balanced scheme; Basser & Pierpaoli, docs/references.md#basser-pierpaoli),
 // biased by how the fibres lie when they are repeats of fewer
 // directions or an unbalanced set. Warning: the ADC may be wrong, and
 // the direction count cannot be checked against the protocol.

@@ -91,7 +91,7 @@ func (e expectation) referenceOnly(s *dwi.Series) bool {
 
 // Formatting for messages.
 
-// fmtADC writes an ADC in the units of DOMAIN.md: "0.71e-3 mm²/s".
+// fmtADC writes an ADC in the units of docs/references.md#units: "0.71e-3 mm²/s".
 func fmtADC(v float64) string { return fmt.Sprintf("%.2fe-3 mm²/s", v*1e3) }
 
 // fmtB writes b-values: "0, 1000 s/mm²".

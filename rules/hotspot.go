@@ -1,7 +1,7 @@
 package rules
 
-// The b0-only-hotspot rule: the product's core case (DOMAIN.md,
-// Physics). An artifact on the b0 alone (wrap-around/aliasing, Nyquist
+// The b0-only-hotspot rule: the product's core case
+// (docs/references.md#b0-only-artifacts). An artifact on the b0 alone (wrap-around/aliasing, Nyquist
 // N/2 ghost, spike, signal dropout) passes straight into the ADC: a b0
 // scaled by k shifts the ADC by ln(k)/b, while the DWI stays normal
 // there. The rule finds regions where the b0 departs from what its
@@ -14,7 +14,7 @@ package rules
 // Work in logarithms: for every voxel let β = ln(b0/b0̂) and
 // δ = ln(dwi/dwî) be the departures of the b0 and of the highest-b trace
 // from their predictions b0̂ and dwî, and ΔADC = ADC − ADĈ. The
-// mono-exponential model (DOMAIN.md) gives b·ΔADC ≈ β − δ, so the three
+// mono-exponential model (docs/references.md#mono-exponential) gives b·ΔADC ≈ β − δ, so the three
 // kinds of abnormality separate by which image carries the change:
 //
 //	                      β (b0)     δ (DWI)        ΔADC
@@ -109,10 +109,10 @@ package rules
 // Warning by default: the ADC in the region cannot be trusted. Error
 // when the region's median ADC shift reaches ErrorADCShift (default
 // 0.3e-3 mm²/s): larger than the whole width of normal white matter
-// (0.62-0.79e-3, Helenius et al., AJNR 2002;23:194; DOMAIN.md) and
+// (0.62-0.79e-3, Helenius et al., AJNR 2002;23:194; docs/references.md#helenius-2002) and
 // enough to take white matter at 0.70e-3 to 0.4e-3, where acute
 // restriction is read, or to 1.0e-3, the range of oedema (common
-// practice): a map a reader could misinterpret. DOMAIN.md's example
+// practice): a map a reader could misinterpret. The example in docs/references.md#b0-only-artifacts
 // k = 0.6 gives −0.51e-3.
 //
 // # Sensitivity
@@ -156,7 +156,7 @@ type HotspotThresholds struct {
 	// practice; 3σ at SNR 20 is 15%), and beyond the phantom's
 	// restriction lesion, whose b0 is 1.16 times the prediction. At
 	// b = 1000 a 20% change shifts the ADC by ln(1.2)/b = +0.18e-3 or
-	// ln(0.8)/b = −0.22e-3 (DOMAIN.md), so there MinADCShift decides;
+	// ln(0.8)/b = −0.22e-3 (docs/references.md#b0-only-artifacts), so there MinADCShift decides;
 	// at lower b-values this test does.
 	MinB0Departure float64 `yaml:"min_b0_departure"`
 	// NoiseSigmas is how many noise standard deviations a voxel's b0
@@ -176,14 +176,14 @@ type HotspotThresholds struct {
 	MaxDWIShare float64 `yaml:"max_dwi_share"`
 	// MinADCShift is the smallest ADC change against the prediction,
 	// mm²/s. Default 0.25e-3: above the grey-white difference (0.89e-3
-	// against 0.70e-3, Helenius 2002; DOMAIN.md). Test 2 keeps cortex
+	// against 0.70e-3, Helenius 2002; docs/references.md#helenius-2002). Test 2 keeps cortex
 	// out at b = 1000, but near b = 1500 (and so in multi-b protocols
 	// reaching it) the longer T2 and higher ADC of grey matter cancel on
 	// the DWI (ln(800/600) = 0.19e-3·1500), and cortex then looks
 	// exactly like a b0-only change of +33%: only its ADC shift, 0.19e-3,
 	// tells it apart. 0.25e-3 is also about 30% of parenchyma, far beyond
 	// the 8% worth reporting (QIBA profile review, Radiology 2024;
-	// DOMAIN.md).
+	// docs/references.md#qiba-review-2024).
 	MinADCShift float64 `yaml:"min_adc_shift"`
 	// ErrorADCShift is the median ADC shift of a region from which the
 	// finding is an error instead of a warning, mm²/s. Default 0.3e-3
@@ -204,7 +204,7 @@ type HotspotThresholds struct {
 	// its surroundings predict must lie for the voxel to be tested:
 	// below that the DWI cannot show a change (the Rician floor,
 	// Gudbjartsson & Patz, MRM 1995;34:910), and "the DWI did not
-	// change" means nothing. Default 3 (DOMAIN.md: high-b SNR below
+	// change" means nothing. Default 3 (docs/references.md#rician-floor: high-b SNR below
 	// about 3 is at the floor).
 	MeasurableSigmas float64 `yaml:"measurable_sigmas"`
 	// WindowMM is the side of the square window the prediction is the
@@ -233,7 +233,7 @@ func DefaultHotspotThresholds() HotspotThresholds {
 // Limits on HotspotThresholds, each with its reason.
 const (
 	// hotspotMaxWindowMM bounds WindowMM: a window wider than any head
-	// (about 180 mm, DOMAIN.md's adult head; common practice) is the
+	// (about 180 mm, the adult head in docs/references.md#head-size; common practice) is the
 	// whole slice, and 400 mm covers any field of view.
 	hotspotMaxWindowMM = 400
 	// hotspotMaxEdgeMM bounds EdgeMM: 30 mm would erode a child's brain
@@ -1049,7 +1049,7 @@ func hotspotFindings(s *Study, sa *SeriesAudit, regions []hotspotRegion, th Hots
 		fmt.Fprintf(&msg, "b0 %s and DWI %s against what the surroundings predict; ADC %s mm2/s inside against %s around (%s",
 			hotspotPercent(r.b0Ratio), hotspotPercent(r.dwiRatio), hotspotADC(r.adcInside, false), hotspotADC(r.adcAround, false), hotspotADC(r.adcShift, true))
 		if res.Method == analysis.ADCTwoPoint {
-			// DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b.
+			// docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by ln(k)/b.
 			fmt.Fprintf(&msg, "; a b0 scaled by %.2f alone shifts it by ln(k)/b = %s at b = %g", r.b0Ratio, hotspotADC(math.Log(r.b0Ratio)/b, true), b)
 		}
 		msg.WriteString("). ")
@@ -1082,8 +1082,8 @@ func hotspotFindings(s *Study, sa *SeriesAudit, regions []hotspotRegion, th Hots
 	return out
 }
 
-// hotspotADC writes an ADC (mm²/s) in units of 1e-3, as DOMAIN.md's
-// tables do; signed for a shift.
+// hotspotADC writes an ADC (mm²/s) in units of 1e-3, as the
+// tables in docs/references.md#units do; signed for a shift.
 func hotspotADC(v float64, signed bool) string {
 	if signed {
 		return fmt.Sprintf("%+.2fe-3", v*1e3)

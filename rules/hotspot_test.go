@@ -127,7 +127,7 @@ func TestHotspotFiresOnPlantedB0Artifacts(t *testing.T) {
 						if f.Rule != HotspotID || f.SeriesUID != sa.Series.SeriesInstanceUID || f.StudyUID != study.StudyUID {
 							t.Errorf("finding names rule %q series %q study %q", f.Rule, f.SeriesUID, f.StudyUID)
 						}
-						// DOMAIN.md: k = 0.6 gives -0.51e-3 at b = 1000, the
+						// docs/references.md#b0-only-artifacts: k = 0.6 gives -0.51e-3 at b = 1000, the
 						// aliasing's k ≈ 1.67 +0.51e-3; both beyond
 						// ErrorADCShift at the region's median.
 						if f.Severity != SeverityError {
@@ -210,7 +210,7 @@ func TestHotspotIsSilentWithoutB0Artifact(t *testing.T) {
 
 // TestHotspotVoxelTestSeparatesTheSignatures runs tests 1-3 of the
 // method on the departures each kind of change gives, from the
-// mono-exponential model (DOMAIN.md: a b0 scaled by k shifts ADC by
+// mono-exponential model (docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by
 // ln(k)/b) and the phantom's tissues (S0 and ADC of physics.go: white
 // matter 600 and 0.70e-3, grey matter 800 and 0.89e-3, CSF 2000 and
 // 3.0e-3, the restriction lesion 700 and 0.4e-3, the shine-through
@@ -243,7 +243,7 @@ func TestHotspotVoxelTestSeparatesTheSignatures(t *testing.T) {
 		want bool
 	}{
 		{"a b0 raised by half (wrap-around) is flagged", d(b0Only(1.5)), true},
-		{"a b0 at 0.6 (dropout, DOMAIN.md's example) is flagged", d(b0Only(0.6)), true},
+		{"a b0 at 0.6 (dropout, the example in references.md#b0-only-artifacts) is flagged", d(b0Only(0.6)), true},
 		{"a b0 raised by a tenth is below MinB0Departure", d(b0Only(1.1)), false},
 		{"true restriction (DWI bright, ADC low, b0 about normal) is not", d(tissue(700, 0.4e-3)), false},
 		{"T2 shine-through (b0 and DWI bright, ADC normal) is not", d(tissue(1800, 0.8e-3)), false},
@@ -370,7 +370,7 @@ func TestHotspotReportsTheRegionWhereItIs(t *testing.T) {
 			if f.Severity != c.sev {
 				t.Errorf("severity %v, want %v", f.Severity, c.sev)
 			}
-			// DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b.
+			// docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by ln(k)/b.
 			wantShift := math.Log(c.k) / 1000
 			in, around := f.Measured.(float64), f.Expected.(float64)
 			if math.Abs(around-0.70e-3) > 1e-6 || math.Abs(in-around-wantShift) > 1e-6 {

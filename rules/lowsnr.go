@@ -12,7 +12,7 @@ import (
 //     (the message gives the spread, (1/b)·sqrt(1/SNR0² + 1/SNRb²), the
 //     propagation of noise through ln(S0/Sb)/b).
 //   - High-b tissue SNR (error): tissue at the highest b-value near the
-//     noise floor (below min_high_b_snr, about 3; DOMAIN.md). Magnitude
+//     noise floor (below min_high_b_snr, about 3; docs/references.md#rician-floor). Magnitude
 //     images are biased up there (Gudbjartsson & Patz, MRM 1995;34:910),
 //     so the ADC is biased low, which looks like restriction.
 //

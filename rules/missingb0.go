@@ -9,12 +9,12 @@ import (
 
 // missingB0 is rule missing-b0: a diffusion series without an image at
 // its protocol's lowest b-value (the b0; 0 by default, 50 in body
-// protocols that avoid perfusion, DOMAIN.md IVIM) for its slice
+// protocols that avoid perfusion, docs/references.md#ivim) for its slice
 // positions. The b0 may come from another series of the study: the
 // assembly borrows it (dwi.AssembleStudy) when its slices lie on this
 // series' grid, so a borrowed b0 counts.
 //
-//   - No b0 at all: error. ADC = ln(S0/Sb)/b (DOMAIN.md) needs S0.
+//   - No b0 at all: error. ADC = ln(S0/Sb)/b (docs/references.md#mono-exponential) needs S0.
 //   - b0 for only some positions where the series has diffusion-weighted
 //     images: error, with the positions (Finding.Region): the ADC there
 //     cannot be computed. Positions missing from every volume (a gap in

@@ -37,7 +37,7 @@ func TestEachRuleFiresOnItsPlantedDefect(t *testing.T) {
 			rule: rules.IDMissingB0, severity: rules.SeverityError,
 			check: func(f rules.Finding, _ *phantom.Truth) string {
 				if !slices.Equal(f.Expected.([]float64), []float64{0}) || !strings.Contains(f.Message, "b = 0 s/mm²") {
-					return "does not name b = 0 as the missing b-value" // brain protocol's lowest b (DOMAIN.md)
+					return "does not name b = 0 as the missing b-value" // brain protocol's lowest b (docs/references.md#ivim)
 				}
 				return ""
 			},
@@ -47,7 +47,7 @@ func TestEachRuleFiresOnItsPlantedDefect(t *testing.T) {
 			rule: rules.IDBValueMismatch, severity: rules.SeverityWarning,
 			check: func(f rules.Finding, truth *phantom.Truth) string {
 				// The phantom writes 800 where the brain protocol says 1000
-				// (cases.go; DOMAIN.md typical brain b).
+				// (cases.go; docs/references.md#typical-b-values).
 				got, want := f.Measured.([]float64), f.Expected.([]float64)
 				if !slices.Equal(got, truth.HeaderB) || !slices.Equal(want, []float64{0, 1000}) {
 					return fmt.Sprintf("measured %v expected %v, want %v and [0 1000]", got, want, truth.HeaderB)
@@ -61,7 +61,7 @@ func TestEachRuleFiresOnItsPlantedDefect(t *testing.T) {
 			rule: rules.IDADCOutOfRange, severity: rules.SeverityError,
 			check: func(f rules.Finding, _ *phantom.Truth) string {
 				// 0.7 x white matter's 0.70e-3 is about 0.5e-3, below the
-				// brain range 0.6-1.1e-3 (DOMAIN.md).
+				// brain range 0.6-1.1e-3 (docs/references.md#parenchyma-range).
 				if v := f.Measured.(float64); !(v < 0.6e-3) || !strings.Contains(f.Message, "parenchyma") {
 					return fmt.Sprintf("measured %v, want the parenchyma median below 0.6e-3", v)
 				}
@@ -124,7 +124,7 @@ func TestEachRuleFiresOnItsPlantedDefect(t *testing.T) {
 			name: "a noisy study gives low-snr", opt: phantom.Options{Case: phantom.CaseLowSNR},
 			rule: rules.IDLowSNR, severity: rules.SeverityError,
 			check: func(f rules.Finding, _ *phantom.Truth) string {
-				if f.Severity == rules.SeverityError && !(f.Measured.(float64) < 3) { // DOMAIN.md: high-b SNR below about 3
+				if f.Severity == rules.SeverityError && !(f.Measured.(float64) < 3) { // docs/references.md#rician-floor: high-b SNR below about 3
 					return fmt.Sprintf("high-b SNR %v", f.Measured)
 				}
 				return ""
@@ -146,7 +146,7 @@ func TestEachRuleFiresOnItsPlantedDefect(t *testing.T) {
 			rule: rules.IDPhantomADCBias, severity: rules.SeverityWarning,
 			check: func(f rules.Finding, truth *phantom.Truth) string {
 				// Truth: water at 4 C, 1.26e-3 (Holz 2000 fit); expected
-				// 1.10e-3 (QIBA, DOMAIN.md).
+				// 1.10e-3 (QIBA, docs/references.md#ice-water-phantom).
 				if v := f.Measured.(float64); math.Abs(v/truth.WaterADC-1) > 0.02 || f.Expected.(float64) != 1.10e-3 {
 					return fmt.Sprintf("measured %v expected %v, truth %v", v, f.Expected, truth.WaterADC)
 				}

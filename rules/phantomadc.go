@@ -9,7 +9,7 @@ import (
 // phantomADCBias is rule phantom-adc-bias (warning): a series matched
 // by a phantom profile whose central-region ADC is outside the profile's
 // tolerance of its expected value (ice water: 1.10e-3 mm²/s at 0 °C,
-// QIBA; ±3.6%, from memory; DOMAIN.md).
+// QIBA; ±3.6%, from memory; docs/references.md#phantom-tolerance).
 //
 // The central region is the sphere of thresholds.phantom_adc_bias
 // .roi_radius_mm around the centroid of the tissue mask (the phantom's
@@ -21,7 +21,7 @@ import (
 // Warning, not error: a bias this rule sees is the scanner's diffusion
 // weighting, or a phantom not at 0 °C (water's ADC rises about 3.5% per
 // °C near 0 °C: the Holz 2000 fit D = D0 (T/Ts - 1)^γ gives
-// dD/dT / D = γ/(T - Ts) = 2.063/58.1 K; DOMAIN.md), and the physicist
+// dD/dT / D = γ/(T - Ts) = 2.063/58.1 K; docs/references.md#holz-2000), and the physicist
 // decides which.
 type phantomADCBias struct{}
 

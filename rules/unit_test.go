@@ -298,7 +298,7 @@ func computed(cfg *rules.Config, s *dwi.Series, m analysis.Measures) *rules.Stud
 	return st
 }
 
-// normalMeasures are those of a sound brain series (DOMAIN.md values:
+// normalMeasures are those of a sound brain series (docs/references.md#brain-adc values:
 // parenchyma 0.70e-3, CSF near 3.0e-3).
 func normalMeasures() analysis.Measures {
 	return analysis.Measures{ParenchymaMedianADC: 0.72e-3, CSFADC: 2.95e-3, TissueVoxels: 1000, ParenchymaVoxels: 900, ADCVoxels: 1000,
@@ -378,7 +378,7 @@ func TestLowSNROnHandBuiltMeasures(t *testing.T) {
 		t.Fatalf("got %s", describe(fs))
 	}
 	// (1/b)·sqrt(1/8² + 1/2.5²) = 0.42e-3 at b = 1000 (noise through
-	// ln(S0/Sb)/b, DOMAIN.md's model).
+	// ln(S0/Sb)/b, the model in docs/references.md#mono-exponential).
 	if !strings.Contains(fs[0].Message, "±0.42e-3 mm²/s") {
 		t.Errorf("message %q lacks the ADC spread", fs[0].Message)
 	}
@@ -403,7 +403,7 @@ func mapSeries(cfg *rules.Config, pixel float32, rwv []dwi.RealWorldValue) *rule
 	s.Maps = []*dwi.Volume{m}
 	res := &analysis.Result{Series: s, Measures: normalMeasures(), ADC: adc.NewVolume3(unitPixels, unitPixels, len(g)), Mask: make([]bool, n*len(g))}
 	for i := range res.ADC.Data {
-		res.ADC.Data[i], res.Mask[i] = 0.7e-3, true // the worked values of DOMAIN.md's white matter (Helenius 2002)
+		res.ADC.Data[i], res.Mask[i] = 0.7e-3, true // the worked values of the white matter in docs/references.md#brain-adc (Helenius 2002)
 	}
 	return &rules.Study{StudyUID: "1.2.3", Series: []*rules.SeriesAudit{rules.NewSeriesAudit(cfg, s, res, nil)}}
 }

@@ -10,7 +10,7 @@ import (
 )
 
 // maxPlausibleADC (mm²/s) bounds every configured ADC: free water at 37
-// °C is 3.04e-3 (Holz 2000, DOMAIN.md) and nothing in a patient or a
+// °C is 3.04e-3 (Holz 2000, docs/references.md#holz-2000) and nothing in a patient or a
 // phantom diffuses much faster. A configured 0.6 where 0.6e-3 was meant
 // (units of 1e-3 mm²/s) is caught by it.
 const maxPlausibleADC = 5e-3

@@ -4,7 +4,7 @@ Go maps of package audit (TestADCMatchesPythonReference).
 
 Reads DICOM files with pydicom and computes, with numpy in float64,
 
-    ADC = ln(S0 / Sb) / (b - b0)   (mm2/s; DOMAIN.md, Physics)
+    ADC = ln(S0 / Sb) / (b - b0)   (mm2/s; docs/references.md#mono-exponential)
 
 from the lowest-b images (the b0, or the trace of the lowest b-value when
 that is above 0, as in a b50/b800 body protocol) and the isotropic (trace)

@@ -8,8 +8,8 @@ import (
 // GeometricMean writes the voxel-wise geometric mean of dirs into dst:
 // (Sx·Sy·Sz)^(1/3) for three directions. For three orthogonal directions
 // of one b-value this is the trace-weighted image, S0·exp(-b·Tr(D)/3),
-// free of the tissue's orientation (Basser & Pierpaoli; DOMAIN.md,
-// Physics). For other direction sets it is the trace image only when
+// free of the tissue's orientation (Basser & Pierpaoli;
+// docs/references.md#basser-pierpaoli). For other direction sets it is the trace image only when
 // their second moment is isotropic (the mean of g·gᵀ is I/3).
 //
 // A voxel is NaN when any input is NaN or negative (the geometric mean of
@@ -94,7 +94,7 @@ func cbrtPositive(x float64) float64 {
 const cbrtMagic = 0x2A9F7893782DA1CE
 
 // TwoPointValue is the two-point ADC of one voxel in float64,
-// ln(s0/sb)/b (DOMAIN.md, Physics): the kernel TwoPoint applies to every
+// ln(s0/sb)/b (docs/references.md#mono-exponential): the kernel TwoPoint applies to every
 // voxel. It is NaN unless both signals are above floor and b > 0. b is
 // the difference of the two b-values when the reference is not b = 0.
 func TwoPointValue(s0, sb, b, floor float64) float64 {
@@ -105,7 +105,7 @@ func TwoPointValue(s0, sb, b, floor float64) float64 {
 }
 
 // TwoPoint writes the two-point ADC map ln(S0/Sb)/b, in mm²/s for b in
-// s/mm², into dst (DOMAIN.md, Physics). A voxel is NaN where S0 or Sb is
+// s/mm², into dst (docs/references.md#mono-exponential). A voxel is NaN where S0 or Sb is
 // at or below floor (or NaN): the logarithm of a signal at the noise
 // floor says nothing about diffusion. A negative ADC (Sb > S0) is kept:
 // its frequency is a measure of the series. Each voxel is computed in
@@ -135,7 +135,7 @@ func TwoPoint(dst, s0, sb []float32, b float64, floor float32) {
 // The weights S² make each point count by the inverse of the variance
 // its logarithm has under Gaussian noise (var ln S ≈ σ²/S²), so the weak
 // high-b signals do not dominate the fit the way they do unweighted
-// (Chad & Pasternak, ISMRM 2020 #4415; DOMAIN.md). The weights are the
+// (Chad & Pasternak, ISMRM 2020 #4415; docs/references.md#chad-pasternak-2020). The weights are the
 // measured signals (one pass, no iteration).
 //
 // Points at or below floor are left out. A voxel with fewer than two
@@ -192,8 +192,8 @@ func FitWLS(dst, s0fit []float32, signals [][]float32, b []float64, floor float3
 // give 1e-3 and more, so 1e-9 separates the two with room to spare.
 const minRelativeSpread = 1e-9
 
-// EADC writes the exponential ADC Sb/S0 = exp(-b·ADC) into dst (DOMAIN.md,
-// Physics). A voxel is NaN where S0 is not positive or either signal is
+// EADC writes the exponential ADC Sb/S0 = exp(-b·ADC) into dst
+// (docs/references.md#eadc). A voxel is NaN where S0 is not positive or either signal is
 // NaN.
 func EADC(dst, s0, sb []float32) {
 	sameLen("EADC", len(dst), s0, sb)

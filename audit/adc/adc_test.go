@@ -5,7 +5,7 @@ import (
 	"testing"
 )
 
-// DOMAIN.md, "Worked example for unit tests": S0 = 1000, Sb = 367.879 at
+// docs/references.md#worked-example: S0 = 1000, Sb = 367.879 at
 // b = 1000 gives ADC = 1.000e-3 mm²/s and eADC = 0.3679 (exact exp(-1)).
 const (
 	workedS0   = 1000.0
@@ -20,10 +20,10 @@ func TestWorkedExample(t *testing.T) {
 
 	t.Run("the float64 kernel gives ln(S0/Sb)/b to 1e-9", func(t *testing.T) {
 		got := TwoPointValue(workedS0, workedSb, workedB, 0)
-		if rel := math.Abs(got-exact) / exact; rel > 1e-9 { // DOMAIN.md worked example, exact form
+		if rel := math.Abs(got-exact) / exact; rel > 1e-9 { // docs/references.md#worked-example, exact form
 			t.Errorf("ADC = %.12g, exact %.12g (relative error %.2g)", got, exact, rel)
 		}
-		if math.Abs(got-workedADC) > 0.0005e-3 { // DOMAIN.md worked example: 1.000e-3 to four figures
+		if math.Abs(got-workedADC) > 0.0005e-3 { // docs/references.md#worked-example: 1.000e-3 to four figures
 			t.Errorf("ADC = %.6g, want 1.000e-3", got)
 		}
 	})
@@ -35,7 +35,7 @@ func TestWorkedExample(t *testing.T) {
 		// 1e-9 check above is on the float64 kernel the map applies.
 		dst := make([]float32, 1)
 		TwoPoint(dst, []float32{workedS0}, []float32{workedSb}, workedB, 0)
-		if rel := math.Abs(float64(dst[0])-exact) / exact; rel > 1e-7 { // DOMAIN.md worked example
+		if rel := math.Abs(float64(dst[0])-exact) / exact; rel > 1e-7 { // docs/references.md#worked-example
 			t.Errorf("ADC map = %.9g, exact %.12g (relative error %.2g)", dst[0], exact, rel)
 		}
 	})
@@ -43,10 +43,10 @@ func TestWorkedExample(t *testing.T) {
 	t.Run("eADC is exp(-1) to four figures", func(t *testing.T) {
 		dst := make([]float32, 1)
 		EADC(dst, []float32{workedS0}, []float32{workedSb})
-		if math.Abs(float64(dst[0])-math.Exp(-1)) > 0.00005 { // DOMAIN.md worked example: 0.3679 = exp(-1)
+		if math.Abs(float64(dst[0])-math.Exp(-1)) > 0.00005 { // docs/references.md#worked-example: 0.3679 = exp(-1)
 			t.Errorf("eADC = %.7g, want exp(-1) = %.7g", dst[0], math.Exp(-1))
 		}
-		if math.Abs(float64(dst[0])-workedEADC) > 0.00005 { // DOMAIN.md worked example
+		if math.Abs(float64(dst[0])-workedEADC) > 0.00005 { // docs/references.md#worked-example
 			t.Errorf("eADC = %.7g, want 0.3679", dst[0])
 		}
 	})
@@ -82,7 +82,7 @@ func TestTwoPoint(t *testing.T) {
 				}
 				return
 			}
-			// Mono-exponential model, DOMAIN.md Physics; float32 storage.
+			// Mono-exponential model, docs/references.md#mono-exponential; float32 storage.
 			if math.Abs(got-c.want) > 1e-7*math.Abs(c.want) {
 				t.Errorf("ADC = %.9g, want %.9g", got, c.want)
 			}
@@ -94,7 +94,7 @@ func TestTwoPoint(t *testing.T) {
 }
 
 // TestTraceOfOrthogonalDirections checks (Sx·Sy·Sz)^(1/3) =
-// S0·exp(-b·Tr(D)/3), which follows from the model (DOMAIN.md Physics;
+// S0·exp(-b·Tr(D)/3), which follows from the model (docs/references.md#basser-pierpaoli;
 // Basser & Pierpaoli), for an anisotropic voxel whose principal axes lie
 // along the gradients.
 func TestTraceOfOrthogonalDirections(t *testing.T) {
@@ -122,7 +122,7 @@ func TestTraceOfOrthogonalDirections(t *testing.T) {
 			mean := sum / float64(len(dirs))
 			dst := make([]float32, 1)
 			GeometricMean(dst, dirs...)
-			want := c.s0 * math.Exp(-c.b*mean) // Tr(D)/3 = mean of the directional D, Basser & Pierpaoli via DOMAIN.md
+			want := c.s0 * math.Exp(-c.b*mean) // Tr(D)/3 = mean of the directional D, Basser & Pierpaoli via docs/references.md#basser-pierpaoli
 			if rel := math.Abs(float64(dst[0])-want) / want; rel > 3e-7 {
 				t.Errorf("trace = %.9g, model %.9g (relative %.2g)", dst[0], want, rel)
 			}
@@ -165,17 +165,17 @@ func TestFitWLS(t *testing.T) {
 		b    []float64
 		adc  float64
 	}{
-		{name: "white matter over b 0 500 1000 1500", b: []float64{0, 500, 1000, 1500}, adc: 0.70e-3}, // Helenius 2002 WM, DOMAIN.md
-		{name: "grey matter over b 0 1000 2000", b: []float64{0, 1000, 2000}, adc: 0.89e-3},           // Helenius 2002 cortical GM, DOMAIN.md
-		{name: "free water at 37 C over b 50 400 800", b: []float64{50, 400, 800}, adc: 3.037e-3},     // Holz 2000 via DOMAIN.md
-		{name: "b-values in any order", b: []float64{1000, 0, 500}, adc: 1.1e-3},                      // ice water, QIBA via DOMAIN.md
+		{name: "white matter over b 0 500 1000 1500", b: []float64{0, 500, 1000, 1500}, adc: 0.70e-3}, // Helenius 2002 WM, docs/references.md#helenius-2002
+		{name: "grey matter over b 0 1000 2000", b: []float64{0, 1000, 2000}, adc: 0.89e-3},           // Helenius 2002 cortical GM, docs/references.md#helenius-2002
+		{name: "free water at 37 C over b 50 400 800", b: []float64{50, 400, 800}, adc: 3.037e-3},     // Holz 2000 via docs/references.md#holz-2000
+		{name: "b-values in any order", b: []float64{1000, 0, 500}, adc: 1.1e-3},                      // ice water, QIBA via docs/references.md#ice-water-phantom
 		{name: "two b-values equal the two-point ADC", b: []float64{0, 1000}, adc: 0.75e-3},           // Helenius 2002 deep GM
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			signals := make([][]float32, len(c.b))
 			for k, b := range c.b {
-				signals[k] = []float32{float32(s0 * math.Exp(-b*c.adc))} // mono-exponential model, DOMAIN.md
+				signals[k] = []float32{float32(s0 * math.Exp(-b*c.adc))} // mono-exponential model, docs/references.md#mono-exponential
 			}
 			dst, s0fit := make([]float32, 1), make([]float32, 1)
 			FitWLS(dst, s0fit, signals, c.b, 0)
@@ -193,7 +193,7 @@ func TestFitWLS(t *testing.T) {
 		signals := [][]float32{{1000}, {float32(1000 * math.Exp(-0.5))}, {float32(1000 * math.Exp(-1))}, {3}}
 		dst := make([]float32, 1)
 		FitWLS(dst, nil, signals, b, 5)
-		if math.Abs(float64(dst[0])-1e-3) > 1e-8 { // model, DOMAIN.md; the b 3000 point is below the floor
+		if math.Abs(float64(dst[0])-1e-3) > 1e-8 { // model, docs/references.md#mono-exponential; the b 3000 point is below the floor
 			t.Errorf("ADC = %.7g, want 1e-3 from the three points above the floor", dst[0])
 		}
 	})

@@ -4,21 +4,21 @@
 // knows nothing of DICOM, files or series; package audit feeds it the
 // volumes that package audit/dwi assembled.
 //
-// Units are those of DOMAIN.md: b in s/mm², ADC in mm²/s, signals in
+// Units are those of docs/references.md#units: b in s/mm², ADC in mm²/s, signals in
 // rescaled pixel units. Maps are float32 (the storage of a volume) but
 // every per-voxel computation runs in float64 and is rounded once, on
 // store.
 //
-// The model is mono-exponential, S(b) = S0·exp(-b·ADC) (DOMAIN.md,
-// Physics):
+// The model is mono-exponential, S(b) = S0·exp(-b·ADC)
+// (docs/references.md#mono-exponential):
 //
 //   - GeometricMean makes the trace-weighted image of three orthogonal
 //     directions, (Sx·Sy·Sz)^(1/3) = S0·exp(-b·Tr(D)/3) (Basser &
-//     Pierpaoli; DOMAIN.md).
+//     Pierpaoli; docs/references.md#basser-pierpaoli).
 //   - TwoPoint is ln(S0/Sb)/b; FitWLS is the log-linear fit over several
 //     b-values weighted by S², because the logarithm amplifies the noise
-//     of weak signals (Chad & Pasternak, ISMRM 2020 #4415; DOMAIN.md).
-//   - EADC is Sb/S0 = exp(-b·ADC) (DOMAIN.md).
+//     of weak signals (Chad & Pasternak, ISMRM 2020 #4415; docs/references.md#chad-pasternak-2020).
+//   - EADC is Sb/S0 = exp(-b·ADC) (docs/references.md#eadc).
 //   - BackgroundNoise and NoiseFromDifference estimate the noise standard
 //     deviation in the two ways of NEMA MS 1-2008 (background region,
 //     difference of two repeats; see noise.go).

@@ -178,7 +178,7 @@ func TestMedian9MatchesSorting(t *testing.T) {
 
 // TestMaskThresholdLeavesBackgroundOut: on pure Rayleigh noise (the
 // background of a magnitude image, Gudbjartsson & Patz 1995 via
-// DOMAIN.md) almost no filtered voxel is above the threshold.
+// docs/references.md#gudbjartsson-patz-1995) almost no filtered voxel is above the threshold.
 func TestMaskThresholdLeavesBackgroundOut(t *testing.T) {
 	const sigma = 15.0
 	rng := rand.New(rand.NewPCG(10, 11))

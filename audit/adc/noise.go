@@ -12,7 +12,7 @@ const (
 	// NoiseBackgroundRayleigh: the mean of magnitude pixels in background
 	// regions of interest, divided by √(π/2). Magnitude noise where the
 	// true signal is zero follows a Rayleigh distribution (Gudbjartsson &
-	// Patz, MRM 1995;34:910; DOMAIN.md) whose mean is σ·√(π/2) (from
+	// Patz, MRM 1995;34:910; docs/references.md#gudbjartsson-patz-1995) whose mean is σ·√(π/2) (from
 	// memory), σ being the standard deviation of the noise on each of the
 	// real and imaginary channels. This is the background-region method
 	// of NEMA MS 1-2008 (from memory, not re-read), computed per region

@@ -8,7 +8,7 @@ import (
 
 // rician returns the magnitude of signal s plus complex Gaussian noise of
 // σ per channel: the noise of a magnitude MR image (Gudbjartsson & Patz,
-// MRM 1995;34:910, via DOMAIN.md).
+// MRM 1995;34:910, via docs/references.md#gudbjartsson-patz-1995).
 func rician(rng *rand.Rand, s, sigma float64) float32 {
 	re := s + sigma*rng.NormFloat64()
 	im := sigma * rng.NormFloat64()

@@ -27,22 +27,22 @@ type AnalyzeConfig struct {
 	// ParenchymaADCMax (mm²/s) splits the tissue mask: voxels whose ADC
 	// is below it are parenchyma, the rest CSF and partial volume.
 	// Default 1.6e-3 (inference): every range of Helenius et al. (AJNR
-	// 2002;23:194; DOMAIN.md) ends by 1.09e-3 and DOMAIN.md widens the
+	// 2002;23:194; docs/references.md#helenius-2002) ends by 1.09e-3 and docs/references.md#parenchyma-range widens the
 	// parenchyma median to 1.1e-3 for age and field; 1.6e-3 is half as
 	// much again, room for ageing white matter and oedema, and still
 	// nearer parenchyma than free water at 37 C (3.04e-3, Holz 2000;
-	// DOMAIN.md), so voxels that are mostly CSF go to CSF.
+	// docs/references.md#holz-2000), so voxels that are mostly CSF go to CSF.
 	ParenchymaADCMax float64
 	// CSFPercentile is the percentile of the ADC of the whole tissue mask
 	// reported as the CSF ADC: a high percentile, because partial volume
-	// pulls CSF down (DOMAIN.md, Physiological sanity). Default 95: CSF
+	// pulls CSF down (docs/references.md#csf-reference). Default 95: CSF
 	// (ventricles, sulci, subarachnoid space) is more than 5% of the
 	// intracranial volume in adults (common practice), so the 95th
 	// percentile lies inside CSF.
 	CSFPercentile float64
 	// FreeWaterCeiling (mm²/s) is the ADC no tissue exceeds at body
 	// temperature; the fraction of the mask above it is a measure.
-	// Default 3.4e-3 (DOMAIN.md, Physiological sanity).
+	// Default 3.4e-3 (docs/references.md#free-water-ceiling).
 	FreeWaterCeiling float64
 	// SignalFloor: signals at or below it give no ADC (adc.TwoPoint).
 	// Default 0: only a signal whose logarithm is undefined is left out,
@@ -52,7 +52,7 @@ type AnalyzeConfig struct {
 	// ReferenceBMax (s/mm²) is the largest b-value accepted as the
 	// reference (b0) image. Default 200: perfusion (IVIM) acts below
 	// about 200 s/mm², which is why body protocols use b = 50 instead of
-	// b = 0 (Eur Radiol 2010, doi 10.1007/s00330-010-2017-y; DOMAIN.md);
+	// b = 0 (Eur Radiol 2010, doi 10.1007/s00330-010-2017-y; docs/references.md#eur-radiol-2010-ivim);
 	// a series whose lowest b-value is above that has no b0.
 	ReferenceBMax float64
 	// MeasurableSigmas: a diffusion-weighted signal below this many noise
@@ -60,7 +60,7 @@ type AnalyzeConfig struct {
 	// from it is a lower bound, not a value: magnitude images are biased
 	// up there (Rician bias, Gudbjartsson & Patz, MRM 1995;34:910), so
 	// the signal reads high and the ADC low. Default 3: the SNR below
-	// which DOMAIN.md flags tissue (after Gudbjartsson & Patz's 2-3);
+	// which docs/references.md#rician-floor flags tissue (after Gudbjartsson & Patz's 2-3);
 	// at 3σ the Rician mean sqrt(A²+σ²) is 5% above the signal A.
 	MeasurableSigmas float64
 	// MinCSFShare is the least share of the mask's voxels with an ADC
@@ -204,10 +204,10 @@ type Result struct {
 // measure is undefined (no noise estimate, an empty region).
 type Measures struct {
 	// ParenchymaMedianADC is the median ADC of Parenchyma, mm²/s
-	// (DOMAIN.md: 0.6-1.1e-3 expected in brain).
+	// (docs/references.md#parenchyma-range: 0.6-1.1e-3 expected in brain).
 	ParenchymaMedianADC float64
 	// CSFADC is the AnalyzeConfig.CSFPercentile-th percentile of the ADC
-	// inside the mask, mm²/s (DOMAIN.md: about 3e-3 expected). It exists
+	// inside the mask, mm²/s (docs/references.md#csf-reference: about 3e-3 expected). It exists
 	// only when the mask holds enough CSF (AnalyzeConfig.MinCSFShare)
 	// and the diffusion-weighted signal of the voxels it rests on (those
 	// at or above the percentile) is measurable: their median at least
@@ -244,7 +244,7 @@ type Measures struct {
 	// HighBTissueSNR is the median highest-b trace signal of Parenchyma
 	// over HighBNoise.Sigma: the SNR of one diffusion-weighted image in
 	// tissue, which is what decides the Rician bias (Gudbjartsson & Patz,
-	// MRM 1995;34:910; DOMAIN.md: flag below about 3).
+	// MRM 1995;34:910; docs/references.md#rician-floor: flag below about 3).
 	HighBTissueSNR float64
 	// TissueVoxels and ParenchymaVoxels count Mask and Parenchyma;
 	// ADCVoxels the mask voxels with a defined ADC.

@@ -79,7 +79,7 @@ var (
 	dirZ = dwi.Direction{0, 0, 1}
 )
 
-// TestAnalyzeWorkedExample runs DOMAIN.md's worked example through the
+// TestAnalyzeWorkedExample runs the worked example in docs/references.md#worked-example through the
 // whole glue: S0 = 1000, Sb = 367.879 at b = 1000.
 func TestAnalyzeWorkedExample(t *testing.T) {
 	s := memSeries(8, 8, 2,
@@ -92,13 +92,13 @@ func TestAnalyzeWorkedExample(t *testing.T) {
 	}
 	exact := math.Log(1000/float64(float32(367.879))) / 1000
 	for i, v := range res.ADC.Data {
-		// DOMAIN.md worked example. The map is float32: the bound is one
+		// docs/references.md#worked-example. The map is float32: the bound is one
 		// float32 rounding of the float64 result (6e-8 relative); the
 		// 1e-9 check of the kernel itself is in package adc.
 		if rel := math.Abs(float64(v)-exact) / exact; rel > 1e-7 {
 			t.Fatalf("ADC[%d] = %.9g, want %.12g", i, v, exact)
 		}
-		if math.Abs(float64(res.EADC.Data[i])-math.Exp(-1)) > 5e-5 { // DOMAIN.md worked example: eADC 0.3679 = exp(-1)
+		if math.Abs(float64(res.EADC.Data[i])-math.Exp(-1)) > 5e-5 { // docs/references.md#worked-example: eADC 0.3679 = exp(-1)
 			t.Fatalf("eADC[%d] = %.7g, want exp(-1)", i, res.EADC.Data[i])
 		}
 	}
@@ -109,11 +109,11 @@ func TestAnalyzeWorkedExample(t *testing.T) {
 
 // TestAnalyzeTraceOfDirections checks that, with directional images
 // only, the trace is their geometric mean and the ADC is mean(D):
-// (Sx·Sy·Sz)^(1/3) = S0·exp(-b·Tr(D)/3) (DOMAIN.md Physics; Basser &
+// (Sx·Sy·Sz)^(1/3) = S0·exp(-b·Tr(D)/3) (docs/references.md#basser-pierpaoli; Basser &
 // Pierpaoli).
 func TestAnalyzeTraceOfDirections(t *testing.T) {
 	const s0, b = 900.0, 1000.0
-	d := [3]float64{1.0e-3, 0.55e-3, 0.55e-3} // a fibre along x; mean 0.70e-3 (Helenius 2002 WM, DOMAIN.md)
+	d := [3]float64{1.0e-3, 0.55e-3, 0.55e-3} // a fibre along x; mean 0.70e-3 (Helenius 2002 WM, docs/references.md#helenius-2002)
 	mean := (d[0] + d[1] + d[2]) / 3
 	s := memSeries(8, 8, 3,
 		volSpec{b: 0, pixel: constant(s0)},
@@ -129,7 +129,7 @@ func TestAnalyzeTraceOfDirections(t *testing.T) {
 	if hb.Source != TraceGeometricMean || hb.Directions != 3 {
 		t.Errorf("trace from %v of %d directions, want the geometric mean of 3", hb.Source, hb.Directions)
 	}
-	want := s0 * math.Exp(-b*mean) // the model's trace, Basser & Pierpaoli via DOMAIN.md
+	want := s0 * math.Exp(-b*mean) // the model's trace, Basser & Pierpaoli via docs/references.md#basser-pierpaoli
 	for i, v := range hb.Trace.Data {
 		if rel := math.Abs(float64(v)-want) / want; rel > 3e-7 {
 			t.Fatalf("trace[%d] = %.9g, model %.9g", i, v, want)
@@ -157,15 +157,15 @@ func TestAnalyzePrefersTheIsotropicImage(t *testing.T) {
 	if res.HighB[0].Source != TraceIsotropic {
 		t.Errorf("trace source = %v, want the isotropic image", res.HighB[0].Source)
 	}
-	if got := res.ADC.Data[0]; math.Abs(float64(got)-0.8e-3) > 1e-9 { // model, DOMAIN.md
+	if got := res.ADC.Data[0]; math.Abs(float64(got)-0.8e-3) > 1e-9 { // model, docs/references.md#mono-exponential
 		t.Errorf("ADC = %g, want 0.8e-3 from the isotropic image", got)
 	}
 }
 
 // TestAnalyzeMultiB checks the weighted fit on noiseless data of four
-// b-values: it returns the true ADC (mono-exponential model, DOMAIN.md).
+// b-values: it returns the true ADC (mono-exponential model, docs/references.md#mono-exponential).
 func TestAnalyzeMultiB(t *testing.T) {
-	const s0, d = 1200.0, 0.89e-3 // Helenius 2002 cortical GM, DOMAIN.md
+	const s0, d = 1200.0, 0.89e-3 // Helenius 2002 cortical GM, docs/references.md#helenius-2002
 	var specs []volSpec
 	for _, b := range []float64{0, 500, 1000, 1500} {
 		specs = append(specs, volSpec{b: b, pixel: constant(s0 * math.Exp(-b*d))})
@@ -271,7 +271,7 @@ func TestAnalyzeMissingSliceIsNaN(t *testing.T) {
 }
 
 // headSpec makes a noisy elliptical head: white matter inside, a CSF rim,
-// Rician noise of sigma (Gudbjartsson & Patz 1995, via DOMAIN.md).
+// Rician noise of sigma (Gudbjartsson & Patz 1995, via docs/references.md#gudbjartsson-patz-1995).
 type headSpec struct {
 	rows, cols, slices int
 	sigma              float64
@@ -279,8 +279,8 @@ type headSpec struct {
 }
 
 // tissueAt returns S0 and ADC at (r, c): WM 600 / 0.70e-3 (Helenius 2002
-// via DOMAIN.md), a CSF shell 2000 / 3.0e-3 (near free water at 37 C,
-// Holz 2000 via DOMAIN.md), or background.
+// via docs/references.md#helenius-2002), a CSF shell 2000 / 3.0e-3 (near free water at 37 C,
+// Holz 2000 via docs/references.md#holz-2000), or background.
 func (h headSpec) tissueAt(r, c int) (s0, d float64) {
 	y := (float64(r) - float64(h.rows-1)/2) / (0.40 * float64(h.rows))
 	x := (float64(c) - float64(h.cols-1)/2) / (0.33 * float64(h.cols))
@@ -323,10 +323,10 @@ func TestAnalyzeMeasuresOfASimpleHead(t *testing.T) {
 		t.Fatalf("Analyze: %v, cannot compute %q", err, res.CannotCompute)
 	}
 	m := res.Measures
-	if math.Abs(m.ParenchymaMedianADC-0.70e-3)/0.70e-3 > 0.02 { // Helenius 2002 WM via DOMAIN.md, the head's truth
+	if math.Abs(m.ParenchymaMedianADC-0.70e-3)/0.70e-3 > 0.02 { // Helenius 2002 WM via docs/references.md#helenius-2002, the head's truth
 		t.Errorf("parenchyma median ADC = %.4g, want 0.70e-3 within 2%%", m.ParenchymaMedianADC)
 	}
-	if m.CSFADC < 2.7e-3 || m.CSFADC > 3.4e-3 { // CSF truth 3.0e-3, high percentile; DOMAIN.md: about 3e-3
+	if m.CSFADC < 2.7e-3 || m.CSFADC > 3.4e-3 { // CSF truth 3.0e-3, high percentile; docs/references.md#csf-reference: about 3e-3
 		t.Errorf("CSF ADC = %.4g, want about 3.0e-3", m.CSFADC)
 	}
 	if snr := 600 / h.sigma; math.Abs(m.B0SNR-snr)/snr > 0.10 { // the head's chosen SNR; NEMA-style background method

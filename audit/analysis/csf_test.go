@@ -10,8 +10,8 @@ import (
 
 // csfResult is a computed result of n voxels, all in the mask: a share
 // csf of them CSF (b0 2000, ADC 3.0e-3 mm²/s, near free water at 37 °C,
-// Holz 2000 via DOMAIN.md) whose highest-b signal is dw, the rest
-// parenchyma (b0 600, ADC 0.7e-3, Helenius 2002 via DOMAIN.md) with
+// Holz 2000 via docs/references.md#holz-2000) whose highest-b signal is dw, the rest
+// parenchyma (b0 600, ADC 0.7e-3, Helenius 2002 via docs/references.md#helenius-2002) with
 // signal 300: the synthetic brain's values.
 func csfResult(n int, csf float64, dw float32) *Result {
 	res := &Result{

@@ -9,7 +9,7 @@
 // package) picks the reference and high-b volumes, builds the traces and
 // calls package audit/adc, which holds the arithmetic on plain slices;
 // the rules read Result.Measures and the maps. Physics and check values
-// are those of DOMAIN.md, cited beside each default.
+// are those of docs/references.md, cited beside each default.
 //
 // The audit checks acquisitions; it does not diagnose. Clinical
 // decisions rest with the radiologist and local policy.

@@ -80,7 +80,7 @@ func labelMedian(v *adc.Volume3, truth *phantom.Truth, l uint8, mask []bool) (fl
 // truths are the phantom's: white matter 0.70e-3 and cortical grey
 // matter 0.89e-3 (Helenius et al., AJNR 2002;23:194), CSF 3.0e-3 (near
 // free water at 37 C, Holz et al., PCCP 2000;2:4740), ice water
-// 1.099e-3 at 0 C (Holz 2000; QIBA), all via DOMAIN.md.
+// 1.099e-3 at 0 C (Holz 2000; QIBA), all via docs/references.md#check-values.
 func TestPhantomTissueADC(t *testing.T) {
 	brain := []uint8{phantom.LabelWM, phantom.LabelGM, phantom.LabelCSF}
 	cases := []struct {
@@ -216,7 +216,7 @@ func TestPhantomSNR(t *testing.T) {
 		{name: "ice water at SNR 60", opt: phantom.Options{Case: phantom.CaseIceWater0C}, tol: 0.10},
 		// At SNR 4 the magnitude of white matter is Rician-biased up by
 		// about σ²/2S (3%; Gudbjartsson & Patz, MRM 1995;34:910, via
-		// DOMAIN.md) and the noise spreads white matter into the grey
+		// docs/references.md#gudbjartsson-patz-1995) and the noise spreads white matter into the grey
 		// matter's range, moving the parenchyma median up: 15%.
 		{name: "SNR 4 of the low-snr case", opt: phantom.Options{Case: phantom.CaseLowSNR}, tol: 0.15},
 	}
@@ -235,7 +235,7 @@ func TestPhantomSNR(t *testing.T) {
 				return
 			}
 			// White matter at b = 1000: S0·exp(-b·0.70e-3) over σ
-			// (Helenius 2002 via DOMAIN.md; the phantom's model).
+			// (Helenius 2002 via docs/references.md#helenius-2002; the phantom's model).
 			want := phantom.S0WhiteMatter * math.Exp(-1000*phantom.ADCWhiteMatter) / st.Truth.Sigma
 			if math.Abs(m.HighBTissueSNR-want)/want > c.tol {
 				t.Errorf("high-b tissue SNR = %.2f, white matter's %.2f", m.HighBTissueSNR, want)
@@ -303,7 +303,7 @@ func sameVolume(a, b *adc.Volume3) bool {
 }
 
 // TestPhantomDefectsMoveTheMeasures checks that planted defects show in
-// the measures the way DOMAIN.md's physics says they must.
+// the measures the way the physics in docs/references.md#physics says they must.
 func TestPhantomDefectsMoveTheMeasures(t *testing.T) {
 	base := phantom.Options{Matrix: 96, Slices: 10, Seed: 25}
 	_, clean := analyzePhantom(t, base)
@@ -314,8 +314,8 @@ func TestPhantomDefectsMoveTheMeasures(t *testing.T) {
 		st, res := analyzePhantom(t, opt)
 		k := st.Truth.AppliedB[len(st.Truth.AppliedB)-1] / st.Truth.HeaderB[len(st.Truth.HeaderB)-1]
 		// ADC = ln(S0/Sb)/b_header with Sb weighted by b_applied: every
-		// ADC times b_applied/b_header (mono-exponential model, DOMAIN.md);
-		// the CSF ADC far from 3e-3 is DOMAIN.md's sign of this defect.
+		// ADC times b_applied/b_header (mono-exponential model, docs/references.md#mono-exponential);
+		// the CSF ADC far from 3e-3 is the sign of this defect in docs/references.md#csf-reference.
 		for _, m := range []struct {
 			name       string
 			got, clean float64
@@ -340,7 +340,7 @@ func TestPhantomDefectsMoveTheMeasures(t *testing.T) {
 				continue
 			}
 			shift = append(shift, res.ADC.Data[i]-tr.ADC[i])
-			predicted = append(predicted, float32(math.Log(float64(tr.B0[i]/tr.S0[i]))/1000)) // DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b
+			predicted = append(predicted, float32(math.Log(float64(tr.B0[i]/tr.S0[i]))/1000)) // docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by ln(k)/b
 		}
 		got, want := adc.Median(shift), adc.Median(predicted)
 		if len(shift) == 0 || math.Abs(float64(got-want)) > 0.03e-3 {

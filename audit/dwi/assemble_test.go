@@ -111,7 +111,7 @@ func TestBValuesWithinToleranceFormOneVolume(t *testing.T) {
 		slices  []int
 		inconst int
 	}{
-		// DOMAIN.md: a nominal 900 seen as 895-905 (common practice).
+		// docs/references.md#bvalue-tolerance: a nominal 900 seen as 895-905 (common practice).
 		{"895, 900 and 905 on three slices", []img{{b: 895, dir: x, slice: 0}, {b: 905, dir: x, slice: 1}, {b: 900, dir: x, slice: 2}}, []float64{900}, []int{3}, 0},
 		{"895 and 905 only", []img{{b: 895, dir: x, slice: 0}, {b: 905, dir: x, slice: 1}}, []float64{900}, []int{2}, 0},
 		// IVIM protocols step by 10 s/mm^2 at the low end (common practice).
@@ -556,7 +556,7 @@ func TestDefaultTolerancesAreValid(t *testing.T) {
 	if err := tol.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	// DOMAIN.md: a nominal 900 seen as 895-905 must match.
+	// docs/references.md#bvalue-tolerance: a nominal 900 seen as 895-905 must match.
 	if tol.bTolerance(900) < 5 || tol.bTolerance(0) >= 10 {
 		t.Errorf("b tolerance %v at 900, %v at 0", tol.bTolerance(900), tol.bTolerance(0))
 	}

@@ -17,7 +17,7 @@ type ClassifyInput struct {
 }
 
 // imageStorage are the storage SOP Classes whose instances the audit
-// reads as images (PS3.4 B.5; DOMAIN.md): MR Image, Enhanced MR Image,
+// reads as images (PS3.4 B.5): MR Image, Enhanced MR Image,
 // Enhanced MR Color Image, Legacy Converted Enhanced MR Image,
 // Parametric Map, Secondary Capture and the multi-frame Secondary
 // Captures.

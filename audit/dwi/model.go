@@ -40,7 +40,7 @@ func (d Directionality) String() string {
 
 // MapKind says what an image is: an acquired diffusion-weighted image, or
 // a map the scanner derived (PS3.3 C.8.13.1.1.1 Image Type value 4,
-// PS3.17 suggestions; DOMAIN.md).
+// PS3.17 suggestions; docs/references.md#derived-maps).
 type MapKind int
 
 const (
@@ -249,7 +249,7 @@ const (
 	CombinedMean
 	// CombinedGeometricMean: several images per slice without a
 	// direction, combined as a trace is (their geometric mean; Basser &
-	// Pierpaoli, DOMAIN.md): right when they are distinct directions of
+	// Pierpaoli, docs/references.md#basser-pierpaoli): right when they are distinct directions of
 	// a balanced scheme, biased otherwise (Facts.UnknownDirections).
 	CombinedGeometricMean
 )

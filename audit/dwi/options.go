@@ -36,7 +36,7 @@ type Tolerances struct {
 // configured otherwise:
 //
 //   - b-value: max(5 s/mm^2, 2% of b). Stored b-values differ slightly
-//     from the nominal (a nominal 900 seen as 895-905, DOMAIN.md, common
+//     from the nominal (a nominal 900 seen as 895-905, docs/references.md#bvalue-tolerance, common
 //     practice); 2% at b = 900 is 18, three times that spread. The
 //     absolute floor of 5 stays below half the smallest step between
 //     nominal b-values in use, 10 s/mm^2 at the low end of IVIM protocols
@@ -55,7 +55,7 @@ type Tolerances struct {
 //     (common practice).
 //   - b0: b-values up to 50 s/mm² are the reference weighting (common
 //     practice: body protocols use b 50 as their b0 to suppress
-//     perfusion, DOMAIN.md). Only values within the b-value tolerance of
+//     perfusion, docs/references.md#ivim). Only values within the b-value tolerance of
 //     0 (5 s/mm²: a scanner's "b0" stored as 0.002 or 5) are shown as
 //     0; a b 50 stays 50, since the ADC is computed against it.
 func DefaultTolerances() Tolerances {

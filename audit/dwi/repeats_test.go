@@ -114,7 +114,7 @@ func TestWeightedImagesWithoutDirectionAreReportedAndCombinedAsATrace(t *testing
 		imgs := v.ImagesAt(z)
 		for p := range sl.Pixels {
 			// The trace of three directions is their geometric mean
-			// (Basser & Pierpaoli; DOMAIN.md).
+			// (Basser & Pierpaoli; docs/references.md#basser-pierpaoli).
 			prod := 1.0
 			for _, f := range imgs {
 				prod *= float64(frames[f.ID()].Pixels[p])
@@ -147,7 +147,7 @@ func TestNominalBValuesKeepTheMeasuredOnes(t *testing.T) {
 	}{
 		{[]img{{b: 0.0020000000717118383, directionality: "NONE"}, {b: 999.9979999999283, dir: x}}, 0, 0.0020000000717118383, WeightingB0, 1000, 999.9979999999283},
 		{[]img{{b: 5, directionality: "NONE"}, {b: 995, dir: x, slice: 0}, {b: 1000, dir: x, slice: 1}, {b: 1000, dir: x, slice: 2}}, 0, 5, WeightingB0, 1000, 998.3333333333334},
-		// b 50 stays 50: body protocols use it as their reference (DOMAIN.md).
+		// b 50 stays 50: body protocols use it as their reference (docs/references.md#ivim).
 		{[]img{{b: 50, dir: x}, {b: 800, dir: x}}, 50, 50, WeightingB0, 800, 800},
 	}
 	for _, tt := range tests {

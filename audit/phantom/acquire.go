@@ -35,7 +35,7 @@ const (
 	adcMaskSigmas   = 5.0
 )
 
-// Planted artifacts on the b0 (DOMAIN.md: a b0 scaled by k shifts ADC by
+// Planted artifacts on the b0 (docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by
 // ln(k)/b). Both are smooth ellipses (cos^2 taper) in the central slices.
 const (
 	// Aliasing: signal of a structure outside the field of view wrapped
@@ -45,8 +45,8 @@ const (
 	aliasSemiX, aliasSemiY = 30.0, 15.0
 	aliasAmplitude         = 400.0
 	// Dropout: susceptibility signal loss in the frontal lobe, the b0
-	// multiplied by dropoutFactor at its centre (k = 0.6, DOMAIN.md's
-	// example that looks like restriction: -0.51e-3 at b = 1000).
+	// multiplied by dropoutFactor at its centre (k = 0.6, the
+	// example in docs/references.md#b0-only-artifacts that looks like restriction: -0.51e-3 at b = 1000).
 	dropoutX, dropoutY         = 0.0, -55.0
 	dropoutSemiX, dropoutSemiY = 35.0, 20.0
 	dropoutFactor              = 0.6
@@ -445,7 +445,7 @@ func (a *acquisition) acquireSlice(s int, sc *scratch) {
 
 // traceInto writes the geometric mean of n directional magnitudes, given
 // the sum of their logarithms: the scanner's isotropic trace image
-// (Basser & Pierpaoli; DOMAIN.md).
+// (Basser & Pierpaoli; docs/references.md#basser-pierpaoli).
 func traceInto(dst, logSum []float64, n int) {
 	for i := range dst {
 		dst[i] = math.Exp(logSum[i] / float64(n))

@@ -24,7 +24,7 @@ const (
 
 // Image Type (0008,0008) / Frame Type (0008,9007) values (PS3.3 C.8.3.1.1.1
 // and C.8.16.1; PS3.17's suggestion DERIVED\PRIMARY\DIFFUSION\ADC for ADC
-// maps, DOMAIN.md). Value 4 is NONE for original images (C.8.16.1.4);
+// maps, docs/references.md#derived-maps). Value 4 is NONE for original images (C.8.16.1.4);
 // DIFFUSION marks the derived isotropic (trace) image (value 4 defined
 // terms of MR, C.8.13.1.1.1, from memory).
 func imageType(k volKind) []string {
@@ -103,7 +103,7 @@ func (w *writer) writeClassicFile(so *seriesOut, info *SeriesInfo, im classicIma
 // (C.7.6.2), Image Pixel (C.7.6.3), MR Image (C.8.3.1), plus the
 // diffusion encoding of the layout (for the standard layout the MR
 // Diffusion Macro's attributes (C.8.13.5.9) at top level, where scanners
-// put them in classic images, DOMAIN.md), and for ADC maps a Real World
+// put them in classic images, docs/references.md#diffusion-attributes), and for ADC maps a Real World
 // Value Mapping (C.7.6.16.2.11).
 func (w *writer) classic(so *seriesOut, im classicImage) (dicom.Dataset, error) {
 	a, o, v := w.a, w.o, im.vol
@@ -201,7 +201,7 @@ func (w *writer) diffusion(it *item, v *volume) {
 
 // adcMapping is the Real World Value Mapping item of the scanner ADC map
 // (PS3.3 C.7.6.16.2.11): value = slope * stored + intercept in mm2/s
-// (UCUM, DOMAIN.md). The misscaled case writes a slope misscaleFactor too
+// (UCUM, docs/references.md#real-world-value-mapping). The misscaled case writes a slope misscaleFactor too
 // large.
 func (w *writer) adcMapping(b *builder) *item {
 	slope := w.a.truth.ADCMapSlope

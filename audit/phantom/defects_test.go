@@ -115,7 +115,7 @@ func TestPhantomPlantsEachDefectInTheFiles(t *testing.T) {
 			if r := meanOver(tr, trace, LabelLesion) / meanOver(tr, trace, LabelWM); r < 2 {
 				t.Fatalf("lesion DWI / white matter DWI = %v, want bright", r)
 			}
-			// Normal parenchyma range 0.6-1.1e-3 (DOMAIN.md, Helenius 2002 widened).
+			// Normal parenchyma range 0.6-1.1e-3 (docs/references.md#parenchyma-range, Helenius 2002 widened).
 			if got := medianADC(tr, b0, trace, 1000, LabelLesion); got < 0.6e-3 || got > 1.1e-3 {
 				t.Fatalf("lesion ADC from the pixels %v, want normal", got)
 			}
@@ -296,7 +296,7 @@ func checkB0Artifact(t *testing.T, st *Study, imgs []image, k float64) {
 			}
 		}
 	}
-	// DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b.
+	// docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by ln(k)/b.
 	if (k > 1 && worst < k) || (k < 1 && !within(worst, k, 0.02)) {
 		t.Fatalf("worst b0 ratio %v, want about %v", worst, k)
 	}
@@ -318,7 +318,7 @@ func checkADCMap(t *testing.T, st *Study, imgs []image, factor float64) {
 	var v []float64
 	n := tr.Rows * tr.Cols
 	for s, im := range adc {
-		// UCUM "mm2/s", the unit DOMAIN.md lists for ADC maps.
+		// UCUM "mm2/s", the unit docs/references.md#real-world-value-mapping lists for ADC maps.
 		if im.rwvmUnits != "mm2/s" || im.rwvmSlope != tr.ADCMapSlope || !within(im.rwvmSlope, adcUnit*factor, 1e-12) {
 			t.Fatalf("ADC map mapping %v %q, want %v mm2/s", im.rwvmSlope, im.rwvmUnits, adcUnit*factor)
 		}
@@ -370,8 +370,8 @@ func TestPhantomAppliedBScaleBiasesTheMeasuredADC(t *testing.T) {
 			imgs := readStudy(t, st)
 			b0, trace := volumeOf(t, tr, imgs, volB0, 0, zero), volumeOf(t, tr, imgs, volTrace, 1000, zero)
 			// Read with the header's b = 1000 the pixels give the true ADC
-			// times the scale: ln(S0/Sb) = applied b x ADC (DOMAIN.md's
-			// two-point formula); 0.5% covers rounding to stored pixels.
+			// times the scale: ln(S0/Sb) = applied b x ADC (the
+			// two-point formula in docs/references.md#mono-exponential); 0.5% covers rounding to stored pixels.
 			if got, want := medianADC(tr, b0, trace, 1000, c.label), c.truth*c.scale; !within(got, want, 0.005) {
 				t.Fatalf("ADC read with the header b %v, want %v", got, want)
 			}

@@ -27,7 +27,7 @@ const (
 	DefaultMatrix = 128
 	DefaultSlices = 20
 	DefaultSNR    = 60.0 // b0 SNR in white matter; a 1.5 T brain DWI b0 is of this order (common practice)
-	LowSNR        = 4.0  // the low-snr case: near the Rician floor at b = 1000 (DOMAIN.md: flag below about 3)
+	LowSNR        = 4.0  // the low-snr case: near the Rician floor at b = 1000 (docs/references.md#rician-floor: flag below about 3)
 	DefaultDirs   = 3
 	// ManyDirs is the largest direction scheme: a 30-direction DTI
 	// acquisition, common in clinical tensor imaging (common practice).
@@ -149,7 +149,7 @@ type Options struct {
 	B0Series bool
 	// B0ArtifactK is the strength of the b0-artifact cases: the factor
 	// by which the artifact scales the b0 of white matter at its centre
-	// (DOMAIN.md: a b0 scaled by k shifts ADC by ln(k)/b). Aliasing adds
+	// (docs/references.md#b0-only-artifacts: a b0 scaled by k shifts ADC by ln(k)/b). Aliasing adds
 	// (k-1)·S0WhiteMatter at the centre and needs k > 1; dropout
 	// multiplies the b0 by k there and needs 0 < k < 1. Zero keeps the
 	// case's own strength (aliasing 1 + aliasAmplitude/S0WhiteMatter,

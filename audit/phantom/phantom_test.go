@@ -151,7 +151,7 @@ func writeEveryCase(t *testing.T, root string) []writtenStudy {
 // Warnings dciodvfy (dicom3tools 1.00~20220618) gives on our classic MR
 // images, all expected: the MR Image IOD (PS3.3 A.4) has no diffusion
 // attributes, so carrying the MR Diffusion Macro's at top level (as
-// scanners do, DOMAIN.md) makes the instance a Standard Extended SOP
+// scanners do, docs/references.md#diffusion-attributes) makes the instance a Standard Extended SOP
 // Class (PS3.4 B.1.3), and DIFFUSION is not among the classic Image Type
 // value 3 defined terms. Enhanced MR files get none.
 func classicWarnings() []string {
@@ -463,7 +463,7 @@ func checkedWant(tr *Truth, o Options) int {
 }
 
 // medianADC is the median two-point ADC ln(S0/Sb)/b over the voxels
-// labelled l (DOMAIN.md).
+// labelled l (docs/references.md#mono-exponential).
 func medianADC(tr *Truth, low, high map[int]image, b float64, l uint8) float64 {
 	var v []float64
 	n := tr.Rows * tr.Cols

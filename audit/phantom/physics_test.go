@@ -6,7 +6,7 @@ import (
 )
 
 func TestPhantomWaterADCReproducesTheHolzTable(t *testing.T) {
-	// DOMAIN.md check values: Holz, Heil & Sacco, PCCP 2000;2:4740, the fit
+	// docs/references.md#holz-2000: Holz, Heil & Sacco, PCCP 2000;2:4740, the fit
 	// D = D0 (T/Ts - 1)^gamma, quoted to three decimals (1e-3 mm^2/s). The
 	// fit itself gives 2.2995 at 25 C, which the table shows as 2.300, so
 	// the tolerance is one unit of the last quoted decimal.
@@ -21,19 +21,19 @@ func TestPhantomWaterADCReproducesTheHolzTable(t *testing.T) {
 	for _, c := range cases {
 		t.Run("water at "+ftoa(c.celsius)+" C", func(t *testing.T) {
 			if got := WaterADC(c.celsius); math.Abs(got-c.want) > 0.001e-3 {
-				t.Fatalf("WaterADC(%g) = %.6g mm2/s, want %.4g (Holz 2000, DOMAIN.md)", c.celsius, got, c.want)
+				t.Fatalf("WaterADC(%g) = %.6g mm2/s, want %.4g (Holz 2000, references.md#holz-2000)", c.celsius, got, c.want)
 			}
 		})
 	}
 	t.Run("the ice-water phantom is at the QIBA value", func(t *testing.T) {
 		// QIBA DWI profile; Malyarenko et al., JMRI 2013;37:1238: 1.1e-3 at
-		// 0 C (DOMAIN.md), quoted to two significant figures.
+		// 0 C (docs/references.md#ice-water-phantom), quoted to two significant figures.
 		if got := WaterADC(IceWaterC); math.Abs(got-1.1e-3) > 0.005e-3 {
 			t.Fatalf("WaterADC(0) = %.4g, want 1.1e-3 (QIBA)", got)
 		}
 	})
 	t.Run("the warm phantom is outside the QIBA tolerance", func(t *testing.T) {
-		// +-3.6% bias tolerance of the QIBA profile (DOMAIN.md, from memory).
+		// +-3.6% bias tolerance of the QIBA profile (docs/references.md#phantom-tolerance, from memory).
 		if got := WaterADC(IceWarmC); got < 1.1e-3*1.036 {
 			t.Fatalf("WaterADC(%g) = %.4g, want above 1.1e-3 + 3.6%%", IceWarmC, got)
 		}
@@ -46,14 +46,14 @@ func TestPhantomWaterADCReproducesTheHolzTable(t *testing.T) {
 }
 
 func TestPhantomSignalModel(t *testing.T) {
-	// DOMAIN.md worked example: S0 = 1000 and ADC = 1e-3 at b = 1000 give
+	// docs/references.md#worked-example: S0 = 1000 and ADC = 1e-3 at b = 1000 give
 	// Sb = 367.879 (exp(-1) exactly).
 	iso := isotropic(1e-3)
 	if got := signal(1000, 1000, iso, [3]float64{1, 0, 0}); math.Abs(got-1000*math.Exp(-1)) > 1e-9 {
 		t.Fatalf("signal = %v, want 1000 exp(-1)", got)
 	}
 	// Geometric mean of three orthogonal directions = S0 exp(-b Tr(D)/3)
-	// (Basser & Pierpaoli; DOMAIN.md), here with an anisotropic tensor.
+	// (Basser & Pierpaoli; docs/references.md#basser-pierpaoli), here with an anisotropic tensor.
 	d := [3]float64{wmAxialD, wmRadialD, wmRadialD}
 	gm := 1.0
 	for _, g := range directionSet(3) {

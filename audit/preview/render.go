@@ -40,9 +40,9 @@ var (
 // Scales and sizes.
 const (
 	// adcMax (mm²/s) is the top of the ADC colour scale: a little above
-	// free water at body temperature (3.04e-3, Holz 2000; DOMAIN.md) so
+	// free water at body temperature (3.04e-3, Holz 2000; docs/references.md#holz-2000) so
 	// CSF is inside the scale and only what no tissue reaches is clipped
-	// (the free-water ceiling is 3.4e-3, DOMAIN.md).
+	// (the free-water ceiling is 3.4e-3, docs/references.md#free-water-ceiling).
 	adcMax = 3.5e-3
 	// adcLegendUnit is the unit of the colour bar's labels, mm²/s.
 	adcLegendUnit = 1e-3

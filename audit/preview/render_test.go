@@ -326,7 +326,7 @@ func TestTheADCLegendIsViridisFromEndToEnd(t *testing.T) {
 }
 
 // syntheticResult is a hand-made computation: b0 1000 and DWI 368
-// everywhere (ADC 1e-3, eADC 0.368 by the worked example of DOMAIN.md),
+// everywhere (ADC 1e-3, eADC 0.368 by the worked example of docs/references.md#worked-example),
 // a square mask in the middle, and on the middle slice an ADC ramp
 // along the columns from 0 to 3.5e-3 and one NaN voxel at (rows/2, 2).
 func syntheticResult(rows, cols, slices int) *analysis.Result {

@@ -87,7 +87,7 @@ func (s demoStudy) name() string {
 // driftScales is the weighting scanner qoh-mr1-1.5t applies relative to
 // its header on each day, its gradient calibration drifting upward: the
 // ice-water phantom reads its ADC that much high. Inside the ice-water
-// profile's ±3.6% (from memory, DOMAIN.md) for three days, outside it
+// profile's ±3.6% (from memory, docs/references.md#phantom-tolerance) for three days, outside it
 // on the fourth.
 func driftScales() [demoDays]float64 { return [demoDays]float64{1.005, 1.015, 1.03, 1.05} }
 
@@ -116,7 +116,7 @@ func demoScenario() []demoStudy {
 	drift := driftScales()
 	qa := func(day int) demoStudy {
 		s := demoStudy{day: day, scanner: 0, plant: plant{"ice-water-qa", "", phantom.CaseIceWater0C, damageNone}, bScale: drift[day]}
-		if math.Abs(drift[day]-1) > 0.036 { // the ice-water profile's tolerance (from memory, DOMAIN.md)
+		if math.Abs(drift[day]-1) > 0.036 { // the ice-water profile's tolerance (from memory, docs/references.md#phantom-tolerance)
 			s.expect = []string{rules.IDPhantomADCBias}
 		} else {
 			s.clean = true

@@ -32,7 +32,7 @@ const (
 	DefaultTrendDays = 90
 	// DefaultPhantomTolerance is the relative band drawn around a
 	// phantom's expected ADC when its profile gives none: ±3.6% (QIBA
-	// bias tolerance; from memory, not verified, DOMAIN.md).
+	// bias tolerance; from memory, not verified, docs/references.md#phantom-tolerance).
 	DefaultPhantomTolerance = 0.036
 	// maxTrendDays bounds ?days= on a scanner page: ten years of audits
 	// is more than any plot can show.

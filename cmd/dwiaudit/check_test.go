@@ -120,7 +120,7 @@ func TestCheckTextShowsSeriesFindingsAndTheCaution(t *testing.T) {
 		"DWI b0 b1000 3dir", "brain", "0,1000",
 		"SEVERITY", "RULE", "error", rules.IDMissingB0,
 		"1 error",
-		// DOMAIN.md, Safety wording: every report that shows findings.
+		// docs/references.md#safety-wording: every report that shows findings.
 		"dwiaudit checks acquisitions; it does not diagnose. Clinical decisions rest with the radiologist and local policy.",
 	} {
 		if !strings.Contains(r.stdout, want) {
@@ -199,7 +199,7 @@ func TestCheckJSONIsStable(t *testing.T) {
 			}
 		}
 		if adc, ok := meas["tissue_adc_median"].(float64); ok && !(adc > 0.0005 && adc < 0.001) {
-			t.Errorf("tissue_adc_median %v: want mm²/s, about 0.0007 for the phantom's white matter (Helenius 2002 via DOMAIN.md)", adc)
+			t.Errorf("tissue_adc_median %v: want mm²/s, about 0.0007 for the phantom's white matter (Helenius 2002 via references.md#helenius-2002)", adc)
 		}
 	}
 	if !sawNull || !sawNumber {

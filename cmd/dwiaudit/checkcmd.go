@@ -16,7 +16,7 @@ import (
 	"dwiaudit/rules"
 )
 
-// cautionLine ends every text report (DOMAIN.md, Safety wording).
+// cautionLine ends every text report (docs/references.md#safety-wording).
 const cautionLine = report.Caution
 
 func runCheck(ctx context.Context, env *cliEnv, args []string) int {

@@ -108,7 +108,7 @@ func TestDemoExitShowsEveryRuleOnItsPlantedStudyAndNothingOnTheCleanOnes(t *test
 	// Each rule on the study that plants its defect
 	// (audit/acceptance_test.go's pairs; the ice-water-qa study whose
 	// weighting drifted 5% up is this scenario's own, past the ice-water
-	// profile's ±3.6%, from memory, DOMAIN.md).
+	// profile's ±3.6%, from memory, docs/references.md#phantom-tolerance).
 	for _, c := range []struct{ rule, on string }{
 		{rules.IDMissingB0, "no-b0"},
 		{rules.IDBValueMismatch, "bvalue-set-differs"},

@@ -228,7 +228,7 @@ func TestPrometheusScrapesTheDriftGaugeOfAnAuditedPhantomStudy(t *testing.T) {
 	if m := got[0].Metric; m["scanner"] != "qoh-mr1-1.5t" || m["protocol"] != "brain" || m["job"] != "dwiaudit" {
 		t.Errorf("series labels %v, want scanner qoh-mr1-1.5t, protocol brain, job dwiaudit", m)
 	}
-	// DOMAIN.md (Helenius 2002): white matter 0.70e-3 and cortex 0.89e-3
+	// docs/references.md#helenius-2002 (Helenius 2002): white matter 0.70e-3 and cortex 0.89e-3
 	// mm²/s, the synthetic phantom's truth; the parenchyma median lies
 	// between, here in m²/s.
 	if v := resultValue(t, got[0]); v < 0.70e-9 || v > 0.89e-9 {
