@@ -250,7 +250,8 @@ func TestCheckJSONGolden(t *testing.T) {
 			{
 				StudyUID: "2.25.1", SeriesUID: "2.25.1.2", SeriesNumber: 2, SeriesDescription: "DWI b0 b1000 3dir",
 				Scanner: "QOH-MR1", Protocol: "brain", BValues: []float64{0, 1000},
-				Measures: analysis.Measures{ParenchymaMedianADC: 0.00079, CSFADC: 0.00301, B0SNR: 58.25},
+				PhantomExpectedADC: nan, // not a phantom series (the engine's NaN)
+				Measures:           analysis.Measures{ParenchymaMedianADC: 0.00079, CSFADC: 0.00301, B0SNR: 58.25},
 				Volumes: []dwi.TableRow{
 					{BValue: 0, BValueMeasured: 0.0020000000717118383, Weighting: dwi.WeightingB0, Images: 40, Slices: 20, Combined: dwi.CombinedMean},
 					{BValue: 1000, BValueMeasured: 999.9979999999283, Weighting: dwi.WeightingTrace, Images: 20, Slices: 20},
@@ -259,7 +260,8 @@ func TestCheckJSONGolden(t *testing.T) {
 			},
 			{
 				StudyUID: "2.25.1", SeriesUID: "2.25.1.3", SeriesNumber: 3, SeriesDescription: "DWI b1000",
-				Measures: analysis.Measures{ParenchymaMedianADC: nan, CSFADC: nan, B0SNR: math.Inf(1)}, CannotCompute: "no b0",
+				PhantomExpectedADC: nan,
+				Measures:           analysis.Measures{ParenchymaMedianADC: nan, CSFADC: nan, B0SNR: math.Inf(1)}, CannotCompute: "no b0",
 			},
 		},
 		Findings: []rules.Finding{
