@@ -9,7 +9,7 @@ import (
 // UIH (United Imaging) keeps the diffusion encoding of classic MR images
 // in the private block of creator "Image Private Header" in group 0065
 // (docs/makers.md has the sources; everything here was read off the
-// public UIH reference series and is from memory otherwise):
+// UIH series of the public slice-timing QA set (dcm_qa_stc) and is from memory otherwise):
 //
 //   - (0065,xx09) FD: the b-value the scanner reports as applied (929.75
 //     for a nominal 1000; the reference .bval lists it), and (0065,xx0A)
