@@ -68,4 +68,18 @@
 // Every file operation goes through the FS interface: OSFS for the real
 // disk, and the strict in-memory file system in seglog/strictfs for the
 // power-cut tests.
+//
+// # Not yet the store's point of durability
+//
+// store.Put still writes one Part 10 file per instance; nothing uses this
+// package yet. The planned wiring: Put receives into a pooled buffer,
+// parses the header from memory, appends one record and answers after the
+// flush that covers it; one indexer updates bbolt in batches and stores
+// the applied mark (Pos.After) in the same transaction; duplicate checks
+// look at the index plus the records not yet indexed; instances are read
+// as record sections (the pipeline, the previews and Describe switch from
+// file paths to the store's reader); files of the old layout are read in
+// place, new records carry segment and offset under a raised schema
+// version; retention deletes whole segments and reconciliation becomes
+// replay.
 package seglog
